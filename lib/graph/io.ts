@@ -1,0 +1,73 @@
+// loadModel / saveModel: file ↔ IR, with external data and checked structure.
+import fs from 'node:fs';
+import path from 'node:path';
+import { decodeModel, encodeModel, CodecError, unknownFieldPaths, PROTO_LIMIT } from '../onnx/codec.js';
+import { loadExternalData, placeTensors } from '../onnx/external.js';
+import { modelFromProto, modelToProto, type Model } from './ir.js';
+import { topoOrder } from './links.js';
+import { OfframpError } from '../errors.js';
+import { writeAtomic } from '../util/atomic.js';
+
+export interface LoadedModel extends Model { file?: string }
+
+export interface LoadOptions { /** skip the structure check (cycles, dangling inputs) */ unchecked?: boolean }
+
+export function loadModel(file: string, opts: LoadOptions = {}): LoadedModel {
+  let buf: Buffer;
+  try { buf = fs.readFileSync(file); } catch (e) {
+    throw new OfframpError('io', (e as NodeJS.ErrnoException).code === 'ENOENT' ? 'no such file' : `cannot read: ${(e as Error).message}`, file);
+  }
+  return parseModel(buf, file, opts);
+}
+
+export function parseModel(buf: Uint8Array, file?: string, opts: LoadOptions = {}): LoadedModel {
+  if (buf.length === 0) throw new OfframpError('decode', 'file is empty, not an ONNX model', file);
+  let proto;
+  try { proto = decodeModel(buf); } catch (e) {
+    if (e instanceof CodecError) throw new OfframpError('decode', `not a valid ONNX model: ${e.message}`, file);
+    throw e;
+  }
+  if (!proto.graph) throw new OfframpError('decode', 'not a valid ONNX model: it has no graph', file);
+  if (proto.irVersion === undefined || !proto.opsetImport?.length)
+    throw new OfframpError('decode', 'not a valid ONNX model: ir_version or opset_import is missing', file);
+  if (file) loadExternalData(proto, file);
+  let model: Model;
+  try {
+    model = modelFromProto(proto);
+    if (!opts.unchecked) topoOrder(model.graph);
+  } catch (e) {
+    if (e instanceof OfframpError) throw new OfframpError(e.kind, e.message, file, e.where);
+    throw new OfframpError('decode', `not a valid ONNX model: ${(e as Error).message}`, file);
+  }
+  return { ...model, file };
+}
+
+export interface SaveOptions {
+  /** Put tensors of at least this many bytes into one external data file. */
+  externalThreshold?: number;
+  /** File name of that external file, beside the model (default: <model>.data). */
+  externalFile?: string;
+}
+
+export interface SaveReport { bytes: number; externalBytes: number; unknownFields: string[] }
+
+export function saveModel(model: Model, file: string, opts: SaveOptions = {}): SaveReport {
+  const ext = opts.externalThreshold !== undefined
+    ? { file: opts.externalFile ?? `${path.basename(file)}.data`, threshold: opts.externalThreshold }
+    : undefined;
+  const { model: proto, chunks } = placeTensors(modelToProto(model), ext);
+  let bytes: Uint8Array;
+  try { bytes = encodeModel(proto); } catch (e) {
+    if (e instanceof CodecError) throw new OfframpError('io', `${e.message}${ext ? '' : ' (save with externalThreshold)'}`, file);
+    throw e;
+  }
+  if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'model over 2 GiB; save with external data', file);
+  // The data file goes first: a model never points at a data file that is not complete.
+  if (ext && chunks.length) writeAtomic(path.join(path.dirname(file), ext.file), chunks);
+  writeAtomic(file, bytes);
+  return {
+    bytes: bytes.length,
+    externalBytes: chunks.reduce((s, c) => s + c.length, 0),
+    unknownFields: unknownFieldPaths(proto, 'ModelProto'),
+  };
+}
