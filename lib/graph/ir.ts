@@ -134,7 +134,8 @@ export function nodeToProto(n: Node): NodeProto {
 export function valueInfoToProto(v: ValueInfo): ValueInfoProto {
   const p: ValueInfoProto = { ...v.proto, name: v.name };
   // A type left as it was read is written back as the original proto (keeps denotations, symbols).
-  if (v.type && readTypes.get(v.type) !== v.proto.type) p.type = typeToProto(v.type);
+  // A type made in code (not in readTypes) is always written, even when the proto has none.
+  if (v.type && (!readTypes.has(v.type) || readTypes.get(v.type) !== v.proto.type)) p.type = typeToProto(v.type);
   return p;
 }
 
