@@ -1,0 +1,4 @@
+#!/usr/bin/env node
+import { main } from '../dist/lib/cli/main.js';
+
+main(process.argv.slice(2)).then((code) => { process.exitCode = code; });

@@ -1,0 +1,27 @@
+// The command line: thin commands over the library.
+import { Command, CommanderError } from 'commander';
+import { costCommand } from './cost.js';
+import { EXIT, fail } from './common.js';
+import { VERSION } from '../version.js';
+
+export async function main(argv: string[]): Promise<number> {
+  const debug = argv.includes('--debug');
+  const program = new Command('offramp')
+    .description('retrofit early exits onto trained ONNX classifiers for microcontrollers')
+    .version(VERSION)
+    .option('--debug', 'show stack traces on errors')
+    .exitOverride()
+    .configureOutput({ writeErr: (s) => process.stderr.write(s) });
+  costCommand(program);
+  for (const c of program.commands) c.exitOverride();
+  try {
+    await program.parseAsync(argv, { from: 'user' });
+    return EXIT.ok;
+  } catch (e) {
+    if (e instanceof CommanderError) {
+      if (e.code === 'commander.helpDisplayed' || e.code === 'commander.version' || e.code === 'commander.help') return EXIT.ok;
+      return EXIT.usage;
+    }
+    return fail(e, debug);
+  }
+}

@@ -1,0 +1,55 @@
+// The cost report for people (text, Markdown) and for scripts (JSON, schema offramp-cost/1).
+import type { CostReport } from '../cost/report.js';
+import { si, bytes, table, mdTable, toJson } from './units.js';
+
+export const COST_SCHEMA = 'offramp-cost/1';
+
+export function costJson(r: CostReport): string {
+  return toJson({ schema: COST_SCHEMA, ...r }) + '\n';
+}
+
+const shape = (s: number[]) => `[${s.join('×')}]`;
+
+function nodeRows(r: CostReport): string[][] {
+  return r.nodes.map((n) => [
+    String(n.index), n.name || '-', n.op, n.outputs.map((o) => shape(o.shape) + (o.source === 'measured' ? '*' : '')).join(' '),
+    n.macs ? si(n.macs) : '-', n.params ? si(n.params) : '-', n.outputs.length ? bytes(n.outputs.reduce((s, o) => s + o.bytes, 0n)) : '-',
+  ]);
+}
+const NODE_HEAD = ['#', 'node', 'op', 'output', 'MACs', 'params', 'out bytes'];
+const STAGE_HEAD = ['stage', 'nodes', 'ends at', 'MACs', 'share', 'weights', 'peak act.', 'in', 'out'];
+function stageRows(r: CostReport): string[][] {
+  return r.stages.map((s) => [
+    String(s.index), `${s.first}–${s.last}`, s.cut || '(model outputs)', si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`,
+    bytes(s.paramBytes), bytes(s.peakActivationBytes),
+    bytes(s.inputs.reduce((a, x) => a + x.bytes, 0n)), bytes(s.outputs.reduce((a, x) => a + x.bytes, 0n)),
+  ]);
+}
+
+function summary(r: CostReport): string[] {
+  const m = r.model;
+  const lines = [
+    `model      ${m.file ?? '(in memory)'}${m.producer ? `  (from ${m.producer})` : ''}`,
+    `opsets     ${Object.entries(m.opsets).map(([d, v]) => `${d || 'ai.onnx'} ${v}`).join(', ')}; IR ${m.irVersion}`,
+    `MACs       ${si(m.macs)} (${m.macs})   other ops ${si(m.ops)}`,
+    `weights    ${si(m.params)} params, ${bytes(m.paramBytes)}${Object.keys(m.paramBytesByType).length > 1 ? ` (${Object.entries(m.paramBytesByType).map(([k, v]) => `${k} ${bytes(v)}`).join(', ')})` : ''}`,
+    `peak act.  ${bytes(m.peakActivationBytes)} (${m.peakActivationBytes} B) at ${m.peakAt}`,
+  ];
+  if (r.shapes.measured.length) lines.push(`measured   ${r.shapes.measured.length} value shape(s) measured with onnxruntime (marked *)`);
+  for (const w of r.warnings) lines.push(`warning    ${w}`);
+  return lines;
+}
+
+export function costText(r: CostReport, opts: { nodes?: boolean } = {}): string {
+  const parts = [summary(r).join('\n')];
+  if (opts.nodes !== false) parts.push(table(NODE_HEAD, nodeRows(r)));
+  if (r.stages.length > 1) parts.push(table(STAGE_HEAD, stageRows(r)));
+  return parts.join('\n\n') + '\n';
+}
+
+export function costMarkdown(r: CostReport, opts: { nodes?: boolean } = {}): string {
+  const parts = ['## Cost', summary(r).map((l) => `- ${l.replace(/^(\S+(?: act\.)?)\s+/, '**$1** ')}`).join('\n')];
+  if (r.stages.length > 1) parts.push('### Stages', mdTable(STAGE_HEAD, stageRows(r)));
+  if (opts.nodes !== false) parts.push('### Nodes', mdTable(NODE_HEAD, nodeRows(r)));
+  return parts.join('\n\n') + '\n';
+}
