@@ -52,7 +52,8 @@ export async function measureShapes(
   const feeds: Record<string, ort.Tensor> = {};
   for (const [name, t] of inputs) feeds[name] = zeros(t);
   let out: ort.InferenceSession.OnnxValueMapType;
-  try { out = await session.run(feeds, names); } catch (e) {
+  // All outputs, not a fetch list: onnxruntime-node 1.23 answers a fetch-name array with the wrong outputs.
+  try { out = await session.run(feeds); } catch (e) {
     throw new OfframpError('runtime', `onnxruntime failed while measuring shapes: ${firstLine(e)}`, file);
   } finally { await session.release(); }
   const res = new Map<string, { dtype: number; shape: number[] }>();
