@@ -12,17 +12,15 @@ const PLAIN: Slots = { x: 0, w: 1, b: 2 };
 // QLinearConv: x, x_scale, x_zero_point, w, w_scale, w_zero_point, y_scale, y_zero_point, B
 const QLINEAR: Slots = { x: 0, w: 3, b: 8 };
 
-function checkGroups(x: Dim[], w: Dim[], group: number, perGroupAxis: number): void {
-  const cin = x[1], per = w[perGroupAxis];
-  if (isNum(cin) && isNum(per) && perGroupAxis === 1 && cin !== per * group) throw new RangeError(`Conv: ${cin} input channels, weight expects ${per}×${group} groups`);
-  if (isNum(cin) && isNum(w[0]) && perGroupAxis === 0 && cin !== w[0]) throw new RangeError(`ConvTranspose: ${cin} input channels, weight has ${w[0]}`);
+function checkChannels(op: string, cin: Dim, want: Dim): void {
+  if (isNum(cin) && isNum(want) && cin !== want) throw new RangeError(`${op}: ${cin} input channels, weight expects ${want}`);
 }
 
 function convInfer(c: InferCtx, s: Slots, dtype: (c: InferCtx) => number | undefined): (Known | undefined)[] {
   const x = shapeOf(c, s.x), w = shapeOf(c, s.w);
   const dt = dtype(c);
   if (!x || !w || dt === undefined || x.length < 3 || w.length !== x.length) return [];
-  checkGroups(x, w, c.int('group', 1), 1);
+  checkChannels(c.node.op, x[1], isNum(w[1]) ? w[1] * c.int('group', 1) : w[1]);
   const win = windowOf(c, x.length - 2, w.slice(2));
   if (!win) return [];
   return [known(dt, [x[0], w[0], ...spatialOut(x.slice(2), win, false, () => c.fresh('conv'))])];
@@ -54,7 +52,7 @@ const convTranspose: OpRule = {
   infer: (c) => {
     const x = shapeOf(c, 0), w = shapeOf(c, 1), dt = c.inputs[0]?.type.dtype;
     if (!x || !w || dt === undefined || x.length < 3 || w.length !== x.length) return [];
-    checkGroups(x, w, c.int('group', 1), 0);
+    checkChannels('ConvTranspose', x[1], w[0]);
     const n = x.length - 2;
     const win = windowOf(c, n, w.slice(2));
     if (!win) return [];
