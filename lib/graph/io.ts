@@ -2,7 +2,9 @@
 import fs from 'node:fs';
 import path from 'node:path';
 import { decodeModel, encodeModel, CodecError, unknownFieldPaths, PROTO_LIMIT } from '../onnx/codec.js';
-import { loadExternalData, placeTensors } from '../onnx/external.js';
+import { loadExternalData, placeTensors, allTensors, EXTERNAL } from '../onnx/external.js';
+import { DTYPES, bytesFor } from '../onnx/dtype.js';
+import type { ModelProto } from '../onnx/types.js';
 import { modelFromProto, modelToProto, type Model } from './ir.js';
 import { topoOrder } from './links.js';
 import { OfframpError } from '../errors.js';
@@ -24,12 +26,13 @@ export function parseModel(buf: Uint8Array, file?: string, opts: LoadOptions = {
   if (buf.length === 0) throw new OfframpError('decode', 'file is empty, not an ONNX model', file);
   let proto;
   try { proto = decodeModel(buf); } catch (e) {
-    if (e instanceof CodecError) throw new OfframpError('decode', `not a valid ONNX model: ${e.message}`, file);
-    throw e;
+    // Anything else (a RangeError, say) is still a bad file, not a crash.
+    throw new OfframpError('decode', `not a valid ONNX model: ${e instanceof CodecError ? e.message : String((e as Error).message ?? e)}`, file);
   }
   if (!proto.graph) throw new OfframpError('decode', 'not a valid ONNX model: it has no graph', file);
   if (proto.irVersion === undefined || !proto.opsetImport?.length)
     throw new OfframpError('decode', 'not a valid ONNX model: ir_version or opset_import is missing', file);
+  checkTensors(proto, file);
   if (file) loadExternalData(proto, file);
   let model: Model;
   try {
@@ -40,6 +43,28 @@ export function parseModel(buf: Uint8Array, file?: string, opts: LoadOptions = {
     throw new OfframpError('decode', `not a valid ONNX model: ${(e as Error).message}`, file);
   }
   return { ...model, file };
+}
+
+const knownTypes = new Set(DTYPES.map((d) => d.id));
+const SAFE = BigInt(Number.MAX_SAFE_INTEGER);
+
+/** Dims, element type and inline raw_data size of every tensor, before anything sizes or reads them. */
+function checkTensors(proto: ModelProto, file?: string): void {
+  for (const t of allTensors(proto)) {
+    const bad = (msg: string) => new OfframpError('decode', msg, file, `tensor '${t.name ?? ''}'`);
+    let count = 1n;
+    for (const d of t.dims ?? []) {
+      if (d < 0n || d > SAFE) throw bad(`dim ${d} is negative or absurd`);
+      count *= d;
+    }
+    const dt = t.dataType ?? 0;
+    if (!knownTypes.has(dt)) throw bad(`unknown element type ${dt}`);
+    const bytes = bytesFor(dt, count);
+    if (bytes > SAFE) throw bad(`dims [${Array.from(t.dims ?? []).join(', ')}] imply ${bytes} bytes, which is absurd`);
+    // Strings have no fixed width; segments split one tensor over several protos.
+    if (t.rawData && t.dataLocation !== EXTERNAL && dt !== 8 && !t.segment && BigInt(t.rawData.length) !== bytes)
+      throw bad(`raw_data holds ${t.rawData.length} bytes, but its dims and type need ${bytes}`);
+  }
 }
 
 export interface SaveOptions {

@@ -55,7 +55,11 @@ function toTyped(t: Scalar, xs: unknown[]): unknown {
   }
 }
 
-function decodeMsg(r: Reader, end: number, type: string, path: string): Msg {
+/** Nesting limit; protobuf's own readers default to 100 too (common practice). */
+export const MAX_DEPTH = 100;
+
+function decodeMsg(r: Reader, end: number, type: string, path: string, depth = 0): Msg {
+  if (depth > MAX_DEPTH) throw new CodecError(`messages nested more than ${MAX_DEPTH} deep`, `…${path.slice(-120)}`, r.pos);
   const { byNo } = table(type);
   const out: Msg = {};
   const lists = new Map<Field, unknown[]>();
@@ -80,7 +84,7 @@ function decodeMsg(r: Reader, end: number, type: string, path: string): Msg {
       const n = r.varint();
       const stop = r.pos + n;
       if (stop > end) throw new CodecError('message runs past its parent', sub, r.pos);
-      const m = decodeMsg(r, stop, fd.type.slice(4), list ? `${sub}[${list.length}]` : sub);
+      const m = decodeMsg(r, stop, fd.type.slice(4), list ? `${sub}[${list.length}]` : sub, depth + 1);
       if (list) list.push(m); else out[fd.name] = m;
       continue;
     }
