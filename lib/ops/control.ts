@@ -28,6 +28,12 @@ const ifRule: OpRule = {
   },
 };
 
+/** The body hands its condition input straight back (directly or through Identity). */
+function passesCond(g: Graph): boolean {
+  const cin = g.inputs[1]?.name, cout = g.outputs[0]?.name;
+  return !!cin && (cout === cin || g.nodes.some((n) => n.op === 'Identity' && n.inputs[0] === cin && n.outputs[0] === cout));
+}
+
 // Inputs M, cond, carried...; body outputs cond, carried..., scan slices...
 const loop: OpRule = {
   op: 'Loop',
@@ -39,8 +45,8 @@ const loop: OpRule = {
       const t = g.outputs[1 + i]?.type;
       return k?.type.shape && sameShape(k.type.shape, t?.shape) ? known(k.type.dtype, k.type.shape) : undefined;
     });
-    // A scan output has one slice per iteration: only a loop with a folded trip count and no condition input is sure of that.
-    const m = given(c, 1) ? undefined : c.inputs[0]?.value?.data[0];
+    // A scan output has one slice per iteration: sure only with a folded trip count and a condition that cannot stop early.
+    const m = !given(c, 1) || (c.inputs[1]?.value?.data[0] && passesCond(g)) ? c.inputs[0]?.value?.data[0] : undefined;
     for (const o of g.outputs.slice(1 + carried.length)) {
       const s = o.type?.shape;
       outs.push(m !== undefined && s && !s.some(anonymous) ? known(o.type!.dtype, [m, ...s]) : undefined);
