@@ -3,7 +3,7 @@
 import type { Dim } from '../graph/ir.js';
 import type { Const, OpRule, InferCtx, Known } from './rule.js';
 import { axis, isNum, known } from './rule.js';
-import { count, dimSum, given, intsIn } from './fold-move.js';
+import { FOLD_LIMIT, count, dimSum, given, intsIn } from './fold-move.js';
 
 function concatConst(vs: Const[], a: number, dtype: number): Const {
   const dims = [...vs[0].dims];
@@ -32,7 +32,7 @@ const concat: OpRule = {
     });
     const dtype = xs[0]!.type.dtype;
     const vs = xs.map((x) => x!.value);
-    const v = vs.every((x) => x) && count(out as number[]) <= 1 << 16 ? concatConst(vs as Const[], a, dtype) : undefined;
+    const v = vs.every((x) => x) && count(out as number[]) <= FOLD_LIMIT ? concatConst(vs as Const[], a, dtype) : undefined;
     return [known(dtype, out, v)];
   },
 };

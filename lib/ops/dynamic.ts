@@ -5,7 +5,7 @@ import type { Dim } from '../graph/ir.js';
 import type { OpRule } from './rule.js';
 import { axis, known } from './rule.js';
 import { INT64 } from '../onnx/dtype.js';
-import { FOLD_LIMIT, allNum, count, eachIndex } from './fold-move.js';
+import { FOLD_LIMIT, allNum, count, dimProd, eachIndex } from './fold-move.js';
 
 const nonZero: OpRule = {
   op: 'NonZero',
@@ -44,15 +44,11 @@ const unique: OpRule = {
     const ai = c.int('axis');
     if (ai === undefined) {
       const v = x.value;
-      let u: Dim = c.fresh('unique'), y;
-      if (v) {
-        const seen = [...new Set(v.data)];
-        if (c.int('sorted', 1)) seen.sort((a, b) => a - b);
-        u = seen.length;
-        y = { dtype: x.type.dtype, dims: [u], data: seen };
-      }
-      const all: Dim = allNum(s) ? count(s) : c.fresh('numel');
-      return [known(x.type.dtype, [u], y), known(INT64, [u]), known(INT64, [all]), known(INT64, [u])];
+      const seen = v && [...new Set(v.data)];
+      if (seen && c.int('sorted', 1)) seen.sort((a, b) => a - b);
+      const u: Dim = seen ? seen.length : c.fresh('unique');
+      const y = seen && { dtype: x.type.dtype, dims: [seen.length], data: seen };
+      return [known(x.type.dtype, [u], y), known(INT64, [u]), known(INT64, [dimProd(s)]), known(INT64, [u])];
     }
     const a = axis(ai, s.length), v = x.value;
     const u: Dim = v && count(v.dims) <= FOLD_LIMIT ? distinctSlices(v.data, v.dims, a) : c.fresh('unique');
