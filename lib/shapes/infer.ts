@@ -5,7 +5,7 @@ import type { Dim, Graph, Model, TensorType } from '../graph/ir.js';
 import { linkGraph, topoOrder, describe } from '../graph/links.js';
 import { findRule } from '../ops/registry.js';
 import { attrsOf } from '../ops/attrs.js';
-import { constFromTensor, type Known, type InferCtx } from '../ops/rule.js';
+import { constFromTensor, type Known, type InferCtx, type Const } from '../ops/rule.js';
 import { tensorDims } from '../onnx/tensor.js';
 import '../ops/all.js';
 
@@ -49,7 +49,12 @@ export function bindInput(t: TensorType | undefined, opts: InferOptions): Tensor
 export function inferShapes(model: Model, opts: InferOptions = {}, graph: Graph = model.graph, outer?: Map<string, ValueShape>): ShapeResult {
   const values = new Map<string, ValueShape>(outer);
   for (const [name, t] of graph.initializers) {
-    values.set(name, { type: { dtype: t.dataType ?? 0, shape: tensorDims(t) }, value: constFromTensor(t), source: 'initializer' });
+    // Values are read lazily: only shape arithmetic asks, and converting every weight would cost memory.
+    let cached: Const | undefined | null = null;
+    values.set(name, {
+      type: { dtype: t.dataType ?? 0, shape: tensorDims(t) }, source: 'initializer',
+      get value() { if (cached === null) cached = constFromTensor(t); return cached; },
+    });
   }
   for (const v of graph.inputs) {
     if (graph.initializers.has(v.name)) continue; // an input with a default: the initializer's shape rules

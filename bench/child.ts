@@ -1,0 +1,28 @@
+// A measurement in a clean process: only what the measured code itself imports,
+// so its peak RSS is the code's own. Prints one JSON line. The parent stays small
+// too: Linux carries a parent's peak RSS into a child's ru_maxrss across fork+exec.
+const [kind, file, out] = process.argv.slice(2);
+const t0 = process.hrtime.bigint();
+const ms = (from: bigint) => Number(process.hrtime.bigint() - from) / 1e6;
+const res: Record<string, number> = {};
+if (kind === 'make') {
+  const { resnet50 } = await import('../test/helpers/nets.js');
+  const { saveModel } = await import('../lib/graph/io.js');
+  saveModel(resnet50({ weights: 'random', seed: 7 }), file);
+} else if (kind === 'cli') {
+  const { main } = await import('../lib/cli/main.js');
+  const code = await main(['cost', file, '--json', '-o', out]);
+  if (code !== 0) throw new Error(`offramp cost exited ${code}`);
+} else {
+  const { loadModel } = await import('../lib/graph/io.js');
+  const { analyzeModel } = await import('../lib/cost/analyze.js');
+  const m = loadModel(file);
+  res.decodeMs = ms(t0);
+  const t1 = process.hrtime.bigint();
+  const r = await analyzeModel(m);
+  res.costMs = ms(t1);
+  res.macs = Number(r.model.macs);
+}
+res.totalMs = ms(t0);
+res.maxRssBytes = process.resourceUsage().maxRSS * 1024;
+process.stdout.write(JSON.stringify(res));
