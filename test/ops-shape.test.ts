@@ -4,6 +4,7 @@
 import { describe, it, expect } from 'vitest';
 import type { AttributeProto, NodeProto, TensorProto, ValueInfoProto } from '../lib/onnx/types.js';
 import { inferShapes, type InferOptions } from '../lib/shapes/infer.js';
+import { costModel } from '../lib/cost/report.js';
 import { model, vi, node, ints, int, int64Tensor } from './helpers/proto.js';
 
 const I64_MAX = 9223372036854775807n, I64_MIN = -9223372036854775808n;
@@ -188,5 +189,25 @@ describe('other folds exporters rely on', () => {
     const nz = r.shape('nz')!;
     expect(nz[0]).toBe(2);
     expect(typeof nz[1]).toBe('string');
+  });
+});
+
+describe('costs', () => {
+  it('data movement is free; reductions count one op per input element; linear resize one MAC per tap', () => {
+    const str = (name: string, v: string): AttributeProto => ({ name, type: 3, s: new TextEncoder().encode(v) });
+    const nodes = [
+      node('Transpose', ['x'], ['t'], [ints('perm', [0, 1, 3, 2])]),
+      node('ReduceMean', ['t'], ['m'], [ints('axes', [2, 3])]),
+      node('Resize', ['x', '', 'sc'], ['up'], [str('mode', 'linear')]),
+      node('Resize', ['x', '', 'sc'], ['nn']),
+    ];
+    const m = model(nodes, [vi('x', [1, 2, 4, 4])], [{ name: 'm' }, { name: 'up' }, { name: 'nn' }],
+      [{ name: 'sc', dims: BigInt64Array.of(4n), dataType: 1, floatData: Float32Array.of(1, 1, 2, 2) }], 17);
+    const s = inferShapes(m, { rulesOnly: true, batch: 0 });
+    expect(s.values.get('m')?.type.shape).toEqual([1, 2, 1, 1]);
+    expect(s.values.get('up')?.type.shape).toEqual([1, 2, 8, 8]);
+    const c = costModel(m, { shapes: s }).nodes.map((n) => [n.macs, n.ops]);
+    // 1·2·4·4 = 32 input elements; bilinear: 1·2·8·8 = 128 outputs × 2² taps = 512 MACs.
+    expect(c).toEqual([[0n, 0n], [0n, 32n], [512n, 0n], [0n, 0n]]);
   });
 });
