@@ -1,0 +1,121 @@
+// Multinomial logistic regression (softmax regression) on pooled features.
+// Objective, with m rows: (1/m)·Σ loss_i + (l2/2)·‖W‖², the intercept unpenalised.
+// loss_i is cross-entropy to a label, or T²·KL(p_i ‖ softmax(s_i/T)) to soft targets
+// (the T² keeps gradient scale independent of T, as in knowledge distillation).
+// In scikit-learn's terms (C·Σ CE + ½‖W‖²) this is l2 = 1/(C·m).
+import { lbfgs } from './lbfgs.js';
+import { allRows, heldOutSplit, type Features, type Targets } from './targets.js';
+
+/** Parameters: W (k×d, row-major) then b (k), one Float64Array. */
+export const paramCount = (d: number, k: number) => k * d + k;
+
+/**
+ * Objective over `rows` at params θ; writes its exact gradient into `grad` when given.
+ * `l2` = 0 gives the data term alone (held-out loss).
+ */
+export function softmaxObjective(F: Features, T: Targets, rows: Int32Array, theta: Float64Array, l2: number, grad?: Float64Array): number {
+  const { X, d } = F, k = T.k, m = rows.length;
+  const W = theta.subarray(0, k * d), b = theta.subarray(k * d);
+  const s = new Float64Array(k), e = new Float64Array(k);
+  const temp = T.kind === 'soft' ? T.temperature : 1, scale = temp * temp;
+  if (grad) grad.fill(0);
+  let total = 0;
+  for (const r of rows) {
+    const off = r * d;
+    let mx = -Infinity;
+    for (let c = 0; c < k; c++) {
+      let z = b[c];
+      const wo = c * d;
+      for (let j = 0; j < d; j++) z += W[wo + j] * X[off + j];
+      s[c] = z / temp;
+      if (s[c] > mx) mx = s[c];
+    }
+    let sum = 0;
+    for (let c = 0; c < k; c++) sum += (e[c] = Math.exp(s[c] - mx));
+    const lse = mx + Math.log(sum);
+    if (T.kind === 'labels') {
+      const y = T.labels[r];
+      total += lse - s[y];
+      for (let c = 0; c < k; c++) e[c] = e[c] / sum - (c === y ? 1 : 0);
+    } else {
+      let kl = 0;
+      for (let c = 0; c < k; c++) {
+        const p = T.p[r * k + c];
+        if (p > 0) kl += p * (Math.log(p) - (s[c] - lse));
+        e[c] = temp * (e[c] / sum - p); // d(T²·KL)/dz = T·(q − p)
+      }
+      total += scale * kl;
+    }
+    if (grad) {
+      for (let c = 0; c < k; c++) {
+        const ec = e[c];
+        if (ec === 0) continue;
+        const wo = c * d;
+        for (let j = 0; j < d; j++) grad[wo + j] += ec * X[off + j];
+        grad[k * d + c] += ec;
+      }
+    }
+  }
+  let reg = 0;
+  for (let i = 0; i < k * d; i++) reg += W[i] * W[i];
+  if (grad) {
+    for (let i = 0; i < grad.length; i++) grad[i] /= m;
+    for (let i = 0; i < k * d; i++) grad[i] += l2 * W[i];
+  }
+  return total / m + 0.5 * l2 * reg;
+}
+
+export interface FitOptions {
+  /** L2 strength on weights (default 1e-4) */
+  l2?: number;
+  seed?: number;
+  /** share of rows held out for early stopping and scoring (default 0.1; 0: none) */
+  heldOut?: number;
+  /** stop after this many iterations without a better held-out loss (default 20) */
+  patience?: number;
+  maxIter?: number;
+}
+
+export interface LinearFit {
+  W: Float64Array; b: Float64Array; d: number; k: number;
+  /** training objective at the returned parameters */
+  loss: number;
+  /** held-out data loss at the returned parameters (NaN without held-out rows) */
+  heldOutLoss: number;
+  iterations: number;
+  split: { train: Int32Array; held: Int32Array };
+}
+
+export function fitSoftmax(F: Features, T: Targets, o: FitOptions = {}): LinearFit {
+  const l2 = o.l2 ?? 1e-4, patience = o.patience ?? 20;
+  const split = o.heldOut === 0 ? { train: allRows(F.n), held: new Int32Array(0) } : heldOutSplit(F.n, o.heldOut ?? 0.1, o.seed ?? 1);
+  const { d } = F, k = T.k;
+  // Zero start: the objective is convex, so the start only changes the path, and zeros need no seed.
+  const theta0 = new Float64Array(paramCount(d, k));
+  let best = { theta: theta0, held: split.held.length ? softmaxObjective(F, T, split.held, theta0, 0) : NaN, iter: 0 };
+  const res = lbfgs((x, g) => softmaxObjective(F, T, split.train, x, l2, g), theta0, {
+    maxIter: o.maxIter ?? 500,
+    onIter: split.held.length ? (iter, x) => {
+      const h = softmaxObjective(F, T, split.held, x, 0);
+      if (h < best.held) best = { theta: Float64Array.from(x), held: h, iter };
+      return iter - best.iter >= patience;
+    } : undefined,
+  });
+  const theta = split.held.length ? best.theta : res.x;
+  return {
+    W: theta.slice(0, k * d), b: theta.slice(k * d), d, k,
+    loss: softmaxObjective(F, T, split.train, theta, l2), heldOutLoss: best.held,
+    iterations: res.iterations, split,
+  };
+}
+
+/** Logits of a linear head for every row (float64 parameters as given). */
+export function linearLogits(F: Features, W: ArrayLike<number>, b: ArrayLike<number>, k: number): Float64Array {
+  const { X, n, d } = F, out = new Float64Array(n * k);
+  for (let i = 0; i < n; i++) for (let c = 0; c < k; c++) {
+    let z = b[c];
+    for (let j = 0; j < d; j++) z += W[c * d + j] * X[i * d + j];
+    out[i * k + c] = z;
+  }
+  return out;
+}

@@ -1,0 +1,60 @@
+// What a head is fitted to, and how fits are scored: hard labels (cross-entropy)
+// or the model's own final output softened at a temperature (knowledge
+// distillation, Hinton et al. 2015); a seeded held-out split; accuracy/agreement.
+import { mulberry32 } from '../graph/build.js';
+
+/** Features of n samples, d each, row-major; float32 as they come from the runtime. */
+export interface Features { X: Float32Array | Float64Array; n: number; d: number }
+
+export type Targets =
+  | { kind: 'labels'; labels: Int32Array; k: number }
+  /** p: n×k probabilities, softmax(teacher/T) */
+  | { kind: 'soft'; p: Float64Array; k: number; temperature: number };
+
+export function labelTargets(labels: ArrayLike<number>, k: number): Targets {
+  return { kind: 'labels', labels: Int32Array.from(labels), k };
+}
+
+/** softmax(z/T) of teacher logits (n×k), in float64. */
+export function softTargets(logits: ArrayLike<number>, n: number, k: number, temperature = 1): Targets {
+  const p = new Float64Array(n * k);
+  for (let i = 0; i < n; i++) {
+    let mx = -Infinity;
+    for (let j = 0; j < k; j++) mx = Math.max(mx, logits[i * k + j] / temperature);
+    let s = 0;
+    for (let j = 0; j < k; j++) s += (p[i * k + j] = Math.exp(logits[i * k + j] / temperature - mx));
+    for (let j = 0; j < k; j++) p[i * k + j] /= s;
+  }
+  return { kind: 'soft', p, k, temperature };
+}
+
+export function argmaxRows(z: ArrayLike<number>, n: number, k: number): Int32Array {
+  const out = new Int32Array(n);
+  for (let i = 0; i < n; i++) {
+    let b = 0;
+    for (let j = 1; j < k; j++) if (z[i * k + j] > z[i * k + b]) b = j;
+    out[i] = b;
+  }
+  return out;
+}
+
+export interface Split { train: Int32Array; held: Int32Array }
+
+/** A seeded shuffle; the first ⌊fraction·n⌋ become the held-out rows. Both parts in ascending order. */
+export function heldOutSplit(n: number, fraction: number, seed: number): Split {
+  const idx = Int32Array.from({ length: n }, (_, i) => i);
+  const rnd = mulberry32(seed ^ 0x5eed);
+  for (let i = n - 1; i > 0; i--) { const j = Math.floor(rnd() * (i + 1)); const t = idx[i]; idx[i] = idx[j]; idx[j] = t; }
+  const h = fraction > 0 && n > 1 ? Math.min(n - 1, Math.floor(fraction * n)) : 0;
+  return { held: idx.slice(0, h).sort(), train: idx.slice(h).sort() };
+}
+
+export const allRows = (n: number) => Int32Array.from({ length: n }, (_, i) => i);
+
+/** Share of rows where the predicted class equals `truth`. */
+export function matchRate(pred: Int32Array, truth: ArrayLike<number>, rows: Int32Array): number {
+  if (!rows.length) return NaN;
+  let hit = 0;
+  for (const r of rows) if (pred[r] === truth[r]) hit++;
+  return hit / rows.length;
+}
