@@ -46,10 +46,7 @@ export const redim = (v: Const | undefined, dims: Dim[]): Const | undefined => (
 export const given = (c: InferCtx, i: number): boolean => !!c.node.inputs[i];
 /** Input i is known to hold no elements (an "empty" optional, e.g. Resize scales or Reduce axes). */
 export const isEmpty = (k: Known | undefined): boolean => !!k?.type.shape?.some((d) => d === 0);
-/**
- * A 1-D integer operand from input i: [] when omitted or empty, undefined when given but not folded.
- * Reads a folded value first, then the known-empty case.
- */
+/** An integer operand (axes, pads, a shape) from input i: [] when omitted or empty, undefined when not folded. */
 export function intsIn(c: InferCtx, i: number): number[] | undefined {
   if (!given(c, i)) return [];
   const k = c.inputs[i];
