@@ -1,6 +1,9 @@
 // The command line: thin commands over the library.
 import { Command, CommanderError } from 'commander';
 import { costCommand } from './cost.js';
+import { scanCommand } from './scan.js';
+import { splitCommand } from './split.js';
+import { checkCommand } from './check.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -13,6 +16,9 @@ export async function main(argv: string[]): Promise<number> {
     .exitOverride()
     .configureOutput({ writeErr: (s) => process.stderr.write(s) });
   costCommand(program);
+  scanCommand(program);
+  splitCommand(program);
+  checkCommand(program);
   for (const c of program.commands) c.exitOverride();
   try {
     await program.parseAsync(argv, { from: 'user' });

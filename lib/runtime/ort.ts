@@ -5,6 +5,8 @@ import type { Model, TensorType } from '../graph/ir.js';
 import { modelToProto, typeToProto } from '../graph/ir.js';
 import { encodeModel } from '../onnx/codec.js';
 import { dtypeInfo } from '../onnx/dtype.js';
+import { tensorDims } from '../onnx/tensor.js';
+import type { TensorProto } from '../onnx/types.js';
 import { OfframpError } from '../errors.js';
 
 export type OrtTensor = ort.Tensor;
@@ -70,3 +72,70 @@ const ORT_TO_ONNX: Record<string, number> = {
 export const ortDtype = (t: string): number => ORT_TO_ONNX[t] ?? 0;
 export { typeToProto };
 export type { TensorType };
+
+/** Run with feeds only and take every output (see measureShapes for why no fetch list). */
+export async function runSession(session: Session, feeds: Record<string, ort.Tensor>, file?: string): Promise<Record<string, ort.Tensor>> {
+  try { return (await session.run(feeds)) as Record<string, ort.Tensor>; } catch (e) {
+    throw new OfframpError('runtime', `onnxruntime failed: ${firstLine(e)}`, file);
+  }
+}
+
+type Typed = { new (n: number | ArrayBuffer): ArrayLike<number | bigint>; from(xs: ArrayLike<number | bigint>): ArrayLike<number | bigint>; BYTES_PER_ELEMENT: number };
+const TYPED: Record<string, Typed> = {
+  float32: Float32Array, float64: Float64Array, int8: Int8Array, uint8: Uint8Array, int16: Int16Array, uint16: Uint16Array,
+  int32: Int32Array, uint32: Uint32Array, int64: BigInt64Array, uint64: BigUint64Array, bool: Uint8Array, float16: Uint16Array,
+} as unknown as Record<string, Typed>;
+
+/**
+ * A TensorProto (a test_data_set .pb, an initializer) as an onnxruntime tensor.
+ * Data comes from raw_data (copied: it may be an unaligned view into a file) or the typed field the spec assigns to the type.
+ */
+export function tensorFromProto(t: TensorProto, file?: string): ort.Tensor {
+  const dt = t.dataType ?? 0;
+  const name = dtypeInfo(dt).ort;
+  const bad = (why: string) => new OfframpError('data', `tensor '${t.name ?? ''}': ${why}`, file);
+  if (!name) throw bad(`element type ${dtypeInfo(dt).name} is not supported by the runtime`);
+  const dims = tensorDims(t);
+  const n = dims.reduce((a, b) => a * b, 1);
+  let data: ort.Tensor['data'];
+  if (name === 'string') data = (t.stringData ?? []).map((s) => new TextDecoder().decode(s));
+  else {
+    const C = TYPED[name];
+    if (t.rawData?.length || t.dataLocation === 1) {
+      const raw = t.rawData ?? new Uint8Array();
+      if (raw.length !== n * C.BYTES_PER_ELEMENT) throw bad(`raw_data has ${raw.length} bytes, ${n * C.BYTES_PER_ELEMENT} expected`);
+      data = new C(raw.slice().buffer) as unknown as ort.Tensor['data'];
+    } else {
+      // Typed fields by type (onnx.proto3 comments): small ints, bool and float16 bits live in int32_data.
+      const field = name === 'float32' ? t.floatData : name === 'float64' ? t.doubleData : name === 'int64' ? t.int64Data
+        : name === 'uint64' || name === 'uint32' ? t.uint64Data : t.int32Data;
+      const xs = field ?? [];
+      const big = name === 'int64' || name === 'uint64';
+      data = C.from(Array.from(xs as ArrayLike<number | bigint>, (x) => (big ? BigInt(x) : Number(x)))) as unknown as ort.Tensor['data'];
+    }
+  }
+  if (data.length !== n) throw bad(`${data.length} values for dims [${dims.join(',')}]`);
+  return new ort.Tensor(name as ort.Tensor.Type, data as never, dims);
+}
+
+/** A tensor of seeded pseudo-random values: floats uniform in [-1, 1), integers 0 or 1 (safe as indices), bools either. */
+export function randomTensor(t: { dtype: number; shape: number[] }, rnd: () => number): ort.Tensor {
+  const z = zeros(t);
+  const d = z.data as ArrayLike<unknown> & { [i: number]: unknown };
+  const kind = z.type;
+  for (let i = 0; i < d.length; i++) {
+    const r = rnd();
+    d[i] = kind === 'float32' || kind === 'float64' ? r * 2 - 1
+      : kind === 'int64' || kind === 'uint64' ? BigInt(r < 0.5 ? 0 : 1)
+      : kind === 'string' ? String(Math.floor(r * 10))
+      : kind === 'float16' ? (r < 0.5 ? 0 : 0x3c00) : r < 0.5 ? 0 : 1;
+  }
+  return z;
+}
+
+/** A tensor over existing data (not copied). */
+export function tensorFromData(dtype: number, shape: number[], data: ArrayBufferView): ort.Tensor {
+  const name = dtypeInfo(dtype).ort;
+  if (!name || name === 'string') throw new OfframpError('runtime', `element type ${dtypeInfo(dtype).name} is not supported here`);
+  return new ort.Tensor(name as ort.Tensor.Type, data as never, shape);
+}

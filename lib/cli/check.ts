@@ -1,0 +1,52 @@
+// `offramp check DIR --against MODEL`: the chain computes what the model does.
+import fs from 'node:fs';
+import type { Command } from 'commander';
+import { loadChain } from '../run/chain.js';
+import { checkChain, npySamples, randomSamples } from '../run/check.js';
+import { table, toJson } from '../report/units.js';
+import { OfframpError, usageError } from '../errors.js';
+import { collect, emit } from './common.js';
+
+const num = (x: number) => (x === 0 ? '0' : x.toExponential(2));
+
+export function checkCommand(program: Command): void {
+  program.command('check')
+    .description('run the model and the split chain on the same inputs and compare every output')
+    .argument('<dir>', 'split folder (or its manifest.json)')
+    .requiredOption('--against <model>', 'the source ONNX model')
+    .option('--data <file>', '.npy inputs, [N, ...]; NAME=FILE per input for several (repeatable)', collect, [])
+    .option('--samples <n>', 'samples to run', '4')
+    .option('--seed <n>', 'seed of the random inputs', '1')
+    .option('--rtol <x>', 'relative tolerance for float outputs (integers must be exact)', '1e-5')
+    .option('--json', 'machine-readable result')
+    .action(async (dir: string, o: { against: string; data: string[]; samples: string; seed: string; rtol: string; json?: boolean }) => {
+      const n = Number(o.samples), rtol = Number(o.rtol), seed = Number(o.seed);
+      if (!(Number.isInteger(n) && n > 0)) throw usageError(`--samples takes a positive whole number, not '${o.samples}'`);
+      if (!(rtol >= 0)) throw usageError(`--rtol takes a number ≥ 0, not '${o.rtol}'`);
+      if (!Number.isInteger(seed)) throw usageError(`--seed takes a whole number, not '${o.seed}'`);
+      const chain = await loadChain(dir);
+      try {
+        const inputs = chain.manifest.inputs;
+        let samples;
+        if (o.data.length) {
+          const files: Record<string, string> = {};
+          for (const d of o.data) {
+            const m = /^([^=]+)=(.+)$/.exec(d);
+            if (m && !fs.existsSync(d)) files[m[1]] = m[2];
+            else if (inputs.length === 1) files[inputs[0].name] = d;
+            else throw usageError(`the model has ${inputs.length} inputs: give --data NAME=FILE for each`);
+          }
+          samples = npySamples(inputs, files, n);
+          if (!samples.length) throw new OfframpError('data', 'no samples in the data', o.data[0]);
+        } else samples = randomSamples(inputs, n, seed);
+        const r = await checkChain(chain, o.against, samples, { rtol });
+        if (o.json) emit(toJson({ schema: 'offramp-check/1', ...r, rtol, source: o.data.length ? 'data' : `random seed ${seed}` }) + '\n');
+        else {
+          const rows = r.diffs.map((d) => [d.name, d.dtype, String(d.elements), num(d.maxAbs), num(d.maxRel), String(d.mismatched), d.ok ? 'ok' : `FAIL${d.note ? ` (${d.note})` : ''}`]);
+          emit(`${r.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), float rtol ${o.rtol}, integers exact\n\n` +
+            `${table(['output', 'dtype', 'elements', 'max abs', 'max rel', 'over', 'result'], rows)}\n`);
+        }
+        if (!r.ok) throw new OfframpError('runtime', `the chain differs from ${o.against} beyond tolerance`, dir);
+      } finally { await chain.release(); }
+    });
+}

@@ -1,0 +1,57 @@
+// `offramp scan MODEL`: candidate cut points, ranked.
+import type { Command } from 'commander';
+import { loadModel } from '../graph/io.js';
+import { rankCuts, scanModel, type Cut, type CutPlan } from '../cuts/scan.js';
+import { bytes, si, table, toJson } from '../report/units.js';
+import { usageError } from '../errors.js';
+import { collect, emit, parseDims } from './common.js';
+
+export const SCAN_SCHEMA = 'offramp-scan/1';
+
+const shape = (s: (number | string)[]) => `[${s.join('×')}]`;
+const tensors = (c: Cut) => c.tensors.map((t) => `${t.name} ${t.dtype}${shape(t.shape)}`).join(' + ');
+
+export function scanText(plan: CutPlan, ranked: { cut: Cut; score: number }[]): string {
+  const m = plan.model;
+  const lines = [
+    `model      ${m.file ?? '(in memory)'}: ${plan.steps.length} nodes, ${si(plan.totalMacs)} MACs`,
+    `order      ${plan.order === 'block' ? 'block-keeping (depth-first from the outputs)' : "the file's own"}: clean cuts file ${plan.cleanBy.file}, block-keeping ${plan.cleanBy.block}`,
+    `cuts       ${plan.candidates.length} candidates, ${plan.candidates.filter((c) => c.clean).length} clean (one crossing tensor)`,
+    ...(plan.exits.length ? [`exits      ${plan.exits.join(', ')}`] : []),
+    ...plan.warnings.map((w) => `warning    ${w}`),
+  ];
+  if (!ranked.length) return lines.join('\n') + '\n';
+  const rows = ranked.map((r, i) => [
+    String(i + 1), `${(r.cut.macFraction * 100).toFixed(1)}%`, `${r.cut.after.name || `#${r.cut.after.index}`} (${r.cut.after.op})`,
+    r.cut.clean ? 'clean' : `${r.cut.tensors.length} tensors`, tensors(r.cut), bytes(r.cut.handoverBytes),
+  ]);
+  return `${lines.join('\n')}\n\n${table(['rank', 'MACs before', 'after node', 'kind', 'crossing', 'handover'], rows)}\n` +
+    `\nsplit with: --cuts ${ranked.slice(0, 3).map((r) => r.cut.tensors.map((t) => t.name).join('+')).join(',')}\n`;
+}
+
+export function scanJson(plan: CutPlan, ranked: { cut: Cut; score: number }[]): string {
+  return toJson({
+    schema: SCAN_SCHEMA, model: plan.model.file ?? null, order: plan.order, cleanBy: plan.cleanBy,
+    nodes: plan.steps.length, macs: plan.totalMacs, exits: plan.exits, warnings: plan.warnings,
+    candidates: ranked.map((r, i) => ({ rank: i + 1, score: Number(r.score.toFixed(6)), cut: r.cut.tensors.map((t) => t.name).join('+'), ...r.cut })),
+  }) + '\n';
+}
+
+export function scanCommand(program: Command): void {
+  program.command('scan')
+    .description('find cut points: boundaries where one (clean) to three tensors cross')
+    .argument('<model>', 'ONNX model file')
+    .option('--top <n>', 'show the best N, spread evenly over the MACs')
+    .option('--json', 'machine-readable (schema offramp-scan/1)')
+    .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
+    .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
+    .option('-o, --out <file>', 'write to a file instead of stdout')
+    .action(async (file: string, o: { top?: string; json?: boolean; dim: string[]; batch: string; out?: string }) => {
+      const top = o.top === undefined ? undefined : Number(o.top);
+      if (top !== undefined && !(Number.isInteger(top) && top > 0)) throw usageError(`--top takes a positive whole number, not '${o.top}'`);
+      const plan = await scanModel(loadModel(file), { dims: parseDims(o.dim), batch: Number(o.batch) });
+      const ranked = rankCuts(plan.candidates, top ?? Math.min(3, plan.candidates.length));
+      const shown = top ? ranked.slice(0, top) : ranked;
+      emit(o.json ? scanJson(plan, shown) : scanText(plan, shown), o.out);
+    });
+}

@@ -1,0 +1,49 @@
+// `offramp split MODEL --cuts A,B -o DIR`: stage files and their manifest.
+import type { Command } from 'commander';
+import { loadModel } from '../graph/io.js';
+import { cutsAtFractions, resolveCut, scanModel } from '../cuts/scan.js';
+import { writeSplit } from '../split/manifest.js';
+import { bytes, si, table } from '../report/units.js';
+import { usageError } from '../errors.js';
+import { collect, emit, parseDims, splitList } from './common.js';
+
+function fractions(v: string): number[] {
+  return splitList(v).map((s) => {
+    const m = /^(\d+(?:\.\d+)?)%$/.exec(s);
+    const f = m ? Number(m[1]) / 100 : Number(s);
+    if (!(f > 0 && f < 1)) throw usageError(`--at takes MAC shares like 25%,50% (between 0 and 100%), not '${s}'`);
+    return f;
+  });
+}
+
+export function splitCommand(program: Command): void {
+  program.command('split')
+    .description('cut the model into stage-N.onnx files that run one after another, with manifest.json')
+    .argument('<model>', 'ONNX model file')
+    .option('--cuts <list>', "cut tensors, comma-separated; join the tensors of a multi-tensor cut with '+'")
+    .option('--at <list>', 'the clean cuts nearest these MAC shares, e.g. 25%,50%,75%')
+    .requiredOption('-o, --out <dir>', 'folder for the stage files and manifest.json')
+    .option('--json', 'print the manifest instead of a summary')
+    .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
+    .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
+    .action(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; dim: string[]; batch: string }) => {
+      if (!o.cuts === !o.at) throw usageError('give exactly one of --cuts and --at');
+      const plan = await scanModel(loadModel(file), { dims: parseDims(o.dim), batch: Number(o.batch) });
+      const cuts = o.cuts ? splitList(o.cuts).map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, fractions(o.at!));
+      const { manifest } = writeSplit(plan, cuts, o.out, file);
+      if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
+      const rows = manifest.stages.map((s) => [
+        s.file, String(s.nodes), si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`, bytes(s.weightBytes), bytes(s.peakActivationBytes),
+        s.cut.join('+') || '(model outputs)', s.cut.length ? bytes(s.handoverBytes) : '-', s.exits.join(',') || '-',
+      ]);
+      const lines = [
+        `split ${file} into ${manifest.stages.length} stages in ${o.out} (${manifest.order === 'block' ? 'block-keeping' : 'file'} order)`, '',
+        table(['stage', 'nodes', 'MACs', 'share', 'weights', 'peak act.', 'hands over', 'bytes', 'exits'], rows),
+      ];
+      if (manifest.sharedWeights.length) {
+        lines.push('', `shared weights copied into several stages (${bytes(manifest.sharedWeights.reduce((a, w) => a + w.bytes * (w.stages.length - 1), 0))} extra):`);
+        for (const w of manifest.sharedWeights) lines.push(`  ${w.name} (${bytes(w.bytes)}) in stages ${w.stages.join(', ')}`);
+      }
+      emit(lines.join('\n') + '\n');
+    });
+}

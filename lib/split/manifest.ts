@@ -1,0 +1,145 @@
+// Writing a split: stage-0.onnx … stage-K.onnx, then manifest.json (schema
+// offramp-manifest/1). Every file is written to a temp file and renamed; the
+// manifest goes last, so a manifest on disk always describes complete stages.
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
+import type { TensorType } from '../graph/ir.js';
+import { modelToProto } from '../graph/ir.js';
+import { encodeModel, PROTO_LIMIT } from '../onnx/codec.js';
+import { bytesFor, dtypeName } from '../onnx/dtype.js';
+import { tensorByteSize } from '../onnx/tensor.js';
+import { toJson } from '../report/units.js';
+import { writeAtomic } from '../util/atomic.js';
+import { OfframpError } from '../errors.js';
+import type { Cut, CutPlan } from '../cuts/scan.js';
+import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
+
+export const MANIFEST_SCHEMA = 'offramp-manifest/1';
+export const MANIFEST_FILE = 'manifest.json';
+
+/** A tensor as the split planned it (symbolic dims bound, e.g. the batch to 1). */
+export interface ManifestTensor {
+  name: string;
+  /** element type name: float32, int64, … */
+  dtype: string;
+  /** numbers, or a dim name where the planned shape was not concrete */
+  shape: (number | string)[];
+  /** storage size; 0 where the shape is not concrete */
+  bytes: number;
+}
+
+export interface ManifestStage {
+  index: number;
+  /** file name, relative to the manifest's folder */
+  file: string;
+  /** SHA-256 of that file, hex */
+  sha256: string;
+  /** nodes in the stage file (copied Constant nodes included) */
+  nodes: number;
+  /** in the stage file's input order; `from` is 'input' for a source-model input, else the stage that hands it over */
+  inputs: (ManifestTensor & { from: 'input' | number })[];
+  /** in the stage file's output order; `to` lists the later stages that read it; `modelOutput` marks source-model outputs */
+  outputs: (ManifestTensor & { to: number[]; modelOutput: boolean })[];
+  /** exit outputs this stage makes (exit heads in the source model); empty if none */
+  exits: string[];
+  /** the tensors crossing the boundary after this stage; empty for the last */
+  cut: string[];
+  macs: number;
+  /** this stage's share of the source model's MACs */
+  macFraction: number;
+  /** initializers and Constant values stored in the stage file */
+  weightBytes: number;
+  /** largest sum of live activations while the stage runs, its inputs and outputs included */
+  peakActivationBytes: number;
+  /** bytes of `cut`: what the next stage receives from this one and its predecessors */
+  handoverBytes: number;
+}
+
+export interface Manifest {
+  schema: typeof MANIFEST_SCHEMA;
+  source: {
+    /** the source model, relative to the manifest's folder ('/' separators) */
+    file: string;
+    sha256: string;
+  };
+  /** node order the cuts were placed in: the file's own, or the block-keeping one */
+  order: 'file' | 'block';
+  /** source-model inputs and outputs (exits included), in graph order */
+  inputs: ManifestTensor[];
+  outputs: ManifestTensor[];
+  stages: ManifestStage[];
+  /** weights copied into more than one stage file, by name */
+  sharedWeights: { name: string; bytes: number; stages: number[] }[];
+  totals: { macs: number; weightBytes: number; stageWeightBytes: number };
+}
+
+export interface SplitResult { manifest: Manifest; dir: string; files: string[]; stages: StagePlan[] }
+
+const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
+
+/** Split the plan's model at `cuts` into `dir`. `source` is the model file the plan was made from. */
+export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: string): SplitResult {
+  const m = plan.model;
+  const g = m.graph;
+  const stages = planStages(plan, cuts);
+  fs.mkdirSync(dir, { recursive: true });
+  const sourceReal = fs.realpathSync(source);
+  const typeOf = (name: string): TensorType | undefined => plan.shapes.values.get(name)?.type;
+  const tensor = (name: string): ManifestTensor => {
+    const t = typeOf(name) ?? g.inputs.concat(g.outputs).find((v) => v.name === name)?.type;
+    const shape = t?.shape ?? [];
+    const concrete = shape.every((d) => typeof d === 'number');
+    const init = g.initializers.get(name);
+    return {
+      name, dtype: t ? dtypeName(t.dtype) : init ? dtypeName(init.dataType ?? 0) : 'unknown', shape: [...shape],
+      bytes: t && t.shape && concrete ? Number(bytesFor(t.dtype, shape.reduce((a: bigint, d) => a * BigInt(d as number), 1n))) : 0,
+    };
+  };
+
+  const files: string[] = [];
+  const entries: ManifestStage[] = stages.map((s) => {
+    const file = `stage-${s.index}.onnx`;
+    const target = path.join(dir, file);
+    if (fs.existsSync(target) && fs.realpathSync(target) === sourceReal) throw new OfframpError('io', 'refusing to overwrite the source model', target);
+    const bytes = encodeModel(modelToProto(stageModel(m, stageGraph(g, s, typeOf), s, stages.length)));
+    if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
+    writeAtomic(target, bytes);
+    files.push(target);
+    return {
+      index: s.index, file, sha256: sha256(bytes), nodes: s.nodes.length,
+      inputs: s.inputs.map((i) => ({ ...tensor(i.name), from: i.from })),
+      outputs: s.outputs.map((o) => ({ ...tensor(o.name), to: o.to, modelOutput: o.modelOutput })),
+      exits: s.exits, cut: s.cut, macs: Number(s.macs),
+      macFraction: plan.totalMacs ? Number((s.macs * 1000000n) / plan.totalMacs) / 1e6 : 0,
+      weightBytes: Number(s.weightBytes), peakActivationBytes: Number(s.peakActivationBytes), handoverBytes: Number(s.handoverBytes),
+    };
+  });
+
+  const holders = new Map<string, number[]>();
+  for (const s of stages) {
+    const names = [...s.initializers, ...s.nodes.filter((i) => g.nodes[i].op === 'Constant' && !g.nodes[i].inputs.length).flatMap((i) => g.nodes[i].outputs)];
+    for (const n of names) { let l = holders.get(n); if (!l) holders.set(n, (l = [])); l.push(s.index); }
+  }
+  const weightBytes = (name: string) => { const init = g.initializers.get(name); return init ? Number(tensorByteSize(init)) : tensor(name).bytes; };
+  const sharedWeights = [...holders].filter(([, l]) => l.length > 1).sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0))
+    .map(([name, l]) => ({ name, bytes: weightBytes(name), stages: l }));
+  const sourceBytes = fs.readFileSync(source);
+  const manifest: Manifest = {
+    schema: MANIFEST_SCHEMA,
+    source: { file: path.relative(path.resolve(dir), path.resolve(source)).split(path.sep).join('/'), sha256: sha256(sourceBytes) },
+    order: plan.order,
+    inputs: g.inputs.filter((v) => !g.initializers.has(v.name)).map((v) => tensor(v.name)),
+    outputs: g.outputs.map((v) => tensor(v.name)),
+    stages: entries,
+    sharedWeights,
+    totals: {
+      macs: Number(plan.totalMacs),
+      weightBytes: Number([...g.initializers.values()].reduce((a, t) => a + tensorByteSize(t), 0n)),
+      stageWeightBytes: entries.reduce((a, e) => a + e.weightBytes, 0),
+    },
+  };
+  writeAtomic(path.join(dir, MANIFEST_FILE), toJson(manifest) + '\n');
+  files.push(path.join(dir, MANIFEST_FILE));
+  return { manifest, dir, files, stages };
+}
