@@ -24,13 +24,16 @@ export const UNARY: [string, bigint][] = [
   ['Selu', 4n], ['Celu', 4n], ['Gelu', 8n], ['Mish', 8n], ['Softplus', 4n], ['Softsign', 3n], ['ThresholdedRelu', 1n],
   ['Exp', 4n], ['Log', 4n], ['Sqrt', 2n], ['Erf', 8n], ['Reciprocal', 1n], ['Sin', 4n], ['Cos', 4n], ['Tan', 4n],
   ['Asin', 4n], ['Acos', 4n], ['Atan', 4n], ['Sinh', 4n], ['Cosh', 4n], ['Asinh', 4n], ['Acosh', 4n], ['Atanh', 4n],
-  ['IsNaN', 1n], ['IsInf', 1n], ['Shrink', 2n], ['BitwiseNot', 1n],
+  ['Shrink', 2n], ['BitwiseNot', 1n],
 ];
 const FOLDING: [string, (x: number) => number][] = [
   ['Neg', (x) => -x], ['Abs', Math.abs], ['Ceil', Math.ceil], ['Floor', Math.floor], ['Sign', Math.sign],
   ['Round', (x) => { const r = Math.round(x); return Math.abs(x % 1) === 0.5 && r % 2 !== 0 ? r - 1 : r; }],
   ['Not', (x) => (x ? 0 : 1)],
 ];
+
+// IsNaN/IsInf keep the shape but answer in bool.
+const test = (op: string): OpRule => ({ op, infer: (c) => [c.inputs[0] && known(BOOL, c.inputs[0].type.shape)], cost: perOutput(1n) });
 
 const binary = (op: string, fn?: (a: number, b: number) => number, outType?: number, opsPerElem = 1n): OpRule => ({
   op,
@@ -134,5 +137,6 @@ export const rules: OpRule[] = [
   cmp('LessOrEqual', (a, b) => +(a <= b)), cmp('GreaterOrEqual', (a, b) => +(a >= b)),
   variadic('Max', Math.max), variadic('Min', Math.min), variadic('Sum', (...v) => v.reduce((s, x) => s + x, 0)),
   variadic('Mean', (...v) => v.reduce((s, x) => s + x, 0) / v.length),
+  test('IsNaN'), test('IsInf'),
   where, clip, prelu, bitShift, modRule, identityLike('Identity'),
 ];
