@@ -104,7 +104,7 @@ export function tensorFromProto(t: TensorProto, file?: string): ort.Tensor {
     if (t.rawData?.length || t.dataLocation === 1) {
       const raw = t.rawData ?? new Uint8Array();
       if (raw.length !== n * C.BYTES_PER_ELEMENT) throw bad(`raw_data has ${raw.length} bytes, ${n * C.BYTES_PER_ELEMENT} expected`);
-      data = new C(raw.slice().buffer) as unknown as ort.Tensor['data'];
+      data = new C(Uint8Array.from(raw).buffer) as unknown as ort.Tensor['data'];
     } else {
       // Typed fields by type (onnx.proto3 comments): small ints, bool and float16 bits live in int32_data.
       const field = name === 'float32' ? t.floatData : name === 'float64' ? t.doubleData : name === 'int64' ? t.int64Data

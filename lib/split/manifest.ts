@@ -27,6 +27,8 @@ export interface ManifestTensor {
   shape: (number | string)[];
   /** storage size; 0 where the shape is not concrete */
   bytes: number;
+  /** present (true) where the shape was measured on one run: it may depend on input values, and stage files declare the rank only */
+  measured?: true;
 }
 
 export interface ManifestStage {
@@ -86,6 +88,12 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
   fs.mkdirSync(dir, { recursive: true });
   const sourceReal = fs.realpathSync(source);
   const typeOf = (name: string): TensorType | undefined => plan.shapes.values.get(name)?.type;
+  // A measured shape held for one run's inputs (zeros) and may depend on values (Range, NonZero):
+  // stage files declare its rank only, so other inputs are not refused.
+  const fileType = (name: string): TensorType | undefined => {
+    const v = plan.shapes.values.get(name);
+    return v?.source === 'measured' ? { dtype: v.type.dtype, shape: v.type.shape?.map((_, i) => `?${i}`) } : v?.type;
+  };
   const tensor = (name: string): ManifestTensor => {
     const t = typeOf(name) ?? g.inputs.concat(g.outputs).find((v) => v.name === name)?.type;
     const shape = t?.shape ?? [];
@@ -94,6 +102,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
     return {
       name, dtype: t ? dtypeName(t.dtype) : init ? dtypeName(init.dataType ?? 0) : 'unknown', shape: [...shape],
       bytes: t && t.shape && concrete ? Number(bytesFor(t.dtype, shape.reduce((a: bigint, d) => a * BigInt(d as number), 1n))) : 0,
+      ...(plan.shapes.values.get(name)?.source === 'measured' && { measured: true }),
     };
   };
 
@@ -102,7 +111,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
     const file = `stage-${s.index}.onnx`;
     const target = path.join(dir, file);
     if (fs.existsSync(target) && fs.realpathSync(target) === sourceReal) throw new OfframpError('io', 'refusing to overwrite the source model', target);
-    const bytes = encodeModel(modelToProto(stageModel(m, stageGraph(g, s, typeOf), s, stages.length)));
+    const bytes = encodeModel(modelToProto(stageModel(m, stageGraph(g, s, fileType), s, stages.length)));
     if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
     writeAtomic(target, bytes);
     files.push(target);
