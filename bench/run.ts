@@ -31,6 +31,12 @@ async function parent(): Promise<void> {
     line('whole `offramp cost --json` run', `${cli.totalMs.toFixed(1)} ms`, `target < 1000 ms: ratio ${(cli.totalMs / 1000).toFixed(2)}`);
     line('peak RSS of that run', `${(cli.maxRssBytes / 2 ** 20).toFixed(1)} MiB`, `target < 2× file: ratio ${(cli.maxRssBytes / size).toFixed(2)}`);
     line('MACs counted', `${parts.macs}`);
+    const chainRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'chain.js')], { encoding: 'utf8' });
+    if (chainRun.status !== 0) throw new Error(`bench chain failed: ${chainRun.stderr}`);
+    const ch = JSON.parse(chainRun.stdout);
+    console.log(`\nstaged chain (ResNet-18, ${ch.stages} stages, batch 1, ${ch.runs} interleaved runs, medians)`);
+    line('whole model', `${ch.wholeMs.toFixed(2)} ms`);
+    line('staged chain', `${ch.chainMs.toFixed(2)} ms`, `target ratio ≤ 1.10: ratio ${ch.ratio.toFixed(3)}`);
   } finally {
     fs.rmSync(dir, { recursive: true, force: true });
   }
