@@ -133,6 +133,14 @@ function scalarSize(t: Scalar, v: unknown): number {
   }
 }
 
+function packedLen(t: Scalar, xs: ArrayLike<unknown>): number {
+  const w = fixedWidth[t];
+  if (w) return w * xs.length;
+  let n = 0;
+  for (let i = 0; i < xs.length; i++) n += scalarSize(t, xs[i]);
+  return n;
+}
+
 /** Sizes of every nested message, in the order the writer meets them. */
 function sizeMsg(m: Msg, type: string, sizes: number[]): number {
   const idx = sizes.length;
@@ -155,9 +163,7 @@ function sizeMsg(m: Msg, type: string, sizes: number[]): number {
     const xs = v as ArrayLike<unknown>;
     if (xs.length === 0) continue;
     if (fd.packed) {
-      const w = fixedWidth[t];
-      let n = 0;
-      if (w) n = w * xs.length; else for (let i = 0; i < xs.length; i++) n += scalarSize(t, xs[i]);
+      const n = packedLen(t, xs);
       total += tagLen + varintSize(n) + n;
     } else {
       for (let i = 0; i < xs.length; i++) total += tagLen + scalarSize(t, xs[i]);
@@ -197,9 +203,7 @@ function writeMsg(w: Writer, m: Msg, type: string, sizes: number[], cursor: { i:
     const xs = v as ArrayLike<unknown>;
     if (xs.length === 0) continue;
     if (fd.packed) {
-      const fw = fixedWidth[t];
-      let n = 0;
-      if (fw) n = fw * xs.length; else for (let i = 0; i < xs.length; i++) n += scalarSize(t, xs[i]);
+      const n = packedLen(t, xs);
       w.tag(fd.no, Wire.Len);
       w.varint(n);
       for (let i = 0; i < xs.length; i++) writeScalar(w, t, xs[i]);
