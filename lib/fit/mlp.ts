@@ -4,6 +4,7 @@
 // standardisation is folded back into the first layer, so the head reads raw features.
 import { mulberry32 } from '../graph/build.js';
 import { allRows, heldOutSplit, type Features, type Targets } from './targets.js';
+import { moments } from './softmax.js';
 
 export interface MlpParams { d: number; h: number; k: number; W1: Float64Array; b1: Float64Array; W2: Float64Array; b2: Float64Array }
 
@@ -84,18 +85,8 @@ export interface MlpFitOptions {
 
 export interface MlpFit extends MlpParams { loss: number; heldOutLoss: number; epochs: number; split: { train: Int32Array; held: Int32Array } }
 
-/** Per-feature mean and standard deviation over the training rows (float64). */
-function moments(F: Features, rows: Int32Array): { mu: Float64Array; sd: Float64Array } {
-  const { X, d } = F, mu = new Float64Array(d), sd = new Float64Array(d);
-  for (const r of rows) for (let j = 0; j < d; j++) mu[j] += X[r * d + j];
-  for (let j = 0; j < d; j++) mu[j] /= Math.max(1, rows.length);
-  for (const r of rows) for (let j = 0; j < d; j++) { const t = X[r * d + j] - mu[j]; sd[j] += t * t; }
-  for (let j = 0; j < d; j++) { sd[j] = Math.sqrt(sd[j] / Math.max(1, rows.length)); if (!(sd[j] > 1e-12)) sd[j] = 1; }
-  return { mu, sd };
-}
-
 export function fitMlp(F: Features, T: Targets, hidden: number, o: MlpFitOptions = {}): MlpFit {
-  const l2 = o.l2 ?? 1e-4, seed = o.seed ?? 1, patience = o.patience ?? 10, epochs = o.epochs ?? 200, bs = o.batch ?? 128, lr = o.lr ?? 3e-3;
+  const l2 = o.l2 ?? 1e-5, seed = o.seed ?? 1, patience = o.patience ?? 10, epochs = o.epochs ?? 200, bs = o.batch ?? 128, lr = o.lr ?? 3e-3;
   const { n, d } = F, k = T.k, h = hidden;
   const split = o.heldOut === 0 ? { train: allRows(n), held: new Int32Array(0) } : heldOutSplit(n, o.heldOut ?? 0.1, seed);
   const { mu, sd } = moments(F, split.train);
@@ -148,7 +139,7 @@ export function fitMlp(F: Features, T: Targets, hidden: number, o: MlpFitOptions
 }
 
 /** Logits of an MLP head for every row. */
-export function mlpLogits(F: Features, p: MlpParams): Float64Array {
+export function mlpLogits(F: Features, p: { d: number; h: number; k: number; W1: ArrayLike<number>; b1: ArrayLike<number>; W2: ArrayLike<number>; b2: ArrayLike<number> }): Float64Array {
   const { X, n, d } = F, { h, k } = p, out = new Float64Array(n * k), a = new Float64Array(h);
   for (let i = 0; i < n; i++) {
     for (let u = 0; u < h; u++) {

@@ -66,7 +66,7 @@ export function softmaxObjective(F: Features, T: Targets, rows: Int32Array, thet
 }
 
 export interface FitOptions {
-  /** L2 strength on weights (default 1e-4) */
+  /** L2 strength on weights (default 1e-5) */
   l2?: number;
   seed?: number;
   /** share of rows held out for early stopping and scoring (default 0.1; 0: none) */
@@ -83,30 +83,66 @@ export interface LinearFit {
   /** held-out data loss at the returned parameters (NaN without held-out rows) */
   heldOutLoss: number;
   iterations: number;
+  reason: string;
   split: { train: Int32Array; held: Int32Array };
 }
 
 export function fitSoftmax(F: Features, T: Targets, o: FitOptions = {}): LinearFit {
-  const l2 = o.l2 ?? 1e-4, patience = o.patience ?? 20;
+  const l2 = o.l2 ?? 1e-5, patience = o.patience ?? 20;
   const split = o.heldOut === 0 ? { train: allRows(F.n), held: new Int32Array(0) } : heldOutSplit(F.n, o.heldOut ?? 0.1, o.seed ?? 1);
   const { d } = F, k = T.k;
+  // L-BFGS runs in standardised coordinates (W' = W·s, b' = b + W·μ): the same
+  // objective and minimiser, but pooled activations of very different scales no
+  // longer make it ill-conditioned.
+  const { mu, sd: sigma } = moments(F, split.train);
+  // Scale by sqrt(σ² + l2), not σ: a nearly dead channel (σ → 0) would otherwise get curvature l2/σ².
+  const sd = sigma.map((s) => Math.sqrt(s * s + l2));
+  const toRaw = (u: Float64Array) => {
+    const t = new Float64Array(u.length);
+    for (let c = 0; c < k; c++) {
+      let shift = 0;
+      for (let j = 0; j < d; j++) { const w = u[c * d + j] / sd[j]; t[c * d + j] = w; shift += w * mu[j]; }
+      t[k * d + c] = u[k * d + c] - shift;
+    }
+    return t;
+  };
+  const gRaw = new Float64Array(paramCount(d, k));
+  const objective = (u: Float64Array, g: Float64Array) => {
+    const f = softmaxObjective(F, T, split.train, toRaw(u), l2, gRaw);
+    for (let c = 0; c < k; c++) {
+      const gb = gRaw[k * d + c];
+      for (let j = 0; j < d; j++) g[c * d + j] = (gRaw[c * d + j] - gb * mu[j]) / sd[j];
+      g[k * d + c] = gb;
+    }
+    return f;
+  };
   // Zero start: the objective is convex, so the start only changes the path, and zeros need no seed.
-  const theta0 = new Float64Array(paramCount(d, k));
-  let best = { theta: theta0, held: split.held.length ? softmaxObjective(F, T, split.held, theta0, 0) : NaN, iter: 0 };
-  const res = lbfgs((x, g) => softmaxObjective(F, T, split.train, x, l2, g), theta0, {
+  const u0 = new Float64Array(paramCount(d, k));
+  let best = { theta: toRaw(u0), held: split.held.length ? softmaxObjective(F, T, split.held, toRaw(u0), 0) : NaN, iter: 0 };
+  const res = lbfgs(objective, u0, {
     maxIter: o.maxIter ?? 500,
-    onIter: split.held.length ? (iter, x) => {
-      const h = softmaxObjective(F, T, split.held, x, 0);
-      if (h < best.held) best = { theta: Float64Array.from(x), held: h, iter };
+    onIter: split.held.length ? (iter, u) => {
+      const theta = toRaw(u), h = softmaxObjective(F, T, split.held, theta, 0);
+      if (h < best.held) best = { theta, held: h, iter };
       return iter - best.iter >= patience;
     } : undefined,
   });
-  const theta = split.held.length ? best.theta : res.x;
+  const theta = split.held.length ? best.theta : toRaw(res.x);
   return {
     W: theta.slice(0, k * d), b: theta.slice(k * d), d, k,
     loss: softmaxObjective(F, T, split.train, theta, l2), heldOutLoss: best.held,
-    iterations: res.iterations, split,
+    iterations: res.iterations, split, reason: res.reason,
   };
+}
+
+/** Per-feature mean and standard deviation over `rows` (float64; a constant feature gets sd 1). */
+export function moments(F: Features, rows: Int32Array): { mu: Float64Array; sd: Float64Array } {
+  const { X, d } = F, mu = new Float64Array(d), sd = new Float64Array(d), m = Math.max(1, rows.length);
+  for (const r of rows) for (let j = 0; j < d; j++) mu[j] += X[r * d + j];
+  for (let j = 0; j < d; j++) mu[j] /= m;
+  for (const r of rows) for (let j = 0; j < d; j++) { const t = X[r * d + j] - mu[j]; sd[j] += t * t; }
+  for (let j = 0; j < d; j++) { sd[j] = Math.sqrt(sd[j] / m); if (!(sd[j] > 1e-12)) sd[j] = 1; }
+  return { mu, sd };
 }
 
 /** Logits of a linear head for every row (float64 parameters as given). */

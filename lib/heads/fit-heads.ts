@@ -1,0 +1,151 @@
+// The graft pipeline: resolve cuts, capture pooled features in one runtime pass,
+// fit a head per cut (backbone frozen), attach them. Deterministic for a seed.
+import type { Dim, Model } from '../graph/ir.js';
+import { topoOrder } from '../graph/links.js';
+import { mulberry32 } from '../graph/build.js';
+import { FLOAT, dtypeName } from '../onnx/dtype.js';
+import { completeShapes } from '../cost/analyze.js';
+import type { ShapeResult } from '../shapes/infer.js';
+import { OfframpError } from '../errors.js';
+import { fitSoftmax, linearLogits } from '../fit/softmax.js';
+import { fitMlp, mlpLogits } from '../fit/mlp.js';
+import { argmaxRows, labelTargets, matchRate, softTargets, type Features, type Targets } from '../fit/targets.js';
+import { axesFor, headName, type HeadKind, type Layout } from './spec.js';
+import { captureFeatures, type Batch } from './capture.js';
+import { graftHeads, type FittedHead, type HeadInput } from './graft.js';
+import type { Dense } from './nodes.js';
+
+/** Calibration inputs: a row count, the per-sample shape, and batches of at most `rows` rows. */
+export interface DataSource { rows: number; batches(rows: number): Iterable<Batch> }
+
+export interface GraftOptions {
+  /** cut value names (or node names: their first output) */
+  cuts: string[];
+  head: HeadKind;
+  layout?: Layout;
+  /** integer class labels, one per row; without them heads distil the final output */
+  labels?: ArrayLike<number>;
+  l2?: number;
+  /** softening of the final output for distillation (default 1) */
+  temperature?: number;
+  seed?: number;
+  /** share of rows held out for early stopping and scoring (default 0.1) */
+  heldOut?: number;
+  /** rows per runtime run when the input batch dim is free (default 64) */
+  batchRows?: number;
+  shapes?: ShapeResult;
+  progress?: (phase: 'capture' | 'fit', done: number, total: number) => void;
+}
+
+export interface GraftResult { model: Model; heads: FittedHead[] }
+
+const f32 = (a: ArrayLike<number>) => Float32Array.from(a);
+const concreteDims = (s: Dim[] | undefined): s is number[] => !!s && s.every((d) => typeof d === 'number');
+
+/** Model input, per-sample shape and final output of a single-input classifier. */
+export function classifierIO(model: Model & { file?: string }, shapes: ShapeResult) {
+  const g = model.graph, file = model.file;
+  const ins = g.inputs.filter((v) => !g.initializers.has(v.name));
+  if (ins.length !== 1) throw new OfframpError('graph', `heads need a model with one input, it has ${ins.length}`, file);
+  const declared = ins[0].type?.shape;
+  const bound = shapes.values.get(ins[0].name)?.type;
+  if (!bound?.shape || !concreteDims(bound.shape)) throw new OfframpError('shape', `input '${ins[0].name}' has no concrete shape; give symbolic dims with --dim`, file);
+  if (bound.dtype !== FLOAT) throw new OfframpError('graph', `input '${ins[0].name}' is ${dtypeName(bound.dtype)}; calibration data is fed as float32`, file);
+  const final = g.outputs[0];
+  const ft = shapes.values.get(final.name)?.type;
+  if (!ft?.shape || ft.shape.length !== 2 || typeof ft.shape[1] !== 'number' || ft.dtype !== FLOAT)
+    throw new OfframpError('graph', `the first output '${final.name}' must be float32 logits [batch, classes]`, file);
+  return {
+    input: ins[0].name, declared: declared ?? bound.shape, sample: bound.shape.slice(1), final: final.name, classes: ft.shape[1],
+    fixedBatch: typeof declared?.[0] === 'number' ? declared[0] : undefined, batch: (final.type?.shape?.[0] ?? 'N') as Dim,
+  };
+}
+
+/** Resolve cut names to values, in graph order. */
+export function resolveCuts(model: Model & { file?: string }, cuts: string[]): string[] {
+  const g = model.graph, order = topoOrder(g), stepOf = new Map(order.map((ni, s) => [ni, s]));
+  const out = cuts.map((c) => {
+    let ni = g.nodes.findIndex((n) => n.outputs.includes(c));
+    let name = c;
+    if (ni < 0) { ni = g.nodes.findIndex((n) => n.name === c); if (ni >= 0) name = g.nodes[ni].outputs[0]; }
+    if (ni < 0) throw new OfframpError('usage', `cut '${c}' names no value or node of the graph`, model.file);
+    return { name, step: stepOf.get(ni)! };
+  }).sort((a, b) => a.step - b.step);
+  for (let i = 1; i < out.length; i++) if (out[i].name === out[i - 1].name) throw new OfframpError('usage', `cut '${out[i].name}' is given twice`, model.file);
+  return out.map((c) => c.name);
+}
+
+/** Seeded random 1×1 projection of a conv head (He-uniform, zero bias): fixed, not fitted. */
+function randomProjection(cin: number, cout: number, seed: number): Dense {
+  const rnd = mulberry32(seed), lim = Math.sqrt(6 / cin);
+  return { out: cout, in: cin, W: Float32Array.from({ length: cout * cin }, () => (2 * rnd() - 1) * lim), b: new Float32Array(cout) };
+}
+
+export async function graftExits(model: Model & { file?: string }, data: DataSource, o: GraftOptions): Promise<GraftResult> {
+  const file = model.file, seed = o.seed ?? 1;
+  if (!o.cuts.length) throw new OfframpError('usage', 'no cuts given', file);
+  const shapes = o.shapes ?? (await completeShapes(model, { batch: 1 }));
+  const io = classifierIO(model, shapes);
+  const cuts = resolveCuts(model, o.cuts);
+  const inputs = cuts.map((cut, k): HeadInput & { width: number; spatial: number } => {
+    const t = shapes.values.get(cut)?.type;
+    if (!t?.shape || !concreteDims(t.shape)) throw new OfframpError('shape', `cut '${cut}' has no concrete shape`, file);
+    if (t.dtype !== FLOAT) throw new OfframpError('graph', `cut '${cut}' is ${dtypeName(t.dtype)}; heads read float32 tensors`, file);
+    const axes = axesFor(t.shape, o.layout, cut);
+    const cin = t.shape[axes.channel], spatial = axes.pool.reduce((a, i) => a * (t.shape![i] as number), 1);
+    const proj = o.head.kind === 'conv' ? randomProjection(cin, o.head.channels, (seed * 0x9e3779b1 + k) >>> 0) : undefined;
+    return { cut, rank: t.shape.length, axes, proj, width: proj ? proj.out : cin, spatial };
+  });
+
+  const total = data.rows;
+  const cap = await captureFeatures(model, inputs, io.classes, data.batches(io.fixedBatch ?? o.batchRows ?? 64), {
+    input: io.input, sample: io.sample, fixedBatch: io.fixedBatch, final: io.final, file,
+    onBatch: (done) => o.progress?.('capture', done, total),
+  });
+  const n = cap.n, k = io.classes;
+  let labels: Int32Array | undefined;
+  if (o.labels) {
+    if (o.labels.length !== n) throw new OfframpError('data', `${o.labels.length} labels for ${n} samples`, file);
+    labels = Int32Array.from(o.labels);
+    const bad = labels.findIndex((y) => !(y >= 0 && y < k));
+    if (bad >= 0) throw new OfframpError('data', `label ${labels[bad]} at row ${bad} is outside 0..${k - 1} (the model has ${k} classes)`, file);
+  }
+  const targets: Targets = labels ? labelTargets(labels, k) : softTargets(cap.final, n, k, o.temperature ?? 1);
+  const teacher = argmaxRows(cap.final, n, k);
+  const fitOpts = { l2: o.l2, seed, heldOut: o.heldOut };
+
+  const heads: FittedHead[] = inputs.map((h, e) => {
+    o.progress?.('fit', e, inputs.length);
+    const F: Features = cap.features[e];
+    let layers: Dense[], loss: number, split: { train: Int32Array; held: Int32Array };
+    if (o.head.kind === 'mlp') {
+      const f = fitMlp(F, targets, o.head.hidden, fitOpts);
+      layers = [{ out: f.h, in: f.d, W: f32(f.W1), b: f32(f.b1) }, { out: k, in: f.h, W: f32(f.W2), b: f32(f.b2) }];
+      ({ loss, split } = f);
+    } else {
+      const f = fitSoftmax(F, targets, fitOpts);
+      layers = [{ out: k, in: F.d, W: f32(f.W), b: f32(f.b) }];
+      ({ loss, split } = f);
+    }
+    // Scored with the float32 weights the graph will hold, on the held-out rows.
+    const logits = layers.length === 1
+      ? linearLogits(F, layers[0].W, layers[0].b, k)
+      : mlpLogits(F, { d: F.d, h: layers[0].out, k, W1: layers[0].W, b1: layers[0].b, W2: layers[1].W, b2: layers[1].b });
+    const pred = argmaxRows(logits, n, k);
+    const rows = split.held.length ? split.held : split.train;
+    const dense = (l: Dense) => ({ macs: l.in * l.out, params: l.in * l.out + l.out });
+    const parts = [...(h.proj ? [{ ...dense(h.proj), macs: h.proj.in * h.proj.out * h.spatial }] : []), ...layers.map(dense)];
+    const record = {
+      exit: e, output: `exit-${e}`, cut: h.cut, head: headName(o.head), layout: h.axes.layout, classes: k,
+      macs: parts.reduce((a, p) => a + p.macs, 0), params: parts.reduce((a, p) => a + p.params, 0),
+      fit: {
+        loss: Number(loss.toPrecision(8)),
+        ...(labels && { accuracy: matchRate(pred, labels, rows) }),
+        agreement: matchRate(pred, teacher, rows), samples: split.train.length, heldOut: split.held.length,
+      },
+    };
+    return { cut: h.cut, rank: h.rank, axes: h.axes, proj: h.proj, layers, record };
+  });
+  o.progress?.('fit', inputs.length, inputs.length);
+  return { model: graftHeads(model, heads, io.batch), heads };
+}
