@@ -23,7 +23,14 @@ export function emit(text: string, file?: string): void {
   else process.stdout.write(text);
 }
 
+/** Thrown after the report is out when a stage is over its budget: one line on stderr, exit 3. */
+export class OverBudget extends Error {}
+
 export function fail(e: unknown, debug: boolean): number {
+  if (e instanceof OverBudget) {
+    process.stderr.write(`offramp: ${e.message}\n`);
+    return EXIT.budget;
+  }
   if (e instanceof OfframpError) {
     process.stderr.write(`offramp: ${e.line()}\n`);
     if (debug) process.stderr.write(`${e.stack}\n`);

@@ -1,13 +1,24 @@
 // `offramp cost MODEL`: per-node and per-stage MACs, weights and activation memory.
 import type { Command } from 'commander';
-import { loadModel } from '../graph/io.js';
-import { analyzeModel } from '../cost/analyze.js';
+import { loadModel, saveModel } from '../graph/io.js';
+import { completeShapes } from '../cost/analyze.js';
+import { costModel } from '../cost/report.js';
+import { reorderModel, type MemoryOrder } from '../cost/reorder.js';
 import { costJson, costMarkdown, costText } from '../report/cost.js';
-import { collect, emit, parseDims, splitList } from './common.js';
+import { budgetMarkdown, budgetText, overLine, reorderMarkdown, reorderText, storedLabel } from '../report/budget.js';
+import { resolveTarget, BUILTIN_TARGETS } from '../target/target.js';
+import { budgetOf, type Budget } from '../target/budget.js';
+import { collect, emit, parseDims, splitList, OverBudget } from './common.js';
+
+interface CostFlags {
+  cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
+  target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string; int8MacsPerCycle?: string; int8?: boolean;
+  reorder?: boolean; saveReordered?: string;
+}
 
 export function costCommand(program: Command): void {
   program.command('cost')
-    .description('count MACs, weights and peak activation memory, per node and per stage')
+    .description('count MACs, weights and peak activation memory, per node and per stage; check them against a target')
     .argument('<model>', 'ONNX model file')
     .option('--cuts <values>', 'stage boundaries: comma-separated value (or node) names')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
@@ -16,9 +27,39 @@ export function costCommand(program: Command): void {
     .option('--md', 'Markdown report')
     .option('--no-nodes', 'leave out the per-node table')
     .option('-o, --out <file>', 'write the report to a file instead of stdout')
-    .action(async (file: string, o: { cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string }) => {
+    .option('--target <file|name>', `target profile: a JSON file or a built-in core class (${Object.keys(BUILTIN_TARGETS).join(', ')}; rough figures)`)
+    .option('--flash <bytes>', 'flash for weights (K/KiB = 1024, M/MiB = 1024²; 0x hex)')
+    .option('--ram <bytes>', 'RAM for activations and handover buffers')
+    .option('--clock-mhz <f>', 'core clock in MHz')
+    .option('--macs-per-cycle <r>', 'sustained MACs per cycle on the stored (float32) model')
+    .option('--int8-macs-per-cycle <r>', 'sustained MACs per cycle for the int8 projection (default: --macs-per-cycle)')
+    .option('--int8', 'judge the budget (and the exit code) on the int8 projection instead of the model as stored')
+    .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
+    .option('--save-reordered <file>', 'with --reorder: write the reordered model')
+    .action(async (file: string, o: CostFlags) => {
+      // Target options are checked before the model is read, so a typo fails fast.
+      const target = resolveTarget(o);
       const model = loadModel(file);
-      const report = await analyzeModel(model, { cuts: splitList(o.cuts), dims: parseDims(o.dim), batch: Number(o.batch) });
-      emit(o.json ? costJson(report) : o.md ? costMarkdown(report, { nodes: o.nodes }) : costText(report, { nodes: o.nodes }), o.out);
+      const opts = { cuts: splitList(o.cuts), dims: parseDims(o.dim), batch: Number(o.batch) };
+      const shapes = await completeShapes(model, opts);
+      let report = costModel(model, { ...opts, shapes });
+      let costed = model, reorder: MemoryOrder | undefined;
+      if (o.reorder || o.saveReordered) {
+        const r = reorderModel(model, report);
+        costed = r.model; reorder = r.order;
+        report = costModel(costed, { ...opts, shapes: { ...shapes, order: costed.graph.nodes.map((_, i) => i) } });
+        if (o.saveReordered) saveModel(costed, o.saveReordered);
+      }
+      const budget: Budget | undefined = target && budgetOf(costed, report, target, o.int8 ? 'int8' : 'stored');
+      const label = storedLabel(report);
+      const extra = { ...(budget && { budget }), ...(reorder && { reorder }) };
+      const text = o.json ? costJson(report, extra)
+        : o.md ? [costMarkdown(report, { nodes: o.nodes }), reorder && reorderMarkdown(reorder), budget && budgetMarkdown(budget, label)].filter(Boolean).join('\n')
+        : [costText(report, { nodes: o.nodes }), reorder && reorderText(reorder), budget && budgetText(budget, label)].filter(Boolean).join('\n');
+      emit(text, o.out);
+      if (budget && !budget.fits) {
+        const more = budget.over.length > 1 ? ` (and ${budget.over.length - 1} more)` : '';
+        throw new OverBudget(`over budget: ${overLine(budget.over[0], label)}${more}`);
+      }
     });
 }

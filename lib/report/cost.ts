@@ -4,8 +4,9 @@ import { si, bytes, table, mdTable, toJson } from './units.js';
 
 export const COST_SCHEMA = 'offramp-cost/1';
 
-export function costJson(r: CostReport): string {
-  return toJson({ schema: COST_SCHEMA, ...r }) + '\n';
+/** `extra` adds sections after the report's own fields (budget, reorder). */
+export function costJson(r: CostReport, extra: Record<string, unknown> = {}): string {
+  return toJson({ schema: COST_SCHEMA, ...r, ...extra }) + '\n';
 }
 
 const shape = (s: number[]) => `[${s.join('×')}]`;

@@ -1,0 +1,97 @@
+// Budgets and the memory-aware order for people (text, Markdown); JSON takes the
+// objects as they are (fields "budget" and "reorder" of the cost report).
+import type { CostReport } from '../cost/report.js';
+import type { MemoryOrder } from '../cost/reorder.js';
+import type { Budget, Fit, Over, Precision, StageCheck } from '../target/budget.js';
+import { bytes, mdTable, si, table } from './units.js';
+
+/** What the stored figures are: "float32" when every weight is, else "as stored". */
+export function storedLabel(r: CostReport): string {
+  const types = Object.keys(r.model.paramBytesByType);
+  return types.length === 1 && types[0] === 'float32' ? 'float32' : 'as stored';
+}
+
+/** 1234567n ns → "1.23 ms". */
+export function duration(ns: bigint): string {
+  const x = Number(ns);
+  if (x >= 1e9) return `${(x / 1e9).toPrecision(3)} s`;
+  if (x >= 1e6) return `${(x / 1e6).toPrecision(3)} ms`;
+  if (x >= 1e3) return `${(x / 1e3).toPrecision(3)} µs`;
+  return `${x} ns`;
+}
+
+const pct = (p: number) => `${p >= 0 ? '+' : ''}${p.toFixed(2)}%`;
+const margin = (f: Fit) => `${f.margin >= 0n ? '+' : ''}${bytes(f.margin)} (${pct(f.marginPercent)})`;
+const verdict = (c: { flash: Fit; ram: Fit }) => {
+  const over = [!c.flash.fits && 'flash', !c.ram.fits && 'RAM'].filter(Boolean);
+  return over.length ? `OVER ${over.join('+')}` : 'fits';
+};
+
+const HEAD = ['stage', 'ends at', 'as', 'MACs', 'weights', 'flash margin', 'peak act.', 'handover', 'RAM need', 'RAM margin', 'latency', 'to exit', 'verdict'];
+function rows(b: Budget, label: string): string[][] {
+  const name = (p: Precision) => (p === 'stored' ? label : 'int8') + (p === b.gate ? ' *' : '');
+  const out: string[][] = [];
+  for (const s of b.stages) for (const p of ['stored', 'int8'] as const) {
+    const c: StageCheck = s[p];
+    const firstRow = p === 'stored';
+    out.push([
+      firstRow ? String(s.index) : '', firstRow ? s.cut || '(model outputs)' : '', name(p), firstRow ? si(s.macs) : '',
+      bytes(c.weightBytes), margin(c.flash), bytes(c.peakBytes), bytes(c.handoverBytes), bytes(c.ram.need), margin(c.ram),
+      duration(c.latencyNs), duration(c.cumulativeNs), verdict(c),
+    ]);
+  }
+  if (b.stages.length > 1) for (const p of ['stored', 'int8'] as const) {
+    const a = b.all[p];
+    out.push([p === 'stored' ? 'all' : '', '', name(p), '', bytes(a.flash.need), margin(a.flash), '', '', bytes(a.ram.need), margin(a.ram),
+      duration(b.stages[b.stages.length - 1][p].cumulativeNs), '', verdict(a)]);
+  }
+  return out;
+}
+
+const rate = (x: number) => `${x} MAC/cycle`;
+function targetLine(b: Budget): string {
+  const t = b.target;
+  return `${t.name}: flash ${bytes(t.flashBytes)}, RAM ${bytes(t.ramBytes)}, ${t.clockMhz} MHz, ${rate(t.macsPerCycle)}`
+    + (t.int8MacsPerCycle !== t.macsPerCycle ? ` (int8 ${rate(t.int8MacsPerCycle)})` : '')
+    + (t.rough ? ' — ROUGH FIGURES, FROM MEMORY: give your part\'s own' : '');
+}
+
+export function overLine(o: Over, label: string): string {
+  const where = o.stage === 'all' ? 'all stages together' : `stage ${o.stage}${o.cut ? ` (ends at '${o.cut}')` : ''}`;
+  return `${where}: ${o.resource === "ram" ? "RAM" : "flash"} needs ${bytes(o.need)} of ${bytes(o.limit)} (${o.precision === 'stored' ? label : 'int8'}), over by ${bytes(-o.margin)} (${(-o.marginPercent).toFixed(2)}%)`;
+}
+
+function verdictLines(b: Budget, label: string): string[] {
+  const gate = b.gate === 'stored' ? label : 'int8';
+  if (b.fits) return [`verdict    every stage fits (judged on ${gate}, marked *)`];
+  return [`verdict    OVER BUDGET (judged on ${gate}, marked *)`, ...b.over.map((o) => `  over     ${overLine(o, label)}`)];
+}
+
+export function budgetText(b: Budget, label = 'as stored'): string {
+  return [
+    `target     ${targetLine(b)}`,
+    table(HEAD, rows(b, label)),
+    verdictLines(b, label).join('\n'),
+    b.conventions.map((c, i) => `${i ? '          ' : 'figures   '} ${c}`).join('\n'),
+  ].join('\n\n') + '\n';
+}
+
+export function budgetMarkdown(b: Budget, label = 'as stored'): string {
+  return [
+    '### Budget', `- **target** ${targetLine(b)}`, mdTable(HEAD, rows(b, label)),
+    verdictLines(b, label).map((l) => `- ${l.trim().replace(/^(verdict|over)\s+/, '**$1** ')}`).join('\n'),
+    b.conventions.map((c) => `- ${c}`).join('\n'),
+  ].join('\n\n') + '\n';
+}
+
+const change = (a: bigint, b: bigint) => (a ? `${(Number(((b - a) * 10000n) / a) / 100).toFixed(2)}%` : '-');
+const ORDER_HEAD = ['stage', 'steps', 'peak before', 'peak after', 'change', 'method', 'moved'];
+const orderRows = (o: MemoryOrder) => o.stages.map((s) => [String(s.index), `${s.first}–${s.last}`, bytes(s.before), bytes(s.after), change(s.before, s.after), s.method, String(s.moved)]);
+const orderLine = (o: MemoryOrder) => `peak activation ${bytes(o.before)} → ${bytes(o.after)} (${change(o.before, o.after)}) by reordering nodes within stages`;
+
+export function reorderText(o: MemoryOrder): string {
+  return `reorder    ${orderLine(o)}\n\n${table(ORDER_HEAD, orderRows(o))}\n`;
+}
+export function reorderMarkdown(o: MemoryOrder): string {
+  return `### Memory-aware order\n\n- ${orderLine(o)}\n\n${mdTable(ORDER_HEAD, orderRows(o))}\n`;
+}
