@@ -1,6 +1,7 @@
 // The command line: thin commands over the library.
 import { Command, CommanderError } from 'commander';
 import { costCommand } from './cost.js';
+import { graftCommand } from './graft.js';
 import { scanCommand } from './scan.js';
 import { splitCommand } from './split.js';
 import { checkCommand } from './check.js';
@@ -16,6 +17,7 @@ export async function main(argv: string[]): Promise<number> {
     .exitOverride()
     .configureOutput({ writeErr: (s) => process.stderr.write(s) });
   costCommand(program);
+  graftCommand(program);
   scanCommand(program);
   splitCommand(program);
   checkCommand(program);

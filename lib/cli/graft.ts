@@ -1,0 +1,99 @@
+// `offramp graft MODEL (--cuts A,B | --at 25%,50%) --data X.npy [--labels y.npy] --head linear -o OUT.onnx`:
+// fit exit heads on calibration data (backbone frozen) and attach them as exit-N outputs.
+import type { Command } from 'commander';
+import { loadModel, saveModel } from '../graph/io.js';
+import { completeShapes } from '../cost/analyze.js';
+import { planCuts, cutsAtFractions } from '../cuts/scan.js';
+import { graftExits, classifierIO, type GraftResult } from '../heads/fit-heads.js';
+import { parseHead, parseLayout } from '../heads/spec.js';
+import { dataSource, readLabels } from '../heads/sources.js';
+import { si, table, toJson } from '../report/units.js';
+import { usageError } from '../errors.js';
+import { collect, emit, parseDims, splitList } from './common.js';
+
+export const GRAFT_SCHEMA = 'offramp-graft/1';
+
+interface GraftCliOptions {
+  cuts?: string; at?: string; data: string; labels?: string; head: string; out: string;
+  seed: string; l2: string; temperature: string; layout?: string; heldOut: string; dim: string[]; json?: boolean;
+}
+
+const num = (v: string, what: string, ok: (x: number) => boolean) => {
+  const x = Number(v);
+  if (!Number.isFinite(x) || !ok(x)) throw usageError(`${what} takes a number${what === '--seed' ? ' (a whole number ≥ 0)' : ''}, not '${v}'`);
+  return x;
+};
+
+export function parseFractions(v: string): number[] {
+  return splitList(v).map((s) => {
+    const m = /^(\d+(?:\.\d+)?)(%?)$/.exec(s);
+    const f = m ? Number(m[1]) / (m[2] ? 100 : 1) : NaN;
+    if (!(f > 0 && f < 1)) throw usageError(`--at takes MAC fractions between 0 and 1 (0.25 or 25%), not '${s}'`);
+    return f;
+  });
+}
+
+const pct = (x: number | undefined) => (x === undefined || Number.isNaN(x) ? '-' : `${(100 * x).toFixed(1)}%`);
+
+export function graftText(r: GraftResult, out: string): string {
+  const rows = r.heads.map((h) => {
+    const e = h.record;
+    return [e.output, e.cut, e.head, si(e.macs), si(e.params), pct(e.fit.accuracy), pct(e.fit.agreement), e.fit.loss.toPrecision(4), `${e.fit.samples}/${e.fit.heldOut}`];
+  });
+  return `${table(['exit', 'cut', 'head', 'MACs', 'params', 'accuracy', 'agreement', 'loss', 'fit/held'], rows)}\n`
+    + `accuracy and agreement (with the final output) on the held-out rows; wrote ${out}\n`;
+}
+
+export function graftJson(r: GraftResult, out: string): string {
+  return `${toJson({ schema: GRAFT_SCHEMA, out, exits: r.heads.map((h) => h.record) })}\n`;
+}
+
+function progressBar(enabled: boolean) {
+  if (!enabled) return undefined;
+  let last = '';
+  return (phase: string, done: number, total: number) => {
+    const w = 30, f = total ? Math.min(1, done / total) : 1;
+    const line = `${phase.padEnd(7)} [${'#'.repeat(Math.round(f * w)).padEnd(w)}] ${done}/${total}`;
+    if (line === last) return;
+    last = line;
+    process.stderr.write(`\r${line}${done >= total ? '\n' : ''}`);
+  };
+}
+
+export function graftCommand(program: Command): void {
+  program.command('graft')
+    .description('fit exit heads on calibration data and attach them as outputs exit-0, exit-1, …')
+    .argument('<model>', 'ONNX classifier (first output: logits)')
+    .option('--cuts <values>', 'cut tensors: comma-separated value (or node) names')
+    .option('--at <fractions>', 'nearest clean cuts to these MAC fractions, e.g. 25%,50%')
+    .requiredOption('--data <file>', 'calibration inputs: .npy [N, …] or a folder of test_data_set_*/input_0.pb')
+    .option('--labels <file>', 'integer labels .npy [N]; without them heads distil the final output')
+    .option('--head <kind>', 'linear, mlp:H or conv:C', 'linear')
+    .requiredOption('-o, --out <file>', 'grafted model to write')
+    .option('--seed <n>', 'seed of the held-out split and of any random initialisation', '1')
+    .option('--l2 <x>', 'L2 strength on head weights (mean loss + l2/2·‖W‖²)', '1e-5')
+    .option('--temperature <t>', 'softening of the final output when distilling', '1')
+    .option('--layout <layout>', 'cut tensor layout: NCHW, NHWC, NCL or NTD (default by rank: 4 → NCHW, 3 → NCL)')
+    .option('--held-out <share>', 'share of rows held out for early stopping and scoring', '0.1')
+    .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
+    .option('--json', `machine-readable report (schema ${GRAFT_SCHEMA})`)
+    .action(async (file: string, o: GraftCliOptions) => {
+      if (!o.cuts === !o.at) throw usageError('give exactly one of --cuts and --at');
+      const head = parseHead(o.head), layout = o.layout ? parseLayout(o.layout) : undefined;
+      const seed = num(o.seed, '--seed', (x) => Number.isInteger(x) && x >= 0 && x < 2 ** 32);
+      const l2 = num(o.l2, '--l2', (x) => x >= 0), temperature = num(o.temperature, '--temperature', (x) => x > 0);
+      const heldOut = num(o.heldOut, '--held-out', (x) => x >= 0 && x < 1);
+      const model = loadModel(file);
+      const shapes = await completeShapes(model, { dims: parseDims(o.dim), batch: 1 });
+      const cuts = o.cuts ? splitList(o.cuts) : cutsAtFractions(planCuts(model, shapes), parseFractions(o.at!)).map((c) => c.tensors[0].name);
+      const io = classifierIO(model, shapes);
+      const data = dataSource(o.data, io.declared, io.sample);
+      const labels = o.labels ? readLabels(o.labels) : undefined;
+      const r = await graftExits(model, data, {
+        cuts, head, layout, labels, l2, temperature, seed, heldOut, shapes,
+        progress: progressBar(!!process.stderr.isTTY && !o.json),
+      });
+      saveModel(r.model, o.out);
+      emit(o.json ? graftJson(r, o.out) : graftText(r, o.out));
+    });
+}
