@@ -26,7 +26,7 @@ export function scanText(plan: CutPlan, ranked: { cut: Cut; score: number }[]): 
     r.cut.clean ? 'clean' : `${r.cut.tensors.length} tensors`, tensors(r.cut), bytes(r.cut.handoverBytes),
   ]);
   return `${lines.join('\n')}\n\n${table(['rank', 'MACs before', 'after node', 'kind', 'crossing', 'handover'], rows)}\n` +
-    `\nsplit with: --cuts ${ranked.slice(0, 3).map((r) => r.cut.tensors.map((t) => t.name).join('+')).join(',')}\n`;
+    `\nsplit with: --cuts ${ranked.slice(0, 3).sort((a, b) => a.cut.step - b.cut.step).map((r) => r.cut.tensors.map((t) => t.name).join('+')).join(',')}\n`;
 }
 
 export function scanJson(plan: CutPlan, ranked: { cut: Cut; score: number }[]): string {

@@ -170,9 +170,14 @@ export function cutsAtFractions(plan: CutPlan, fractions: number[]): Cut[] {
   const clean = plan.candidates.filter((c) => c.clean);
   if (!clean.length) throw new OfframpError('usage', 'the model has no clean cut (no boundary with a single crossing tensor)', plan.model.file);
   const picked = new Map<number, Cut>();
+  // Cuts at the same MAC share are the same point of the computation: take the smallest handover there.
+  const better = (c: Cut, best: Cut, f: number) => {
+    const d = Math.abs(c.macFraction - f) - Math.abs(best.macFraction - f);
+    return d < -1e-12 || (Math.abs(d) <= 1e-12 && c.handoverBytes < best.handoverBytes);
+  };
   for (const f of fractions) {
     let best = clean[0];
-    for (const c of clean) if (Math.abs(c.macFraction - f) < Math.abs(best.macFraction - f)) best = c;
+    for (const c of clean) if (better(c, best, f)) best = c;
     picked.set(best.step, best);
   }
   return [...picked.values()].sort((a, b) => a.step - b.step);
@@ -194,10 +199,17 @@ export function rankCuts(cuts: Cut[], n: number): { cut: Cut; score: number }[] 
   // Greedy by target, so the top N spread out instead of crowding the best target.
   const out: typeof scored = [];
   const left = [...scored];
+  // A cut at the MAC share of one already taken, or with (nearly) no MACs on one side,
+  // would make a stage that saves nothing: such cuts only follow in the tail.
+  const useful = (c: Cut) => c.macFraction > 0.005 && c.macFraction < 0.995 && !out.some((o) => Math.abs(o.cut.macFraction - c.macFraction) < 1e-9);
   for (const t of targets) {
-    if (!left.length) break;
-    let bi = 0, bs = Infinity;
-    left.forEach((s, i) => { const v = Math.abs(s.cut.macFraction - t) + 0.25 * Number(s.cut.handoverBytes) / Number(maxBytes) + 0.1 * (s.cut.tensors.length - 1); if (v < bs) { bs = v; bi = i; } });
+    let bi = -1, bs = Infinity;
+    left.forEach((s, i) => {
+      if (!useful(s.cut)) return;
+      const v = Math.abs(s.cut.macFraction - t) + 0.25 * Number(s.cut.handoverBytes) / Number(maxBytes) + 0.1 * (s.cut.tensors.length - 1);
+      if (v < bs) { bs = v; bi = i; }
+    });
+    if (bi < 0) break;
     out.push(left.splice(bi, 1)[0]);
   }
   left.sort((a, b) => a.score - b.score || a.cut.step - b.cut.step);
