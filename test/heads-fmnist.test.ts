@@ -59,4 +59,12 @@ describe.skipIf(!have)('exit heads on the Fashion-MNIST CNN', () => {
     expect(acc[0]).toBeGreaterThan(0.4);
     for (let k = 1; k < acc.length - 1; k++) expect(acc[k]).toBeGreaterThan(acc[k - 1]);
   });
+
+  it('without labels: MLP heads distilled from the final output agree with it more with depth', async () => {
+    const { heads } = await graftExits(loadModel(MODEL), memory(train!.data, per, N), { cuts, head: parseHead('mlp:32'), temperature: 2, seed: 1 });
+    const agree = heads.map((h) => h.record.fit.agreement);
+    console.log(`distilled mlp:32 held-out agreement per exit: ${agree.map((a) => a.toFixed(4)).join(', ')}; params ${heads.map((h) => h.record.params).join(', ')}`);
+    expect(agree[0]).toBeGreaterThan(0.5);
+    for (let k = 1; k < agree.length; k++) expect(agree[k]).toBeGreaterThan(agree[k - 1]);
+  });
 });
