@@ -3,6 +3,7 @@ import type { Command } from 'commander';
 import { loadModel } from '../graph/io.js';
 import { cutsAtFractions, resolveCut, scanModel } from '../cuts/scan.js';
 import { writeSplit } from '../split/manifest.js';
+import { exitCuts } from '../cuts/exits.js';
 import { bytes, si, table } from '../report/units.js';
 import { usageError } from '../errors.js';
 import { collect, emit, parseDims, splitList } from './common.js';
@@ -20,16 +21,20 @@ export function splitCommand(program: Command): void {
   program.command('split')
     .description('cut the model into stage-N.onnx files that run one after another, with manifest.json')
     .argument('<model>', 'ONNX model file')
-    .option('--cuts <list>', "cut tensors, comma-separated; join the tensors of a multi-tensor cut with '+'")
+    .option('--cuts <list>', "cut tensors, comma-separated; join the tensors of a multi-tensor cut with '+' (default for a grafted model: its exits' cuts)")
     .option('--at <list>', 'the clean cuts nearest these MAC shares, e.g. 25%,50%,75%')
     .requiredOption('-o, --out <dir>', 'folder for the stage files and manifest.json')
     .option('--json', 'print the manifest instead of a summary')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
     .action(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; dim: string[]; batch: string }) => {
-      if (!o.cuts === !o.at) throw usageError('give exactly one of --cuts and --at');
-      const plan = await scanModel(loadModel(file), { dims: parseDims(o.dim), batch: Number(o.batch) });
-      const cuts = o.cuts ? splitList(o.cuts).map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, fractions(o.at!));
+      if (o.cuts && o.at) throw usageError('give one of --cuts and --at, not both');
+      const model = loadModel(file);
+      // A grafted model already says where its stages end: one exit per stage.
+      const atExits = !o.cuts && !o.at ? exitCuts(model) : [];
+      if (!o.cuts && !o.at && !atExits.length) throw usageError('give --cuts or --at (the model has no exit heads to cut at)');
+      const plan = await scanModel(model, { dims: parseDims(o.dim), batch: Number(o.batch) });
+      const cuts = o.cuts || atExits.length ? [...(o.cuts ? splitList(o.cuts) : atExits)].map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, fractions(o.at!));
       const { manifest } = writeSplit(plan, cuts, o.out, file);
       if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
       const rows = manifest.stages.map((s) => [

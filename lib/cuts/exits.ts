@@ -24,3 +24,14 @@ export function exitOutputs(model: Model): string[] {
   }
   return outs.filter((o) => named.has(o));
 }
+
+/** The cut value each exit reads, in exit order, from the "offramp.exits" metadata ([] if none). */
+export function exitCuts(model: Model): string[] {
+  const raw = model.proto.metadataProps?.find((p) => p.key === EXITS_KEY)?.value;
+  if (!raw) return [];
+  try {
+    const j = JSON.parse(raw) as { exit?: number; cut?: unknown }[];
+    if (!Array.isArray(j)) return [];
+    return j.filter((e) => typeof e?.cut === 'string').sort((a, b) => (a.exit ?? 0) - (b.exit ?? 0)).map((e) => e.cut as string);
+  } catch { return []; }
+}
