@@ -56,9 +56,12 @@ function targetLine(b: Budget): string {
     + (t.rough ? ' — ROUGH FIGURES, FROM MEMORY: give your part\'s own' : '');
 }
 
+/** Exact bytes beside the rounded figure, for the lines a CI log shows. */
+const exactly = (v: bigint) => (v >= 1024n || v <= -1024n ? `${bytes(v)} (${v} B)` : bytes(v));
+
 export function overLine(o: Over, label: string): string {
   const where = o.stage === 'all' ? 'all stages together' : `stage ${o.stage}${o.cut ? ` (ends at '${o.cut}')` : ''}`;
-  return `${where}: ${o.resource === "ram" ? "RAM" : "flash"} needs ${bytes(o.need)} of ${bytes(o.limit)} (${o.precision === 'stored' ? label : 'int8'}), over by ${bytes(-o.margin)} (${(-o.marginPercent).toFixed(2)}%)`;
+  return `${where}: ${o.resource === "ram" ? "RAM" : "flash"} needs ${exactly(o.need)} of ${exactly(o.limit)} (${o.precision === 'stored' ? label : 'int8'}), over by ${exactly(-o.margin)} (${(-o.marginPercent).toFixed(2)}%)`;
 }
 
 function verdictLines(b: Budget, label: string): string[] {
