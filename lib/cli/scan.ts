@@ -26,7 +26,18 @@ export function scanText(plan: CutPlan, ranked: { cut: Cut; score: number }[]): 
     r.cut.clean ? 'clean' : `${r.cut.tensors.length} tensors`, tensors(r.cut), bytes(r.cut.handoverBytes),
   ]);
   return `${lines.join('\n')}\n\n${table(['rank', 'MACs before', 'after node', 'kind', 'crossing', 'handover'], rows)}\n` +
-    `\nsplit with: --cuts ${ranked.slice(0, 3).sort((a, b) => a.cut.step - b.cut.step).map((r) => r.cut.tensors.map((t) => t.name).join('+')).join(',')}\n`;
+    `\nsplit with: --cuts ${suggested(ranked).map((c) => c.tensors.map((t) => t.name).join('+')).join(',')}\n`;
+}
+
+/** Up to three of the best cuts that each leave work on both sides, at distinct MAC shares, in graph order. */
+function suggested(ranked: { cut: Cut }[]): Cut[] {
+  const out: Cut[] = [];
+  for (const { cut } of ranked) {
+    if (out.length === 3) break;
+    if (cut.macFraction <= 0.005 || cut.macFraction >= 0.995 || out.some((c) => Math.abs(c.macFraction - cut.macFraction) < 1e-9)) continue;
+    out.push(cut);
+  }
+  return out.sort((a, b) => a.step - b.step);
 }
 
 export function scanJson(plan: CutPlan, ranked: { cut: Cut; score: number }[]): string {

@@ -173,7 +173,8 @@ export function cutsAtFractions(plan: CutPlan, fractions: number[]): Cut[] {
   // Cuts at the same MAC share are the same point of the computation: take the smallest handover there.
   const better = (c: Cut, best: Cut, f: number) => {
     const d = Math.abs(c.macFraction - f) - Math.abs(best.macFraction - f);
-    return d < -1e-12 || (Math.abs(d) <= 1e-12 && c.handoverBytes < best.handoverBytes);
+    // On a full tie the later boundary wins: after an activation or a pooling, the features a head reads are better.
+    return d < -1e-12 || (Math.abs(d) <= 1e-12 && (c.handoverBytes < best.handoverBytes || (c.handoverBytes === best.handoverBytes && c.step > best.step)));
   };
   for (const f of fractions) {
     let best = clean[0];
@@ -207,7 +208,7 @@ export function rankCuts(cuts: Cut[], n: number): { cut: Cut; score: number }[] 
     left.forEach((s, i) => {
       if (!useful(s.cut)) return;
       const v = Math.abs(s.cut.macFraction - t) + 0.25 * Number(s.cut.handoverBytes) / Number(maxBytes) + 0.1 * (s.cut.tensors.length - 1);
-      if (v < bs) { bs = v; bi = i; }
+      if (v < bs - 1e-12 || (Math.abs(v - bs) <= 1e-12 && s.cut.step > left[bi].cut.step)) { bs = v; bi = i; }
     });
     if (bi < 0) break;
     out.push(left.splice(bi, 1)[0]);
