@@ -102,6 +102,22 @@ describe('stage footprints (hand-computed)', () => {
     // The stored figures agree with the cost report's own.
     r.stages.forEach((s, k) => { expect(f[k].stored.weightBytes).toBe(s.paramBytes); expect(f[k].stored.peakBytes).toBe(s.peakActivationBytes); });
   });
+  it('a value passing through a stage waits in a handover buffer, counted once, not in the stage', () => {
+    // a = Relu(x), a2 = Sigmoid(a) | b = Relu(a2) | y = Add(a, b); every tensor [1,100] float32 = 400 B.
+    // a is made in stage 0 and read in stage 2 only: it passes through stage 1.
+    const m = model([
+      node('Relu', ['x'], ['a']), node('Sigmoid', ['a'], ['a2']), node('Relu', ['a2'], ['b']), node('Add', ['a', 'b'], ['y']),
+    ], [vi('x', [1, 100])], [vi('y', [1, 100])]);
+    const r = costModel(m, { cuts: ['a2', 'b'] });
+    expect(r.stages[1].peakActivationBytes).toBe(1200n); // the report's view over the whole order: a + a2 + b
+    const f = stageFootprints(m, r).map((s) => s.stored);
+    // Stage 0: own peak x + a = a + a2 = 800; hands a and a2 out (800).
+    expect(f[0]).toMatchObject({ peakBytes: 800n, handoverInBytes: 0n, handoverOutBytes: 800n });
+    // Stage 1: own peak a2 + b = 800; buffers a, a2 in (800) and b out (400); a counts once though it crosses both boundaries.
+    expect(f[1]).toMatchObject({ peakBytes: 800n, handoverInBytes: 800n, handoverOutBytes: 400n });
+    // Stage 2: own peak a + b + y = 1200; a and b come in.
+    expect(f[2]).toMatchObject({ peakBytes: 1200n, handoverInBytes: 800n, handoverOutBytes: 0n });
+  });
   it('the whole model is one stage without handover', () => {
     const m = tinyNet();
     const [s] = stageFootprints(m, costModel(m));

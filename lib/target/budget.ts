@@ -5,7 +5,7 @@
 import type { Model } from '../graph/ir.js';
 import { readsOf } from '../graph/links.js';
 import type { CostReport, NodeCost } from '../cost/report.js';
-import { liveRanges, peakOver, type LiveValue } from '../cost/memory.js';
+import { liveRanges, peakOver } from '../cost/memory.js';
 import { numel } from '../ops/rule.js';
 import { dtypeByName, dtypeInfo } from '../onnx/dtype.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
@@ -16,7 +16,7 @@ import type { Ratio, Target } from './target.js';
 export const CONVENTIONS = [
   'weights: bytes as stored in the stage files; a weight read by two stages counts in both',
   'int8: 1 byte per floating-point weight; Conv/ConvTranspose/Gemm/MatMul weights add a float32 scale and an int8 zero point per output channel (5 bytes), their biases are int32 (4 bytes per element); integer weights stay as stored',
-  'RAM: peak activation within the stage, plus its handover buffers (values in from earlier stages, out to later ones), which firmware reusing one arena for every stage keeps in buffers of their own',
+  'RAM: peak activation of the stage on its own (what it reads from earlier stages, makes and hands on), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena',
   'int8 activations: 1 byte per floating-point element; integer tensors stay as stored',
   'latency: cycles = ceil(MACs / macs-per-cycle), time = cycles / clock; other arithmetic, data movement and interpreter overhead are not counted',
   'flash holds weights only: code, interpreter and constants of the firmware come on top',
@@ -87,7 +87,7 @@ export function stageFootprints(model: Model, report: CostReport): StageFootprin
   report.model.inputs.forEach(add);
   for (const n of report.nodes) if (n.op !== 'Constant') n.outputs.forEach(add);
   const ins = report.model.inputs.map((t) => t.name), outs = report.model.outputs.map((t) => t.name);
-  const ranges = { stored: liveRanges(order, ioNodes, stored, ins, outs), int8: liveRanges(order, ioNodes, int8, ins, outs) };
+  const ranges = liveRanges(order, ioNodes, stored, ins, outs);
 
   // Weights as the cost report counts them: initializers and Constant outputs, once per stage that reads them.
   const weight = new Map<string, { dtype: number; dims: number[]; bytes: bigint }>();
@@ -97,10 +97,21 @@ export function stageFootprints(model: Model, report: CostReport): StageFootprin
   }
   for (const n of report.nodes) if (n.op === 'Constant') for (const o of n.outputs) weight.set(o.name, { dtype: dtypeByName(o.dtype)?.id ?? 0, dims: o.shape, bytes: o.bytes });
 
-  const crossing = (r: LiveValue[], b: number) => r.filter((v) => v.birth <= b && v.death > b).reduce((s, v) => s + v.bytes, 0n);
+  // Values crossing the boundary after step b: made by then, read (or handed out as a model output) later.
+  const crossing = (b: number) => new Set(ranges.filter((v) => v.birth <= b && v.death > b).map((v) => v.name));
+  const outputs = new Set(outs);
   const last = report.stages.length - 1;
   return report.stages.map((s, k) => {
     const span: NodeCost[] = report.nodes.slice(s.first, s.last + 1);
+    const steps = span.map((n) => n.index);
+    const made = new Set(steps.flatMap((i) => g.nodes[i].outputs.filter(Boolean)));
+    const before = k > 0 ? crossing(s.first - 1) : new Set<string>();
+    const after = k < last ? crossing(s.last) : new Set<string>();
+    // The stage's own file: what it reads from before, what it makes, and what it hands on. A value passing
+    // through to a later stage is not in it: that one waits in a handover buffer.
+    const stageIns = [...new Set(steps.flatMap((i) => readsOf(g.nodes[i])))].filter((r) => stored.has(r) && !made.has(r));
+    const stageOuts = [...made].filter((v) => after.has(v) || outputs.has(v));
+    const handIn = [...before], handOut = [...after].filter((v) => !before.has(v));
     const uses = new Map<string, { op: string; input: number; transB: boolean; group: number } | undefined>();
     for (const nc of span) {
       const n = g.nodes[nc.index];
@@ -112,12 +123,15 @@ export function stageFootprints(model: Model, report: CostReport): StageFootprin
       if (nc.op === 'Constant') for (const o of nc.outputs) if (!uses.has(o.name)) uses.set(o.name, undefined);
     }
     const w = [...uses].map(([name, use]) => ({ ...weight.get(name)!, use }));
-    const fp = (kind: 'stored' | 'int8'): Footprint => ({
-      weightBytes: w.reduce((a, x) => a + (kind === 'stored' ? x.bytes : int8WeightBytes(x.dtype, x.dims, x.use)), 0n),
-      peakBytes: peakOver(ranges[kind], s.first, s.last).bytes,
-      handoverInBytes: k > 0 ? crossing(ranges[kind], s.first - 1) : 0n,
-      handoverOutBytes: k < last ? crossing(ranges[kind], s.last) : 0n,
-    });
+    const fp = (kind: 'stored' | 'int8'): Footprint => {
+      const size = kind === 'stored' ? stored : int8;
+      const sum = (names: string[]) => names.reduce((a, v) => a + (size.get(v) ?? 0n), 0n);
+      return {
+        weightBytes: w.reduce((a, x) => a + (kind === 'stored' ? x.bytes : int8WeightBytes(x.dtype, x.dims, x.use)), 0n),
+        peakBytes: peakOver(liveRanges(steps, ioNodes, size, stageIns, stageOuts), 0, steps.length - 1).bytes,
+        handoverInBytes: sum(handIn), handoverOutBytes: sum(handOut),
+      };
+    };
     return { index: s.index, cut: s.cut, macs: s.macs, stored: fp('stored'), int8: fp('int8') };
   });
 }
