@@ -88,6 +88,11 @@ describe('offramp cost with a target', () => {
     expect(offramp(['cost', net, '--ram', '12X', '--flash', '1K', '--clock-mhz', '1', '--macs-per-cycle', '1']).code).toBe(2);
     expect(offramp(['cost', net, '--ram', '4K']).code).toBe(2);
     expect(offramp(['cost', net, '--target', 'nosuchcore']).code).toBe(2);
+    expect(offramp(['cost', net, '--int8']).code).toBe(2);
+  });
+  it('is byte-identical across runs', () => {
+    const args = ['cost', branches, '--json', '--reorder', '--target', 'm4f'];
+    expect(offramp(args).stdout).toBe(offramp(args).stdout);
   });
 });
 

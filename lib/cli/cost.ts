@@ -8,6 +8,7 @@ import { costJson, costMarkdown, costText } from '../report/cost.js';
 import { budgetMarkdown, budgetText, overLine, reorderMarkdown, reorderText, storedLabel } from '../report/budget.js';
 import { resolveTarget, BUILTIN_TARGETS } from '../target/target.js';
 import { budgetOf, type Budget } from '../target/budget.js';
+import { usageError } from '../errors.js';
 import { collect, emit, parseDims, splitList, OverBudget } from './common.js';
 
 interface CostFlags {
@@ -35,10 +36,11 @@ export function costCommand(program: Command): void {
     .option('--int8-macs-per-cycle <r>', 'sustained MACs per cycle for the int8 projection (default: --macs-per-cycle)')
     .option('--int8', 'judge the budget (and the exit code) on the int8 projection instead of the model as stored')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
-    .option('--save-reordered <file>', 'with --reorder: write the reordered model')
+    .option('--save-reordered <file>', 'write the reordered model (implies --reorder)')
     .action(async (file: string, o: CostFlags) => {
       // Target options are checked before the model is read, so a typo fails fast.
       const target = resolveTarget(o);
+      if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
       const model = loadModel(file);
       const opts = { cuts: splitList(o.cuts), dims: parseDims(o.dim), batch: Number(o.batch) };
       const shapes = await completeShapes(model, opts);
