@@ -15,3 +15,7 @@ export { analyzeModel, completeShapes } from './cost/analyze.js';
 export { costJson, costText, costMarkdown, COST_SCHEMA } from './report/cost.js';
 export { OfframpError, type ErrorKind } from './errors.js';
 export { VERSION } from './version.js';
+export { memoryOrder, memoryOrderOf, reorderModel, reorderGraph, type MemoryOrder, type StageOrder, type MemoryOrderOptions } from './cost/reorder.js';
+export { parseBytes, readTargetFile, targetFromJson, resolveTarget, BUILTIN_TARGETS, type Target, type TargetOptions, type Ratio } from './target/target.js';
+export { budgetOf, checkBudget, stageFootprints, CONVENTIONS as BUDGET_CONVENTIONS, type Budget, type StageBudget, type StageFootprint, type Footprint, type Fit, type Over, type Precision } from './target/budget.js';
+export { budgetText, budgetMarkdown, reorderText, reorderMarkdown } from './report/budget.js';
