@@ -9,6 +9,7 @@ import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
 import { modelToProto, type Graph, type Model } from '../lib/graph/ir.js';
 import { encodeModel } from '../lib/onnx/codec.js';
 import { openSession } from '../lib/runtime/ort.js';
+import { checkSameOutputs } from '../lib/cost/reorder-check.js';
 import { FLOAT } from '../lib/onnx/dtype.js';
 import { model, vi, node, floatTensor } from './helpers/proto.js';
 import { mobilenetV1, resnet18 } from './helpers/nets.js';
@@ -201,5 +202,17 @@ describe('reordered models compute the same outputs (onnxruntime)', () => {
       expect([...b.keys()].sort()).toEqual([...a.keys()].sort());
       for (const [k, v] of a) expect(Buffer.compare(Buffer.from(v), Buffer.from(b.get(k)!))).toBe(0);
     }
+  });
+});
+
+describe('checkSameOutputs', () => {
+  const spec = [{ name: 'x', dtype: FLOAT, shape: [1, 8, 16, 16] }];
+  it('passes a reordered model and names the output of a changed one', async () => {
+    const m = interleaved();
+    const { model: m2 } = reorderModel(m, costModel(m));
+    await expect(checkSameOutputs(m, m2, spec)).resolves.toBeUndefined();
+    // Swap the inputs of a Conv's weights for another branch's: same shapes, different numbers.
+    const nodes = m2.graph.nodes.map((n) => (n.name === 'br0.wide' ? { ...n, inputs: [n.inputs[0], 'w1a', n.inputs[2]] } : n));
+    await expect(checkSameOutputs(m, { ...m2, graph: { ...m2.graph, nodes } }, spec, { file: 'm.onnx' })).rejects.toThrow(/reordered model differs from the original at output '(logits|concat_out)'/);
   });
 });

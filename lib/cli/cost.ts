@@ -4,6 +4,8 @@ import { loadModel, saveModel } from '../graph/io.js';
 import { completeShapes } from '../cost/analyze.js';
 import { costModel } from '../cost/report.js';
 import { reorderModel, type MemoryOrder } from '../cost/reorder.js';
+import { checkSameOutputs } from '../cost/reorder-check.js';
+import { dtypeByName } from '../onnx/dtype.js';
 import { costJson, costMarkdown, costText } from '../report/cost.js';
 import { budgetMarkdown, budgetText, overLine, reorderMarkdown, reorderText, storedLabel } from '../report/budget.js';
 import { resolveTarget, BUILTIN_TARGETS } from '../target/target.js';
@@ -36,7 +38,7 @@ export function costCommand(program: Command): void {
     .option('--int8-macs-per-cycle <r>', 'sustained MACs per cycle for the int8 projection (default: --macs-per-cycle)')
     .option('--int8', 'judge the budget (and the exit code) on the int8 projection instead of the model as stored')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
-    .option('--save-reordered <file>', 'write the reordered model (implies --reorder)')
+    .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
     .action(async (file: string, o: CostFlags) => {
       // Target options are checked before the model is read, so a typo fails fast.
       const target = resolveTarget(o);
@@ -50,7 +52,13 @@ export function costCommand(program: Command): void {
         const r = reorderModel(model, report);
         costed = r.model; reorder = r.order;
         report = costModel(costed, { ...opts, shapes: { ...shapes, order: costed.graph.nodes.map((_, i) => i) } });
-        if (o.saveReordered) saveModel(costed, o.saveReordered);
+        if (o.saveReordered) {
+          // A model that will be deployed is checked first: same outputs, bit for bit, on seeded inputs.
+          if (reorder.stages.some((st) => st.moved)) {
+            await checkSameOutputs(model, costed, report.model.inputs.map((t) => ({ name: t.name, dtype: dtypeByName(t.dtype)?.id ?? 0, shape: t.shape })), { file });
+          }
+          saveModel(costed, o.saveReordered);
+        }
       }
       const budget: Budget | undefined = target && budgetOf(costed, report, target, o.int8 ? 'int8' : 'stored');
       const label = storedLabel(report);
