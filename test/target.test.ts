@@ -118,6 +118,17 @@ describe('stage footprints (hand-computed)', () => {
     // Stage 2: own peak a + b + y = 1200; a and b come in.
     expect(f[2]).toMatchObject({ peakBytes: 1200n, handoverInBytes: 800n, handoverOutBytes: 0n });
   });
+  it('int8: BatchNormalization folds into the conv before it', () => {
+    const m = model([
+      node('Conv', ['x', 'W'], ['c'], [ints('kernel_shape', [3, 3]), ints('pads', [1, 1, 1, 1])]),
+      node('BatchNormalization', ['c', 's', 'b', 'mean', 'var'], ['y']),
+    ], [vi('x', [1, 3, 8, 8])], [vi('y', [1, 4, 8, 8])],
+    [floatTensor('W', [4, 3, 3, 3]), ...['s', 'b', 'mean', 'var'].map((n) => floatTensor(n, [4]))]);
+    const [s] = stageFootprints(m, costModel(m));
+    expect(s.stored.weightBytes).toBe(432n + 4n * 16n);
+    // W 108 + 4 × 5 (scale, zero point) = 128; the BN becomes a 4-channel int32 bias: 16.
+    expect(s.int8.weightBytes).toBe(144n);
+  });
   it('the whole model is one stage without handover', () => {
     const m = tinyNet();
     const [s] = stageFootprints(m, costModel(m));

@@ -15,7 +15,7 @@ import type { Ratio, Target } from './target.js';
 /** Conventions of the figures, printed with every budget so nobody has to guess them. */
 export const CONVENTIONS = [
   'weights: bytes as stored in the stage files; a weight read by two stages counts in both',
-  'int8: 1 byte per floating-point weight; Conv/ConvTranspose/Gemm/MatMul weights add a float32 scale and an int8 zero point per output channel (5 bytes), their biases are int32 (4 bytes per element); integer weights stay as stored',
+  'int8: 1 byte per floating-point weight; Conv/ConvTranspose/Gemm/MatMul weights add a float32 scale and an int8 zero point per output channel (5 bytes), their biases are int32 (4 bytes per element); BatchNormalization folds into the layer before it (an int32 bias, 4 bytes per channel); integer weights stay as stored',
   'RAM: peak activation of the stage on its own (what it reads from earlier stages, makes and hands on), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena',
   'int8 activations: 1 byte per floating-point element; integer tensors stay as stored',
   'latency: cycles = ceil(MACs / macs-per-cycle), time = cycles / clock; other arithmetic, data movement and interpreter overhead are not counted',
@@ -64,6 +64,8 @@ function int8WeightBytes(dtype: number, dims: number[], use: { op: string; input
   if (info.integer || info.name === 'string') return (count * BigInt(info.bits) + 7n) / 8n;
   if (!use) return count;
   const { op, input } = use;
+  // BatchNormalization folds into the layer before it: its four per-channel tensors become one int32 bias.
+  if (op === 'BatchNormalization') return input === 1 ? count * 4n : input > 1 ? 0n : count;
   const matrixOp = op === 'Conv' || op === 'ConvTranspose' || op === 'Gemm' || op === 'MatMul';
   if (matrixOp && input === 2 && op !== 'MatMul') return count * 4n;
   if (!matrixOp || input !== 1 || !dims.length) return count;
