@@ -48,6 +48,7 @@ interface Segment {
 export function memoryOrder(
   g: Graph, order: number[], sizes: Map<string, bigint>, bounds: number[], io: { inputs: string[]; outputs: string[] }, opts: MemoryOrderOptions = {},
 ): MemoryOrder {
+  if (!order.length) return { order: [], stages: [], before: 0n, after: 0n };
   const ioNodes = g.nodes.map((n) => ({ inputs: n.inputs, outputs: n.outputs, reads: readsOf(n) }));
   const ranges = liveRanges(order, ioNodes, sizes, io.inputs, io.outputs);
   const byName = new Map(ranges.map((r) => [r.name, r]));
