@@ -37,6 +37,12 @@ async function parent(): Promise<void> {
     console.log(`\nstaged chain (ResNet-18, ${ch.stages} stages, batch 1, ${ch.runs} interleaved runs, medians)`);
     line('whole model', `${ch.wholeMs.toFixed(2)} ms`);
     line('staged chain', `${ch.chainMs.toFixed(2)} ms`, `target ratio ≤ 1.10: ratio ${ch.ratio.toFixed(3)}`);
+    const tuneRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'tune.js')], { encoding: 'utf8' });
+    if (tuneRun.status !== 0) throw new Error(`bench tune failed: ${tuneRun.stderr}`);
+    const tu = JSON.parse(tuneRun.stdout);
+    console.log(`\nofframp tune (synthetic cache: ${tu.samples} samples, ${tu.exits} exits)`);
+    line('settings evaluated / s', `${tu.evalPerSec.toFixed(0)}`, `target ≥ 10000: ratio ${(tu.evalPerSec / 10000).toFixed(2)}`);
+    line('whole tune(): settings / s', `${tu.tunePerSec.toFixed(0)}`, `${tu.tuneSettings} settings in ${tu.tuneMs.toFixed(0)} ms`);
   } finally {
     fs.rmSync(dir, { recursive: true, force: true });
   }
