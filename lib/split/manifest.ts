@@ -14,6 +14,7 @@ import { writeAtomic } from '../util/atomic.js';
 import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
+import type { Policy } from '../policy/policy.js';
 
 export const MANIFEST_SCHEMA = 'offramp-manifest/1';
 export const MANIFEST_FILE = 'manifest.json';
@@ -74,6 +75,37 @@ export interface Manifest {
   /** weights copied into more than one stage file, by name */
   sharedWeights: { name: string; bytes: number; stages: number[] }[];
   totals: { macs: number; weightBytes: number; stageWeightBytes: number };
+  /** the exit policy chosen by tuning; absent until tuned */
+  policy?: ManifestPolicy;
+}
+
+/** A tuned exit policy as the manifest keeps it: the rule, and the evidence it was chosen on. */
+export interface ManifestPolicy {
+  /** decision rule and thresholds, as lib/policy reads them */
+  rule: Policy;
+  tuned: {
+    /** accuracy (percentage points) the rule was allowed to lose against the full model */
+    maxDrop: number;
+    /** against labels (true) or against the full model's own answers */
+    labelled: boolean;
+    /** figures on the held-out part */
+    samples: number; accuracy: number; fullAccuracy: number; meanMacs: number; fullMacs: number;
+    /** share of samples leaving at each exit, the final output last */
+    exitShare: number[];
+  };
+}
+
+/** Write `policy` into the manifest of `dir` (atomically), replacing any earlier one. */
+export function writeManifestPolicy(dir: string, policy: ManifestPolicy): Manifest {
+  const file = path.join(dir, MANIFEST_FILE);
+  let m: Manifest;
+  try { m = JSON.parse(fs.readFileSync(file, 'utf8')) as Manifest; } catch (e) {
+    throw new OfframpError('io', `cannot read the manifest: ${(e as Error).message}`, file);
+  }
+  if (m.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${m.schema}', expected '${MANIFEST_SCHEMA}'`, file);
+  const out: Manifest = { ...m, policy };
+  writeAtomic(file, toJson(out) + '\n');
+  return out;
 }
 
 export interface SplitResult { manifest: Manifest; dir: string; files: string[]; stages: StagePlan[] }
