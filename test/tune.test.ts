@@ -1,0 +1,153 @@
+// The tuner on caches whose answer is known: a hand-built cache with an analytic optimum, the held-out
+// bound on random caches, the fast evaluation against the policy walk, stream policies on runs of scenes.
+import { describe, expect, it } from 'vitest';
+import { chainFor, runFrame, type FramePolicy } from '../lib/policy/index.js';
+import { makeCache, reachOf, splitParts, viewOf, type ExitCache } from '../lib/tune/cache.js';
+import { tune } from '../lib/tune/search.js';
+import { evalStream, tuneStream } from '../lib/tune/stream.js';
+import { syntheticCache, syntheticCosts } from './helpers/exit-cache.js';
+import { mulberry32 } from '../lib/graph/build.js';
+
+/**
+ * Two exits, two classes, 100 samples in a period of 10 (so the even/odd split sees the same mix):
+ * A (6 in 10): confidence 0.99 and right at both exits; B1 (2): 0.7 wrong at exit 0, 0.8 right at exit 1;
+ * B2 (2): 0.7 wrong at exit 0, 0.6 wrong at exit 1. The final output is always right (0.99).
+ * Stages 10, 10, 80 MACs, heads inside the stages. A confidence decision on 2 classes costs 4·2 + 1 = 9.
+ */
+function handCache(): ExitCache {
+  const N = 100, E = 2, C = 2;
+  const logits = new Float32Array(N * 3 * C);
+  const labels = new Int32Array(N);
+  const put = (i: number, k: number, conf: number, right: boolean) => {
+    const l = Math.log(conf / (1 - conf));
+    const y = labels[i];
+    logits[(i * 3 + k) * C + (right ? y : 1 - y)] = l;
+  };
+  for (let i = 0; i < N; i++) {
+    labels[i] = (i >> 1) % 2;
+    const t = i % 10;
+    if (t < 6) { put(i, 0, 0.99, true); put(i, 1, 0.99, true); }
+    else if (t < 8) { put(i, 0, 0.7, false); put(i, 1, 0.8, true); }
+    else { put(i, 0, 0.7, false); put(i, 1, 0.6, false); }
+    put(i, 2, 0.99, true);
+  }
+  return makeCache(N, E, C, logits, labels);
+}
+const handCosts = { stage: [10, 10, 80], head: [0, 0] };
+
+describe('tune on a cache with a known optimum', () => {
+  it('maxDrop 0: A at exit 0, B1 at exit 1, B2 at the end: 0.6·19 + 0.2·38 + 0.2·118 = 42.6 MACs', () => {
+    const r = tune(handCache(), handCosts, { maxDrop: 0 });
+    expect(r.full.held.accuracy).toBe(1);
+    expect(r.full.held.meanMacs).toBe(100);
+    expect(r.chosen.policy.kind).toBe('confidence');
+    expect(r.chosen.held.accuracy).toBe(1);
+    expect(r.chosen.held.meanMacs).toBeCloseTo(42.6, 10);
+    expect(r.chosen.held.exitShare).toEqual([0.6, 0.2, 0.2]);
+    const th = r.chosen.policy.thresholds as number[];
+    expect(th[0]).toBeGreaterThan(0.7); expect(th[0]).toBeLessThanOrEqual(0.99 + 1e-6);
+    expect(th[1]).toBeGreaterThan(0.6); expect(th[1]).toBeLessThanOrEqual(0.8 + 1e-6);
+  });
+
+  it('maxDrop 20: a static budget at exit 1 (20 MACs, no decisions) beats every thresholded setting (≥ 23)', () => {
+    const r = tune(handCache(), handCosts, { maxDrop: 20 });
+    expect(r.chosen.policy).toEqual({ kind: 'budget', thresholds: [], budget: 20 });
+    expect(r.chosen.held.meanMacs).toBe(20);
+    expect(r.chosen.held.accuracy).toBeCloseTo(0.8, 12);
+    // confidence alone: A at exit 0 (19), B at exit 1 (38): 26.6
+    expect(r.kinds.find((k) => k.kind === 'confidence')!.chosen.held.meanMacs).toBeCloseTo(26.6, 10);
+  });
+});
+
+describe('tune on synthetic caches', () => {
+  it('never returns a setting above maxDrop on the held-out part', () => {
+    for (const seed of [1, 2, 3]) for (const maxDrop of [0, 0.5, 1, 3]) {
+      const r = tune(syntheticCache(2000, 3, 5, seed), syntheticCosts(3), { maxDrop, grid: 16 });
+      expect((r.full.held.accuracy - r.chosen.held.accuracy) * 100).toBeLessThanOrEqual(maxDrop + 1e-9);
+      expect((r.full.tune.accuracy - r.chosen.tune.accuracy) * 100).toBeLessThanOrEqual(maxDrop + 1e-9);
+      for (const k of r.kinds) expect((r.full.held.accuracy - k.chosen.held.accuracy) * 100).toBeLessThanOrEqual(maxDrop + 1e-9);
+      expect(r.chosen.held.meanMacs).toBeLessThanOrEqual(r.full.held.meanMacs);
+    }
+  });
+
+  it('the fast evaluation agrees with the policy walk on every front point', () => {
+    const c = syntheticCache(1500, 4, 6, 9);
+    const costs = syntheticCosts(4);
+    const reach = reachOf(costs, 4);
+    const r = tune(c, costs, { maxDrop: 1, grid: 12 });
+    const held = splitParts(c.samples, 0.5, 'interleave').held;
+    let checked = 0;
+    for (const k of r.kinds) for (const pt of k.front.filter((_, i) => i % 5 === 0)) {
+      const p = pt.policy as FramePolicy;
+      const ch = chainFor(p, reach, c.exits, c.classes);
+      let correct = 0, cost = 0;
+      const hist = new Array(c.exits + 1).fill(0);
+      for (const i of held) {
+        const w = runFrame(p, ch, viewOf(c, i));
+        correct += w.label === c.labels[i] ? 1 : 0;
+        cost += reach[w.exit] + w.overhead;
+        hist[w.exit]++;
+      }
+      expect(correct / held.length).toBe(pt.held.accuracy);
+      expect(cost / held.length).toBeCloseTo(pt.held.meanMacs, 6);
+      expect(hist.map((h) => h / held.length)).toEqual(pt.held.exitShare);
+      checked++;
+    }
+    expect(checked).toBeGreaterThan(10);
+  });
+
+  it('spends clearly less than the full model within 1 point, and is deterministic', () => {
+    const c = syntheticCache(4000, 4, 10, 4);
+    const a = tune(c, syntheticCosts(4), { maxDrop: 1 });
+    const b = tune(c, syntheticCosts(4), { maxDrop: 1 });
+    expect(JSON.stringify(a)).toBe(JSON.stringify(b));
+    expect(a.chosen.held.meanMacs).toBeLessThan(0.8 * a.full.held.meanMacs);
+  });
+
+  it('without labels, accuracy is agreement with the full model (1 for the full model)', () => {
+    const s = syntheticCache(600, 2, 4, 5);
+    const c = makeCache(s.samples, s.exits, s.classes, s.logits);
+    const r = tune(c, syntheticCosts(2), { maxDrop: 2, grid: 8 });
+    expect(r.labelled).toBe(false);
+    expect(r.full.held.accuracy).toBe(1);
+  });
+
+  it('splits deterministically: interleaved for shuffled data, the tail for streams', () => {
+    expect([...splitParts(6, 0.5, 'interleave').held]).toEqual([1, 3, 5]);
+    expect([...splitParts(10, 0.3, 'interleave').held]).toEqual([3, 6, 9]);
+    expect([...splitParts(10, 0.3, 'tail').held]).toEqual([7, 8, 9]);
+  });
+});
+
+/** A stream: scenes of 20–60 frames of one class, each frame the scene's logits plus small noise. */
+function streamCache(frames: number, seed: number): ExitCache {
+  const base = syntheticCache(frames, 3, 6, seed);
+  const rnd = mulberry32(seed + 100);
+  const W = 4 * 6;
+  const logits = new Float32Array(frames * W);
+  const labels = new Int32Array(frames);
+  for (let i = 0; i < frames;) {
+    const len = 20 + Math.floor(rnd() * 40);
+    for (let j = i; j < Math.min(frames, i + len); j++) {
+      for (let x = 0; x < W; x++) logits[j * W + x] = base.logits[i * W + x] + 0.05 * (rnd() - 0.5);
+      labels[j] = base.labels[i];
+    }
+    i += len;
+  }
+  return makeCache(frames, 3, 6, logits, labels);
+}
+
+describe('stream tuning', () => {
+  it('stream policies spend far less than per-frame ones at the same accuracy bound', () => {
+    const c = streamCache(3000, 7);
+    const costs = syntheticCosts(3);
+    const perFrame = tune(c, costs, { maxDrop: 1, grid: 16 });
+    const then = perFrame.chosen.policy.kind === 'confidence' && perFrame.chosen.policy.thresholds.every((t) => t === null) ? [] : [perFrame.chosen.policy as FramePolicy];
+    const s = tuneStream(c, costs, { maxDrop: 1, grid: 16, then });
+    expect((s.full.held.accuracy - s.chosen.held.accuracy) * 100).toBeLessThanOrEqual(1 + 1e-9);
+    expect(['difference', 'agreeing']).toContain(s.chosen.policy.kind);
+    const frameOnTail = evalStream(c, splitParts(c.samples, 0.5, 'tail').held, perFrame.chosen.policy as FramePolicy, reachOf(costs, 3));
+    expect(s.chosen.held.meanMacs).toBeLessThan(0.5 * frameOnTail.meanMacs);
+    expect(JSON.stringify(tuneStream(c, costs, { maxDrop: 1, grid: 16, then }))).toBe(JSON.stringify(s));
+  });
+});
