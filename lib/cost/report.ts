@@ -49,6 +49,8 @@ export interface CostReport {
 export interface CostOptions extends InferOptions {
   /** Stage boundaries: value names (or node names, meaning the node's first output). */
   cuts?: string[];
+  /** Stage boundaries as the last step of each stage but the last (instead of cuts), for a model whose file order is already staged. */
+  stageEnds?: number[];
   /** Shapes already inferred (with measured values filled in). */
   shapes?: ShapeResult;
 }
@@ -133,7 +135,7 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
   const last = shapes.order.length - 1;
   const peak = peakOver(ranges, 0, last);
 
-  const stages = stageCosts(model, shapes.order, nodes, ranges, opts.cuts ?? [], macs, weightOf);
+  const stages = stageCosts(model, shapes.order, nodes, ranges, opts.stageEnds ? endsAsCuts(model, shapes.order, opts.stageEnds) : cutSteps(model, shapes.order, opts.cuts ?? []), macs, weightOf);
   const counts = { rule: 0, declared: 0 };
   const measured: string[] = [];
   for (const [name, v] of shapes.values) {
@@ -182,11 +184,18 @@ export function cutSteps(model: Model, order: number[], cuts: string[]): { name:
   return out;
 }
 
+function endsAsCuts(model: Model, order: number[], ends: number[]): { name: string; step: number }[] {
+  const sorted = [...ends].sort((a, b) => a - b);
+  sorted.forEach((e, i) => {
+    if (!Number.isInteger(e) || e < 0 || e >= order.length - 1 || (i && e === sorted[i - 1])) throw new OfframpError('usage', `stage end ${e} is not a step before the last (0…${order.length - 2}) or repeats`);
+  });
+  return sorted.map((step) => ({ name: model.graph.nodes[order[step]].outputs[0] ?? '', step }));
+}
+
 function stageCosts(
-  model: Model, order: number[], nodes: NodeCost[], ranges: ReturnType<typeof liveRanges>, cuts: string[], total: bigint,
+  model: Model, order: number[], nodes: NodeCost[], ranges: ReturnType<typeof liveRanges>, steps: { name: string; step: number }[], total: bigint,
   weightOf: Map<string, { count: bigint; bytes: bigint }>,
 ): StageCost[] {
-  const steps = cutSteps(model, order, cuts);
   const bounds = [...steps.map((s) => s.step), order.length - 1];
   const stages: StageCost[] = [];
   let first = 0;
