@@ -5,7 +5,7 @@
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { rankCuts } from '../cuts/scan.js';
 import type { ExitCache } from '../tune/cache.js';
-import { selectExits } from '../tune/capture.js';
+import { selectExits } from '../tune/model-capture.js';
 import { tune, type TuneOptions, type TuneResult } from '../tune/search.js';
 
 /** Clean cuts that leave MACs on both sides, one per MAC share (the best there), spread out, at most `max`, in graph order. */
