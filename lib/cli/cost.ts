@@ -8,10 +8,11 @@ import { checkSameOutputs } from '../cost/reorder-check.js';
 import { dtypeByName } from '../onnx/dtype.js';
 import { costJson, costMarkdown, costText } from '../report/cost.js';
 import { budgetMarkdown, budgetText, overLine, reorderMarkdown, reorderText, storedLabel } from '../report/budget.js';
-import { resolveTarget, BUILTIN_TARGETS } from '../target/target.js';
+import { resolveTarget } from '../target/target.js';
 import { budgetOf, type Budget } from '../target/budget.js';
 import { usageError } from '../errors.js';
 import { collect, emit, parseDims, splitList, OverBudget } from './common.js';
+import { targetOptions } from './target-options.js';
 
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
@@ -20,7 +21,7 @@ interface CostFlags {
 }
 
 export function costCommand(program: Command): void {
-  program.command('cost')
+  targetOptions(program.command('cost'))
     .description('count MACs, weights and peak activation memory, per node and per stage; check them against a target')
     .argument('<model>', 'ONNX model file')
     .option('--cuts <values>', 'stage boundaries: comma-separated value (or node) names')
@@ -30,13 +31,6 @@ export function costCommand(program: Command): void {
     .option('--md', 'Markdown report')
     .option('--no-nodes', 'leave out the per-node table')
     .option('-o, --out <file>', 'write the report to a file instead of stdout')
-    .option('--target <file|name>', `target profile: a JSON file or a built-in core class (${Object.keys(BUILTIN_TARGETS).join(', ')}; rough figures)`)
-    .option('--flash <bytes>', 'flash for weights (K/KiB = 1024, M/MiB = 1024²; 0x hex)')
-    .option('--ram <bytes>', 'RAM for activations and handover buffers')
-    .option('--clock-mhz <f>', 'core clock in MHz')
-    .option('--macs-per-cycle <r>', 'sustained MACs per cycle on the stored (float32) model')
-    .option('--int8-macs-per-cycle <r>', 'sustained MACs per cycle for the int8 projection (default: --macs-per-cycle)')
-    .option('--int8', 'judge the budget (and the exit code) on the int8 projection instead of the model as stored')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
     .action(async (file: string, o: CostFlags) => {

@@ -1,0 +1,14 @@
+// The chip a report is judged against: the same options on every command that budgets.
+import type { Command } from 'commander';
+import { BUILTIN_TARGETS } from '../target/target.js';
+
+export function targetOptions(c: Command): Command {
+  return c
+    .option('--target <file|name>', `target profile: a JSON file or a built-in core class (${Object.keys(BUILTIN_TARGETS).join(', ')}; rough figures)`)
+    .option('--flash <bytes>', 'flash for weights (K/KiB = 1024, M/MiB = 1024²; 0x hex)')
+    .option('--ram <bytes>', 'RAM for activations and handover buffers')
+    .option('--clock-mhz <f>', 'core clock in MHz')
+    .option('--macs-per-cycle <r>', 'sustained MACs per cycle on the stored (float32) model')
+    .option('--int8-macs-per-cycle <r>', 'sustained MACs per cycle for the int8 projection (default: --macs-per-cycle)')
+    .option('--int8', 'judge the budget (and the exit code) on the int8 projection instead of the model as stored');
+}
