@@ -5,6 +5,7 @@ import { graftCommand } from './graft.js';
 import { scanCommand } from './scan.js';
 import { splitCommand } from './split.js';
 import { checkCommand } from './check.js';
+import { emitCCommand } from './emit-c.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -21,6 +22,7 @@ export async function main(argv: string[]): Promise<number> {
   scanCommand(program);
   splitCommand(program);
   checkCommand(program);
+  emitCCommand(program);
   for (const c of program.commands) c.exitOverride();
   try {
     await program.parseAsync(argv, { from: 'user' });

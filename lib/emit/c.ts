@@ -1,0 +1,158 @@
+// offramp_policy.h / offramp_policy.c: the stage table, the chosen policy as
+// constants and the decision functions, for a firmware. Output depends only on
+// the manifest, the policy and the paths given (no timestamps), so the same
+// inputs give the same bytes.
+import { OfframpError } from '../errors.js';
+import { chainFor, checkPolicy, fullModel, isStream, type FramePolicy, type Policy } from '../policy/index.js';
+import { VERSION } from '../version.js';
+import type { Manifest } from '../split/manifest.js';
+import { chainTable, type ChainTable, type TableTensor } from './table.js';
+import { C_DECLARATIONS, C_DEFINITIONS } from './c-runtime.js';
+
+export const C_HEADER = 'offramp_policy.h';
+export const C_SOURCE = 'offramp_policy.c';
+
+export interface EmitCInput {
+  manifest: Manifest;
+  /** the manifest as the banner names it (relative to the output folder) */
+  manifestName: string;
+  manifestSha256: string;
+  policy: Policy;
+  /** where the policy came from, for the banner */
+  policyFrom: string;
+  /** the file the policy was read from, for errors (default: the manifest) */
+  policyFile?: string;
+}
+export interface EmitCOutput { table: ChainTable; files: { name: string; text: string }[] }
+
+/** The exact double as a C99 hexadecimal floating constant. */
+export function hexDouble(x: number): string {
+  if (!Number.isFinite(x)) throw new OfframpError('data', `not a finite number: ${x}`);
+  if (x === 0) return Object.is(x, -0) ? '-0.0' : '0.0';
+  const b = new DataView(new ArrayBuffer(8));
+  b.setFloat64(0, x);
+  const hi = b.getUint32(0), lo = b.getUint32(4);
+  const sign = hi >>> 31 ? '-' : '';
+  const e = (hi >>> 20) & 0x7ff;
+  const mant = ((BigInt(hi & 0xfffff) << 32n) | BigInt(lo)).toString(16).padStart(13, '0').replace(/0+$/, '');
+  return `${sign}0x${e ? '1' : '0'}${mant ? `.${mant}` : ''}p${e ? e - 1023 : -1022}`;
+}
+
+/** A C string literal: printable ASCII kept, the rest (and ? against trigraphs) as octal escapes of the UTF-8 bytes. */
+export function cString(s: string): string {
+  let out = '"';
+  for (const byte of Buffer.from(s, 'utf8')) {
+    const c = String.fromCharCode(byte);
+    out += byte >= 0x20 && byte < 0x7f && c !== '"' && c !== '\\' && c !== '?' ? c : `\\${byte.toString(8).padStart(3, '0')}`;
+  }
+  return out + '"';
+}
+
+const comment = (s: string) => s.replace(/\*\//g, '* /');
+const u64 = (v: bigint) => `UINT64_C(${v})`;
+const SCORE_C = { confidence: 'OFFRAMP_CONFIDENCE', entropy: 'OFFRAMP_ENTROPY', margin: 'OFFRAMP_MARGIN' } as const;
+const KIND_C: Record<Policy['kind'], string> = { ...SCORE_C, patience: 'OFFRAMP_PATIENCE', budget: 'OFFRAMP_BUDGET', difference: 'OFFRAMP_DIFFERENCE', agreeing: 'OFFRAMP_AGREEING' };
+const DIST_C = { l1: 'OFFRAMP_L1', l2: 'OFFRAMP_L2', cosine: 'OFFRAMP_COSINE', js: 'OFFRAMP_JS' } as const;
+
+/** The policy's JSON with keys in a fixed order, for the banner. */
+function policyJson(p: Policy): string {
+  const frame = (f: FramePolicy): Record<string, unknown> => ({
+    kind: f.kind, thresholds: f.thresholds,
+    ...(f.kind === 'patience' && { patience: f.patience }),
+    ...(f.kind === 'budget' && { budget: f.budget, ...(f.score && { score: f.score }) }),
+  });
+  if (!isStream(p)) return JSON.stringify(frame(p));
+  return JSON.stringify({ kind: p.kind, thresholds: p.thresholds, distance: p.distance, ...(p.exit !== undefined && { exit: p.exit }), ...(p.then && { then: frame(p.then) }) });
+}
+
+function framePolicyInit(p: FramePolicy, t: ChainTable, indent: string): string {
+  const reach = t.reach.map(Number);
+  const cap = chainFor(p, reach, t.exits, t.classes).cap;
+  const score = p.kind === 'patience' ? 'OFFRAMP_NO_SCORE' : p.kind === 'budget' ? (p.score ? SCORE_C[p.score] : 'OFFRAMP_NO_SCORE') : SCORE_C[p.kind];
+  const th = Array.from({ length: t.exits }, (_, k) => (score === 'OFFRAMP_NO_SCORE' ? null : p.thresholds[k] ?? null));
+  const why = p.kind === 'budget' ? ` /* budget ${p.budget} MAC-equivalents: deepest affordable exit */` : '';
+  return [
+    `{`,
+    `${indent}  ${KIND_C[p.kind]}, ${score}, ${p.kind === 'patience' ? p.patience : 0}, ${cap},${why}`,
+    `${indent}  { ${th.map((x) => (x === null ? 0 : 1)).join(', ')} },`,
+    `${indent}  { ${th.map((x) => (x === null ? '0.0' : `${hexDouble(x)} /* ${x} */`)).join(', ')} }`,
+    `${indent}}`,
+  ].join('\n');
+}
+
+function policyDefinition(p: Policy, t: ChainTable): string {
+  if (!isStream(p)) return `const offramp_frame_policy_t offramp_policy = ${framePolicyInit(p, t, '')};\n`;
+  const then = p.then ?? fullModel(t.exits);
+  return [
+    `const offramp_stream_policy_t offramp_policy = {`,
+    `  ${KIND_C[p.kind]}, ${DIST_C[p.distance]}, ${hexDouble(p.thresholds[0])} /* ${p.thresholds[0]} */, ${p.kind === 'difference' ? p.exit : -1},`,
+    `  ${framePolicyInit(then, t, '  ')}`,
+    `};`, '',
+  ].join('\n');
+}
+
+function banner(file: string, i: EmitCInput): string {
+  return [
+    `/* ${file}: generated by offramp ${VERSION}; do not edit, run offramp emit-c again.`,
+    ` * manifest: ${comment(i.manifestName)} (sha256 ${i.manifestSha256})`,
+    ` * policy (${comment(i.policyFrom)}): ${comment(policyJson(i.policy))}`,
+    ` * C99, no allocation; libm: sqrt only. Decisions equal offramp's own bit for bit when floating-point`,
+    ` * contraction is off (the pragma below; otherwise compile with -ffp-contract=off). */`,
+    '',
+  ].join('\n');
+}
+
+export function emitC(i: EmitCInput, file?: string): EmitCOutput {
+  const t = chainTable(i.manifest, file);
+  let policy: Policy;
+  try { policy = checkPolicy(i.policy, t.exits, 'policy'); } catch (e) {
+    throw e instanceof OfframpError ? new OfframpError(e.kind, e.message, i.policyFile ?? file, e.where) : e;
+  }
+  const stream = isStream(policy);
+  const header = [
+    banner(C_HEADER, i),
+    '#ifndef OFFRAMP_POLICY_H', '#define OFFRAMP_POLICY_H', '', '#include <stdint.h>', '',
+    `#define OFFRAMP_STAGES ${t.stages.length}`,
+    `#define OFFRAMP_EXITS ${t.exits}            /* early exits; index OFFRAMP_EXITS is the final output */`,
+    `#define OFFRAMP_CLASSES ${t.classes}`,
+    `#define OFFRAMP_TENSORS ${t.stages.reduce((a, s) => a + s.inputs.length + s.outputs.length, 0)}`,
+    `#define OFFRAMP_POLICY_STREAM ${stream ? 1 : 0}`,
+    `#define OFFRAMP_POLICY_KIND ${KIND_C[policy.kind]}`,
+    '', C_DECLARATIONS,
+    '/* The chain, in execution order. */',
+    'extern const offramp_tensor_t offramp_tensors[OFFRAMP_TENSORS];',
+    'extern const offramp_stage_t offramp_stages[OFFRAMP_STAGES];',
+    'extern const char *const offramp_exit_names[OFFRAMP_EXITS + 1];',
+    'extern const int32_t offramp_exit_stage[OFFRAMP_EXITS + 1];   /* stage that makes exit k */',
+    'extern const uint64_t offramp_reach[OFFRAMP_EXITS + 1];       /* MACs to have exit k */',
+    '',
+    '/* The chosen policy. */',
+    `extern const ${stream ? 'offramp_stream_policy_t' : 'offramp_frame_policy_t'} offramp_policy;`,
+    '', '#endif', '',
+  ].join('\n');
+
+  const tensors: string[] = [];
+  const stages: string[] = [];
+  const sum = (l: TableTensor[], f: (x: TableTensor) => number) => l.reduce((a, x) => a + f(x), 0);
+  for (const [si, s] of t.stages.entries()) {
+    const first = tensors.length;
+    for (const x of [...s.inputs, ...s.outputs]) tensors.push(`  { ${cString(x.name)}, ${cString(x.dtype)}, ${x.elements}u, ${x.bytes}u },`);
+    const inE = sum(s.inputs, (x) => x.elements), inB = sum(s.inputs, (x) => x.bytes), outE = sum(s.outputs, (x) => x.elements), outB = sum(s.outputs, (x) => x.bytes);
+    if ([inE, inB, outE, outB].some((v) => v > 0xffffffff)) throw new OfframpError('data', 'tensors over 4 GiB', file, `stages[${si}]`);
+    stages.push(`  { ${cString(s.file)}, ${u64(s.macs)}, ${first}u, ${s.inputs.length}u, ${first + s.inputs.length}u, ${s.outputs.length}u, ` +
+      `${inE}u, ${inB}u, ${outE}u, ${outB}u, ${s.weightBytes}u, ${s.peakActivationBytes}u, ${s.exits.length ? s.exits[0] : -1}, ${s.exits.length} },`);
+  }
+  const source = [
+    banner(C_SOURCE, i),
+    `#include "${C_HEADER}"`, '#include <math.h>', '',
+    'const offramp_tensor_t offramp_tensors[OFFRAMP_TENSORS] = {', ...tensors, '};', '',
+    '/* file, MACs, inputs (first, count), outputs (first, count), input elements, bytes, output elements, bytes, weight bytes, peak activation bytes, exits (first, count) */',
+    'const offramp_stage_t offramp_stages[OFFRAMP_STAGES] = {', ...stages, '};', '',
+    `const char *const offramp_exit_names[OFFRAMP_EXITS + 1] = { ${[...t.exitNames, t.finalOutput].map(cString).join(', ')} };`,
+    `const int32_t offramp_exit_stage[OFFRAMP_EXITS + 1] = { ${t.exitStage.join(', ')} };`,
+    `const uint64_t offramp_reach[OFFRAMP_EXITS + 1] = { ${t.reach.map(u64).join(', ')} };`, '',
+    policyDefinition(policy, t),
+    C_DEFINITIONS,
+  ].join('\n');
+  return { table: t, files: [{ name: C_HEADER, text: header }, { name: C_SOURCE, text: source }] };
+}

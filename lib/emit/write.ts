@@ -1,0 +1,39 @@
+// emit-c on disk: read the manifest once (its bytes are what the banner's
+// sha256 names), take its policy unless one is given, write both files.
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
+import { OfframpError } from '../errors.js';
+import { MANIFEST_FILE, MANIFEST_SCHEMA, type Manifest } from '../split/manifest.js';
+import type { Policy } from '../policy/index.js';
+import { writeAtomic } from '../util/atomic.js';
+import { emitC, type EmitCOutput } from './c.js';
+
+export interface WriteCOptions {
+  /** overrides the manifest's policy; `from` says where it came from (banner), `file` names it in errors */
+  policy?: { value: unknown; from: string; file?: string };
+}
+
+/** `where`: a split folder or its manifest.json. Returns what was written. */
+export function writeC(where: string, outDir: string, o: WriteCOptions = {}): EmitCOutput & { written: string[]; policyFrom: string } {
+  const file = fs.existsSync(where) && fs.statSync(where).isDirectory() ? path.join(where, MANIFEST_FILE) : where;
+  let bytes: Buffer;
+  try { bytes = fs.readFileSync(file); } catch (e) {
+    const code = (e as NodeJS.ErrnoException).code;
+    throw new OfframpError('io', code === 'ENOENT' ? 'no manifest here (run offramp split first)' : `cannot read: ${(e as Error).message}`, file);
+  }
+  let manifest: Manifest & { policy?: unknown };
+  try { manifest = JSON.parse(bytes.toString('utf8')); } catch (e) { throw new OfframpError('decode', `not JSON: ${(e as Error).message}`, file); }
+  if (manifest?.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${manifest?.schema}', expected '${MANIFEST_SCHEMA}'`, file);
+  const chosen = o.policy ?? (manifest.policy !== undefined ? { value: manifest.policy, from: 'the manifest' } : undefined);
+  if (!chosen) throw new OfframpError('usage', 'the manifest holds no policy yet (run offramp tune, or give --policy)', file);
+
+  fs.mkdirSync(outDir, { recursive: true });
+  const manifestName = path.relative(path.resolve(outDir), path.resolve(file)).split(path.sep).join('/');
+  const out = emitC({
+    manifest, manifestName, manifestSha256: crypto.createHash('sha256').update(bytes).digest('hex'),
+    policy: chosen.value as Policy, policyFrom: chosen.from, policyFile: chosen === o.policy ? o.policy.file ?? '--policy' : file,
+  }, file);
+  const written = out.files.map((f) => { const target = path.join(outDir, f.name); writeAtomic(target, f.text); return target; });
+  return { ...out, written, policyFrom: chosen.from };
+}
