@@ -22,13 +22,13 @@ def save(name, a, version=None, note=None):
     path = os.path.join(OUT, name + '.npy')
     with open(path, 'wb') as f:
         np.lib.format.write_array(f, a, version=version, allow_pickle=a.dtype == object)
-    if a.dtype.kind in 'fiub' and not a.dtype.names:
+    if note:
+        expected['files'][name] = {'descr': a.dtype.str, 'note': note}
+    elif a.dtype.kind in 'fiub':
         expected['files'][name] = {
             'descr': a.dtype.str, 'shape': list(a.shape), 'fortran': bool(a.flags.f_contiguous and not a.flags.c_contiguous),
             'version': list(version or (1, 0)), 'values': [jsonable(x) for x in a.ravel(order='C')],
         }
-        if note:
-            expected['files'][name]['note'] = note
 
 base = np.arange(12).reshape(3, 4)
 save('f4', (base * 0.75 - 3.1).astype('<f4'))

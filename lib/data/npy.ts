@@ -192,5 +192,5 @@ export function sampleShape(h: NpyHeader, modelInput: readonly (number | string)
   if (h.shape.length >= 1 && fits(per, modelInput.slice(1))) return per;
   if (per.length >= 1 && per[0] === 1 && fits(per, modelInput)) return per.slice(1);
   const show = (s: readonly (number | string)[]) => `[${s.map((d) => (typeof d === 'number' && d > 0 ? d : typeof d === 'string' && d ? d : '?')).join(', ')}]`;
-  throw err(`data shape [${h.shape.join(', ')}] does not match the model input ${show(modelInput)}: expected [N, ${show(modelInput.slice(1)).slice(1)}`, file);
+  throw err(`data shape [${h.shape.join(', ')}] does not match the model input ${show(modelInput)}: expected ${show(['N', ...modelInput.slice(1)])}`, file);
 }
