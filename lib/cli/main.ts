@@ -6,6 +6,9 @@ import { scanCommand } from './scan.js';
 import { splitCommand } from './split.js';
 import { checkCommand } from './check.js';
 import { emitCCommand } from './emit-c.js';
+import { buildCommand } from './build.js';
+import { tuneCommand } from './tune.js';
+import { replayCommand } from './replay.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -23,6 +26,9 @@ export async function main(argv: string[]): Promise<number> {
   splitCommand(program);
   checkCommand(program);
   emitCCommand(program);
+  buildCommand(program);
+  tuneCommand(program);
+  replayCommand(program);
   for (const c of program.commands) c.exitOverride();
   try {
     await program.parseAsync(argv, { from: 'user' });

@@ -1,0 +1,170 @@
+// `offramp build`: from a trained model and data to a folder ready to port.
+// scan → fit heads at every candidate cut → choose the exit set by tuning each →
+// graft the chosen heads → split → tune → check the chain → budgets → report.
+// Every step is a library call used by its own command too; this file only
+// sequences them and keeps what the report needs.
+import fs from 'node:fs';
+import path from 'node:path';
+import { loadModel, saveModel, type LoadedModel } from '../graph/io.js';
+import type { Model } from '../graph/ir.js';
+import { completeShapes } from '../cost/analyze.js';
+import { costModel, type CostReport } from '../cost/report.js';
+import { reorderGraph } from '../cost/reorder.js';
+import { scanModel, resolveCut, type CutPlan } from '../cuts/scan.js';
+import { exitCuts } from '../cuts/exits.js';
+import { classifierIO, graftExits, type DataSource } from '../heads/fit-heads.js';
+import { dataSource, readLabels } from '../heads/sources.js';
+import type { HeadKind } from '../heads/spec.js';
+import { exitRecords, type ExitRecord } from '../heads/graft.js';
+import { writeSplit, writeManifestPolicy, type Manifest, type ManifestPolicy } from '../split/manifest.js';
+import { loadChain } from '../run/chain.js';
+import { checkChain, npySamples, type CheckResult } from '../run/check.js';
+import { captureExits } from '../tune/model-capture.js';
+import { tune, type TuneResult } from '../tune/search.js';
+import { budgetOf, type Budget } from '../target/budget.js';
+import type { Target } from '../target/target.js';
+import { OfframpError } from '../errors.js';
+import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
+import { labelsOfParity, rowsOfParity } from './rows.js';
+
+export interface BuildOptions {
+  /** calibration inputs (.npy or a TensorProto folder); even rows fit heads, odd rows tune */
+  data: string;
+  labels?: string;
+  out: string;
+  target?: Target;
+  /** judge the budget on the int8 projection */
+  int8?: boolean;
+  /** accuracy (percentage points) the policy may lose against the full model (default 1) */
+  maxDrop?: number;
+  /** most exits to place (default 3) */
+  maxExits?: number;
+  /** candidate cuts heads are tried at (default 6) */
+  candidates?: number;
+  head?: HeadKind;
+  seed?: number;
+  l2?: number;
+  /** samples the staged chain is checked on against the model (default 16) */
+  checkSamples?: number;
+  progress?: (step: string, detail: string) => void;
+}
+
+export interface BuildResult {
+  dir: string;
+  model: string;
+  files: string[];
+  candidates: { cut: string; macFraction: number; head: ExitRecord }[];
+  placement: PlacementSearch;
+  exits: ExitRecord[];
+  manifest: Manifest;
+  tuned: TuneResult;
+  policy: ManifestPolicy;
+  check: CheckResult;
+  cost: CostReport;
+  budget?: Budget;
+}
+
+export const GRAFTED_FILE = 'model.onnx';
+
+/** Cumulative backbone MACs at each cut value of a plan (by the plan's step order). */
+function macsBefore(plan: CutPlan, report: CostReport): (cut: string) => number {
+  const byNode = new Map(report.nodes.map((n) => [n.index, n.macs]));
+  const cum = new Map<string, number>();
+  let acc = 0n;
+  for (const ni of plan.steps) {
+    acc += byNode.get(ni) ?? 0n;
+    for (const o of plan.model.graph.nodes[ni].outputs) cum.set(o, Number(acc));
+  }
+  return (cut) => cum.get(cut) ?? 0;
+}
+
+/** The grafted model reordered so its file order runs stage after stage, with each stage's last step. */
+function stagedOrder(grafted: Model, stages: { nodes: number[] }[]): { model: Model; ends: number[] } {
+  const seen = new Set<number>(), order: number[] = [], ends: number[] = [];
+  for (const s of stages) {
+    for (const n of s.nodes) if (!seen.has(n)) { seen.add(n); order.push(n); }
+    ends.push(order.length - 1);
+  }
+  for (let i = 0; i < grafted.graph.nodes.length; i++) if (!seen.has(i)) order.push(i);
+  return { model: { ...grafted, graph: reorderGraph(grafted.graph, order) }, ends: ends.slice(0, -1) };
+}
+
+export async function buildExits(file: string, o: BuildOptions): Promise<BuildResult> {
+  const say = (step: string, detail: string) => o.progress?.(step, detail);
+  const maxDrop = o.maxDrop ?? 1, head: HeadKind = o.head ?? { kind: 'linear' }, seed = o.seed ?? 1;
+  const model: LoadedModel = loadModel(file);
+  const shapes = await completeShapes(model, { batch: 1 });
+  const io = classifierIO(model, shapes);
+  const all = dataSource(o.data, io.declared, io.sample);
+  const labels = o.labels ? readLabels(o.labels) : undefined;
+  if (labels && labels.length !== all.rows) throw new OfframpError('data', `${labels.length} labels for ${all.rows} rows of ${o.data}`, o.labels);
+  if (all.rows < 8) throw new OfframpError('data', `${all.rows} rows: building needs at least 8 (half fit the heads, half tune the policy)`, o.data);
+  const fitData: DataSource = rowsOfParity(all, io.sample, 0), tuneData: DataSource = rowsOfParity(all, io.sample, 1);
+  const fitLabels = labels && labelsOfParity(labels, 0), tuneLabels = labels && labelsOfParity(labels, 1);
+
+  say('scan', file);
+  const plan = await scanModel(model, { batch: 1 });
+  const backbone = costModel(model, { shapes: plan.shapes });
+  const cands = candidateCuts(plan, o.candidates ?? 6);
+  if (!cands.length) throw new OfframpError('graph', 'no clean cut leaves work on both sides: nowhere to put an exit', file);
+  const before = macsBefore(plan, backbone);
+
+  say('fit', `${cands.length} candidate heads on ${fitData.rows} rows`);
+  const graftOpts = { head, seed, l2: o.l2, labels: fitLabels, shapes };
+  const trial = await graftExits(model, fitData, { ...graftOpts, cuts: cands.map((c) => c.tensors[0].name) });
+  say('capture', `exit outputs on ${tuneData.rows} rows`);
+  const trialCache = await captureExits({ ...trial.model, file }, tuneData, tuneLabels);
+  const trialExits = trialCache.exits;
+
+  say('place', `exit sets of up to ${o.maxExits ?? 3} from ${cands.length} candidates`);
+  const reach = trialExits.map((e) => before(e.cut));
+  const placement = choosePlacement(trialCache.cache, reach, Number(backbone.model.macs), trialExits.map((e) => e.macs), o.maxExits ?? 3, { maxDrop });
+  const chosenCuts = placement.chosen.exits.map((k) => trialExits[k].cut);
+
+  fs.mkdirSync(o.out, { recursive: true });
+  const modelFile = path.join(o.out, GRAFTED_FILE);
+  if (fs.existsSync(modelFile) && fs.realpathSync(modelFile) === fs.realpathSync(file)) throw new OfframpError('io', 'refusing to overwrite the source model', modelFile);
+  say('graft', chosenCuts.join(', '));
+  const grafted = await graftExits(model, fitData, { ...graftOpts, cuts: chosenCuts });
+  saveModel(grafted.model, modelFile);
+  const g = loadModel(modelFile);
+
+  say('split', `${chosenCuts.length + 1} stages`);
+  const gPlan = await scanModel(g, { batch: 1 });
+  const split = writeSplit(gPlan, exitCuts(g).map((c) => resolveCut(gPlan, c)), o.out, modelFile);
+
+  say('tune', `policies on ${tuneData.rows} rows`);
+  const captured = await captureExits(g, tuneData, tuneLabels);
+  const stageMacs = split.manifest.stages.map((s) => s.macs);
+  // Heads sit inside their stages, so stage MACs already hold them.
+  const tuned = tune(captured.cache, { stage: stageMacs, head: captured.exits.map(() => 0) }, { maxDrop });
+  const ch = tuned.chosen, full = tuned.full;
+  const policy: ManifestPolicy = {
+    rule: ch.policy,
+    tuned: {
+      maxDrop, labelled: tuned.labelled, samples: ch.held.samples, accuracy: ch.held.accuracy, fullAccuracy: full.held.accuracy,
+      meanMacs: ch.held.meanMacs, fullMacs: full.held.meanMacs, exitShare: ch.held.exitShare,
+    },
+  };
+  const manifest = writeManifestPolicy(o.out, policy);
+
+  say('check', 'staged chain against the grafted model');
+  const chain = await loadChain(o.out);
+  let check: CheckResult;
+  try {
+    const samples = fs.statSync(o.data).isDirectory() ? [] : npySamples(manifest.inputs, { [manifest.inputs[0].name]: o.data }, o.checkSamples ?? 16);
+    check = await checkChain(chain, modelFile, samples);
+  } finally { await chain.release(); }
+  if (!check.ok) throw new OfframpError('runtime', `the staged chain does not reproduce the model: ${check.diffs.filter((d) => !d.ok).map((d) => d.name).join(', ')}`, modelFile);
+
+  say('budget', o.target ? o.target.name ?? 'target' : 'no target given');
+  const staged = stagedOrder(g, split.stages);
+  const cost = costModel({ ...staged.model, file: modelFile }, { stageEnds: staged.ends, shapes: await completeShapes(staged.model, { batch: 1 }) });
+  const budget = o.target && budgetOf(staged.model, cost, o.target, o.int8 ? 'int8' : 'stored');
+
+  return {
+    dir: o.out, model: modelFile, files: [modelFile, ...split.files],
+    candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
+    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget,
+  };
+}
