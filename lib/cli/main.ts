@@ -9,6 +9,8 @@ import { emitCCommand } from './emit-c.js';
 import { buildCommand } from './build.js';
 import { tuneCommand } from './tune.js';
 import { replayCommand } from './replay.js';
+import { tuneCommand } from './tune.js';
+import { replayCommand } from './replay.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -27,6 +29,8 @@ export async function main(argv: string[]): Promise<number> {
   checkCommand(program);
   emitCCommand(program);
   buildCommand(program);
+  tuneCommand(program);
+  replayCommand(program);
   tuneCommand(program);
   replayCommand(program);
   for (const c of program.commands) c.exitOverride();

@@ -1,0 +1,64 @@
+// `offramp replay DIR --data X.npy`: the chain frame by frame under the tuned
+// (or a given) policy, with per-frame exits, MACs, results and scenes.
+import fs from 'node:fs';
+import type { Command } from 'commander';
+import { loadChain } from '../run/chain.js';
+import { chainLayout, readLabels } from '../tune/chain-capture.js';
+import { replay, type ReplayResult } from '../tune/replay.js';
+import { checkPolicy, type Policy } from '../policy/policy.js';
+import { si, table, toJson } from '../report/units.js';
+import { OfframpError, usageError } from '../errors.js';
+import { emit } from './common.js';
+import { writeAtomic } from '../util/atomic.js';
+
+/** --policy: inline JSON, or a JSON file. */
+function readPolicy(v: string): unknown {
+  const text = v.trim().startsWith('{') ? v : (() => {
+    try { return fs.readFileSync(v, 'utf8'); } catch { throw usageError(`--policy takes a policy as JSON or a JSON file; cannot read '${v}'`); }
+  })();
+  try { return JSON.parse(text); } catch (e) { throw usageError(`--policy is not valid JSON: ${(e as Error).message}`); }
+}
+
+export const replayCsv = (r: ReplayResult): string => {
+  const withTruth = r.frames.some((f) => f.truth !== undefined);
+  const head = ['frame', 'exit', 'exit_index', 'macs', 'label', 'scene', 'reused', ...(withTruth ? ['truth', 'correct'] : [])];
+  return [head.join(','), ...r.frames.map((f) => [f.frame, f.exitName, f.exit, f.macs, f.label, f.scene, f.reused ? 1 : 0, ...(withTruth ? [f.truth, f.truth === f.label ? 1 : 0] : [])].join(','))].join('\n') + '\n';
+};
+
+function replayText(r: ReplayResult): string {
+  const s = r.summary;
+  const pct = (x: number) => `${(x * 100).toFixed(2)} %`;
+  return [
+    `policy: ${JSON.stringify(r.policy)}`,
+    '',
+    table(['frames', 'accuracy', 'mean MACs', 'full MACs', 'saving', 'scenes', 'reused'], [[String(s.frames), s.accuracy === undefined ? '-' : pct(s.accuracy), si(s.meanMacs), si(s.fullMacs), pct(s.saving), String(s.scenes), pct(s.reusedShare)]]),
+    '',
+    table(['exit', 'share'], s.exitShare.map((x, k) => [r.exits[k], pct(x)])),
+  ].join('\n') + '\n';
+}
+
+export function replayCommand(program: Command): void {
+  program.command('replay')
+    .description('run the chain frame by frame (temporal order) under the tuned or a given policy')
+    .argument('<dir>', 'split folder (or its manifest.json)')
+    .requiredOption('--data <file>', '.npy frames [N, ...] in temporal order')
+    .option('--labels <file>', '.npy labels [N], for accuracy')
+    .option('--segments <file>', '.npy segment ids [N]: where the id changes a new stream starts (no scene carries over)')
+    .option('--policy <json|file>', 'policy as JSON (default: the one tune wrote into the manifest)')
+    .option('--csv <file>', 'write one CSV row per frame')
+    .option('--json', 'machine-readable result (schema offramp-replay/1)')
+    .action(async (dir: string, o: { data: string; labels?: string; segments?: string; policy?: string; csv?: string; json?: boolean }) => {
+      const labels = o.labels ? readLabels(o.labels) : undefined;
+      const segments = o.segments ? readLabels(o.segments) : undefined;
+      const chain = await loadChain(dir);
+      try {
+        const layout = chainLayout(chain.manifest, chain.dir);
+        const raw = o.policy ? readPolicy(o.policy) : chain.manifest.policy?.rule;
+        if (!raw) throw new OfframpError('usage', 'no policy in the manifest: run offramp tune first, or give --policy', chain.dir);
+        const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');
+        const r = await replay(chain, layout, policy, o.data, { labels, segments });
+        if (o.csv) writeAtomic(o.csv, replayCsv(r));
+        emit(o.json ? toJson({ schema: 'offramp-replay/1', data: o.data, ...r }) + '\n' : replayText(r));
+      } finally { await chain.release(); }
+    });
+}
