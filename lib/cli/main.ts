@@ -9,8 +9,6 @@ import { emitCCommand } from './emit-c.js';
 import { buildCommand } from './build.js';
 import { tuneCommand } from './tune.js';
 import { replayCommand } from './replay.js';
-import { tuneCommand } from './tune.js';
-import { replayCommand } from './replay.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -29,8 +27,6 @@ export async function main(argv: string[]): Promise<number> {
   checkCommand(program);
   emitCCommand(program);
   buildCommand(program);
-  tuneCommand(program);
-  replayCommand(program);
   tuneCommand(program);
   replayCommand(program);
   for (const c of program.commands) c.exitOverride();
