@@ -32,7 +32,8 @@ export function readIdx(file: string): Idx {
   const n = dims.reduce((a, b) => a * b, 1), [size, get, C] = t;
   if (buf.length < start + n * size) throw err(`truncated: dims [${dims.join(', ')}] need ${start + n * size} bytes, file has ${buf.length}`, file);
   let data: IdxData;
-  if (size === 1) data = buf[2] === 0x08 ? buf.slice(start, start + n) : new Int8Array(buf.slice(start, start + n).buffer);
+  // new Uint8Array(view) copies: a Buffer's slice() is a view that would pin the whole file.
+  if (size === 1) { const b = new Uint8Array(buf.subarray(start, start + n)); data = buf[2] === 0x08 ? b : new Int8Array(b.buffer); }
   else { data = new C(n); for (let i = 0; i < n; i++) data[i] = get(v, start + i * size); }
   return { type: buf[2], dims, data };
 }
