@@ -58,7 +58,8 @@ export function replayCommand(program: Command): void {
         const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');
         const r = await replay(chain, layout, policy, o.data, { labels, segments });
         if (o.csv) writeAtomic(o.csv, replayCsv(r));
-        emit(o.json ? toJson({ schema: 'offramp-replay/1', data: o.data, ...r }) + '\n' : replayText(r));
+        // per-frame rows go to --csv: a JSON of every frame would dwarf the summary scripts read
+        emit(o.json ? toJson({ schema: 'offramp-replay/1', data: o.data, policy: r.policy, exits: r.exits, summary: r.summary }) + '\n' : replayText(r));
       } finally { await chain.release(); }
     });
 }

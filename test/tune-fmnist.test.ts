@@ -1,0 +1,98 @@
+// offramp tune and replay end to end on the Fashion-MNIST CNN fixture (scripts/train-fmnist.py) with
+// Debian's dataset-fashion-mnist: graft linear heads on training rows, split at the exits, tune on the
+// 10k test set, replay the chosen policy, then a stream made of the test set.
+import { beforeAll, describe, expect, it } from 'vitest';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { readIdxImages, readIdxLabels } from '../lib/data/idx.js';
+import { writeNpy } from '../lib/data/npy.js';
+import { mulberry32 } from '../lib/graph/build.js';
+import { offramp } from './helpers/cli.js';
+
+const MODEL = 'test/fixtures/fmnist/cnn.onnx';
+const DIR = process.env.OFFRAMP_FMNIST ?? '/usr/share/datasets/fashion-mnist';
+const have = fs.existsSync(MODEL) && fs.existsSync(`${DIR}/t10k-images-idx3-ubyte.gz`);
+if (!have && process.env.CI) throw new Error(`Fashion-MNIST missing at ${DIR}: apt-get install dataset-fashion-mnist`);
+
+const per = 28 * 28;
+const json = (r: { code: number; stdout: string; stderr: string }) => {
+  if (r.code !== 0) throw new Error(`offramp exited ${r.code}: ${r.stderr}`);
+  return JSON.parse(r.stdout);
+};
+
+describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
+  const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-tune-'));
+  const split = path.join(tmp, 'split');
+  beforeAll(() => {
+    const train = readIdxImages(`${DIR}/train-images-idx3-ubyte.gz`), trainY = readIdxLabels(`${DIR}/train-labels-idx1-ubyte.gz`);
+    const test = readIdxImages(`${DIR}/t10k-images-idx3-ubyte.gz`), testY = readIdxLabels(`${DIR}/t10k-labels-idx1-ubyte.gz`);
+    const N = 5000;
+    writeNpy(path.join(tmp, 'train.npy'), train.data.slice(0, N * per), [N, 1, 28, 28]);
+    writeNpy(path.join(tmp, 'train_y.npy'), Int32Array.from(trainY.subarray(0, N)), [N]);
+    writeNpy(path.join(tmp, 'test.npy'), test.data, [test.count, 1, 28, 28]);
+    writeNpy(path.join(tmp, 'test_y.npy'), Int32Array.from(testY), [test.count]);
+    // a stream: runs of 10–40 frames of one test image, each frame with small noise; a shift of up to one
+    // pixel that jitters now and then (a quarter of the frames), as a camera mount does
+    const rnd = mulberry32(3);
+    const frames: number[] = [], labels: number[] = [];
+    const F = 3000;
+    while (labels.length < F) {
+      const src = Math.floor(rnd() * test.count), len = Math.min(10 + Math.floor(rnd() * 31), F - labels.length);
+      let dx = 0, dy = 0;
+      for (let f = 0; f < len; f++) {
+        if (rnd() < 0.25) { dx = Math.floor(rnd() * 3) - 1; dy = Math.floor(rnd() * 3) - 1; }
+        for (let y = 0; y < 28; y++) for (let x = 0; x < 28; x++) {
+          const sx = x - dx, sy = y - dy;
+          const v = sx >= 0 && sx < 28 && sy >= 0 && sy < 28 ? test.data[src * per + sy * 28 + sx] : 0;
+          frames.push(Math.min(1, Math.max(0, v + 0.02 * (rnd() - 0.5))));
+        }
+        labels.push(testY[src]);
+      }
+    }
+    writeNpy(path.join(tmp, 'stream.npy'), Float32Array.from(frames), [F, 1, 28, 28]);
+    writeNpy(path.join(tmp, 'stream_y.npy'), Int32Array.from(labels), [F]);
+    const g = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0,/b3/b3.1/Relu_output_0',
+      '--data', path.join(tmp, 'train.npy'), '--labels', path.join(tmp, 'train_y.npy'), '-o', path.join(tmp, 'grafted.onnx')]);
+    if (g.code !== 0) throw new Error(g.stderr);
+    const s = offramp(['split', path.join(tmp, 'grafted.onnx'), '-o', split]);
+    if (s.code !== 0) throw new Error(s.stderr);
+  });
+
+  it('a policy within 1 point of the full model on the test set spends clearly fewer MACs', () => {
+    const r = json(offramp(['tune', split, '--data', path.join(tmp, 'test.npy'), '--labels', path.join(tmp, 'test_y.npy'), '--max-drop', '1', '--json', '--report', path.join(tmp, 'report.html')]));
+    const full = r.full.held, chosen = r.chosen.held;
+    console.log(`Fashion-MNIST tune: full ${(full.accuracy * 100).toFixed(2)} % at ${full.meanMacs} MACs; chosen ${r.chosen.policy.kind} ${(chosen.accuracy * 100).toFixed(2)} % at ${chosen.meanMacs.toFixed(0)} MACs: saving ${((1 - chosen.meanMacs / full.meanMacs) * 100).toFixed(1)} % (held-out ${chosen.samples} samples; ${r.settings} settings)`);
+    expect((full.accuracy - chosen.accuracy) * 100).toBeLessThanOrEqual(1);
+    expect(chosen.meanMacs).toBeLessThan(0.85 * full.meanMacs);
+    const m = JSON.parse(fs.readFileSync(path.join(split, 'manifest.json'), 'utf8'));
+    expect(m.policy.rule).toEqual(r.chosen.policy);
+    const html = fs.readFileSync(path.join(tmp, 'report.html'), 'utf8');
+    expect(html.match(/<svg /g)?.length).toBe(3);
+    expect(html).not.toMatch(/<script|src=|href=/);
+    // replay through the runner spends what the tuner predicted on the same frames
+    const p = json(offramp(['replay', split, '--data', path.join(tmp, 'test.npy'), '--labels', path.join(tmp, 'test_y.npy'), '--json', '--csv', path.join(tmp, 'frames.csv')]));
+    expect(p.summary.frames).toBe(10000);
+    expect(p.summary.meanMacs).toBeLessThan(0.85 * p.summary.fullMacs);
+    expect(p.summary.exitShare.length).toBe(4);
+    expect(fs.readFileSync(path.join(tmp, 'frames.csv'), 'utf8').split('\n').length).toBe(10002);
+    const rows = fs.readFileSync(path.join(tmp, 'frames.csv'), 'utf8').trim().split('\n').slice(1).map((l) => l.split(','));
+    const held = rows.filter((_, i) => i % 2 === 1); // the tuner's held-out part: every odd sample
+    const heldMacs = held.reduce((a, r) => a + Number(r[3]), 0) / held.length;
+    expect(heldMacs).toBeCloseTo(chosen.meanMacs, 3);
+  });
+
+  it('on a stream of the test set, stream policies spend far fewer MACs than per-frame ones at the same bound', () => {
+    const data = ['--data', path.join(tmp, 'stream.npy'), '--labels', path.join(tmp, 'stream_y.npy')];
+    const frame = json(offramp(['tune', split, ...data, '--no-write', '--json']));
+    const stream = json(offramp(['tune', split, ...data, '--stream', '--json']));
+    expect(['difference', 'agreeing']).toContain(stream.chosen.policy.kind);
+    expect((stream.full.held.accuracy - stream.chosen.held.accuracy) * 100).toBeLessThanOrEqual(1);
+    const r = json(offramp(['replay', split, ...data, '--json']));
+    const pf = json(offramp(['replay', split, ...data, '--policy', JSON.stringify(frame.chosen.policy), '--json']));
+    console.log(`Fashion-MNIST stream (3000 frames): per-frame ${frame.chosen.policy.kind} ${pf.summary.meanMacs.toFixed(0)} MACs at ${(pf.summary.accuracy * 100).toFixed(2)} %; ` +
+      `${stream.chosen.policy.kind} ${r.summary.meanMacs.toFixed(0)} MACs at ${(r.summary.accuracy * 100).toFixed(2)} %, ${r.summary.scenes} scenes; full ${r.summary.fullMacs} MACs`);
+    expect(r.summary.meanMacs).toBeLessThan(0.5 * pf.summary.meanMacs);
+    expect(r.summary.accuracy).toBeGreaterThan(pf.summary.accuracy - 0.02);
+  });
+});
