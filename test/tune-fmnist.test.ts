@@ -1,7 +1,7 @@
 // offramp tune and replay end to end on the Fashion-MNIST CNN fixture (scripts/train-fmnist.py) with
 // Debian's dataset-fashion-mnist: graft linear heads on training rows, split at the exits, tune on the
 // 10k test set, replay the chosen policy, then a stream made of the test set.
-import { beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
@@ -24,6 +24,7 @@ const json = (r: { code: number; stdout: string; stderr: string }) => {
 describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-tune-'));
   const split = path.join(tmp, 'split');
+  afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
   beforeAll(() => {
     const train = readIdxImages(`${DIR}/train-images-idx3-ubyte.gz`), trainY = readIdxLabels(`${DIR}/train-labels-idx1-ubyte.gz`);
     const test = readIdxImages(`${DIR}/t10k-images-idx3-ubyte.gz`), testY = readIdxLabels(`${DIR}/t10k-labels-idx1-ubyte.gz`);
