@@ -1,0 +1,461 @@
+// emit-c: the generated C, compiled with gcc, decides exactly as lib/policy does.
+// A harness (C main below) reads an exit cache (samples × (exits+1) × classes,
+// float32 or int8 with per-exit scale and zero point), runs the emitted
+// offramp_policy both through the whole-sample functions and stage by stage
+// as a firmware would, and writes its decisions; every one must equal the
+// TypeScript's. Thresholds are scores and distances of the data itself, as the
+// tuner's are, so exact ties with the threshold are common; the data holds
+// exact and one-ulp logit ties, uniform vectors and exp underflow. The exp and
+// log inside the C are checked bit for bit against V8's Math.exp / Math.log.
+import { spawn, spawnSync } from 'node:child_process';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { describe, it, expect, afterAll } from 'vitest';
+import { mulberry32 } from '../lib/graph/build.js';
+import {
+  chainFor, confidence, distance, DISTANCES, entropy, fullModel, margin, runFrame, softmax, streamStart, streamStep, worstCase,
+  type DistanceKind, type ExitView, type FramePolicy, type Policy, type StreamPolicy,
+} from '../lib/policy/index.js';
+import { emitC, hexDouble, cString } from '../lib/emit/c.js';
+import { chainTable } from '../lib/emit/table.js';
+import type { Manifest, ManifestTensor } from '../lib/split/manifest.js';
+import { main } from '../lib/cli/main.js';
+
+const GCC = spawnSync('gcc', ['--version']).status === 0;
+if (!GCC && process.env.CI) throw new Error('gcc is missing: the emit-c tests need it under CI');
+const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-emitc-'));
+afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
+const CFLAGS = ['-std=c99', '-Wall', '-Wextra', '-Werror', '-pedantic', '-O2'];
+
+const E = 3, C = 10, E1 = E + 1;
+
+// ---- a split manifest: 4 stages, exit-k made by stage k, the final output by the last
+function manifest(policy?: Policy): Manifest & { policy?: Policy } {
+  const t = (name: string, shape: number[]): ManifestTensor => ({ name, dtype: 'float32', shape, bytes: shape.reduce((a, d) => a * d, 1) * 4 });
+  return {
+    schema: 'offramp-manifest/1', source: { file: '../model.onnx', sha256: '0'.repeat(64) }, order: 'file',
+    inputs: [t('input', [1, 1, 32, 32])],
+    outputs: [t('logits', [1, C]), ...Array.from({ length: E }, (_, k) => t(`exit-${k}`, [1, C]))],
+    stages: Array.from({ length: E1 }, (_, i) => ({
+      index: i, file: `stage-${i}.onnx`, sha256: '0'.repeat(64), nodes: 7,
+      inputs: [{ ...t(i ? `h${i}` : 'input', i ? [1, 8, 16, 16] : [1, 1, 32, 32]), from: i ? i - 1 : ('input' as const) }],
+      outputs: i < E
+        ? [{ ...t(`h${i + 1}`, [1, 8, 16, 16]), to: [i + 1], modelOutput: false }, { ...t(`exit-${i}`, [1, C]), to: [], modelOutput: true }]
+        : [{ ...t('logits', [1, C]), to: [], modelOutput: true }],
+      exits: i < E ? [`exit-${i}`] : [], cut: i < E ? [`h${i + 1}`] : [],
+      macs: 50_000 * (i + 1) + 1_000, macFraction: 0, weightBytes: 2048 * (i + 1), peakActivationBytes: 16384, handoverBytes: i < E ? 8192 : 0,
+    })),
+    sharedWeights: [], totals: { macs: 0, weightBytes: 0, stageWeightBytes: 0 },
+    ...(policy && { policy }),
+  };
+}
+const reach = chainTable(manifest()).reach.map(Number);
+
+// ---- data: float32 logits, then their int8 quantisation and its float32 dequantisation
+interface Cache { n: number; z: Float32Array }
+function frames(n: number, seed: number, stream: boolean): Cache {
+  const rnd = mulberry32(seed);
+  const gauss = () => Math.sqrt(-2 * Math.log(1 - rnd())) * Math.cos(2 * Math.PI * rnd());
+  const z = new Float32Array(n * E1 * C);
+  let y = 0, hard = 0, noise = 1, left = 0;
+  const base = new Float64Array(E1 * C);
+  for (let i = 0; i < n; i++) {
+    if (!stream || left-- <= 0) {
+      y = Math.floor(rnd() * C); hard = rnd(); noise = stream ? 0.02 + 0.3 * rnd() : 1; left = 5 + Math.floor(rnd() * 60);
+      for (let j = 0; j < base.length; j++) base[j] = gauss();
+    }
+    const special = i % 11;
+    for (let k = 0; k < E1; k++) {
+      const o = (i * E1 + k) * C;
+      const scale = special === 4 ? 40 : 1;
+      for (let c = 0; c < C; c++) z[o + c] = scale * (stream ? base[k * C + c] + noise * gauss() : gauss());
+      z[o + y] += scale * (6 * (k + 1) / E1 - 4 * hard + 1);
+      if (special === 0) z[o + (y + 1) % C] = z[o + y];                                   // exact tie
+      if (special === 1) z[o + (y + 3) % C] = z[o + y] - ulp32(z[o + y]);                  // one-ulp near tie
+      if (special === 2 && k === 1) z.fill(z[o], o, o + C);                                // uniform
+      if (special === 3 && k > 0) z.copyWithin(o, o - C, o);                               // same prediction at every exit
+    }
+    if (stream && special === 5 && i > 0) z.copyWithin(i * E1 * C, (i - 1) * E1 * C, i * E1 * C);  // a repeated frame: distance 0
+  }
+  return { n, z };
+}
+function ulp32(x: number): number {
+  const b = new Float32Array([x]), u = new Uint32Array(b.buffer);
+  u[0] += 1;
+  return Math.abs(b[0] - x) || 1e-45;
+}
+interface Q8 { q: Int8Array; scale: Float32Array; zp: Int32Array; deq: Float32Array }
+function quantise(c: Cache): Q8 {
+  const scale = new Float32Array(E1), zp = new Int32Array(E1);
+  for (let k = 0; k < E1; k++) {
+    let lo = Infinity, hi = -Infinity;
+    for (let i = 0; i < c.n; i++) for (let j = 0; j < C; j++) { const v = c.z[(i * E1 + k) * C + j]; lo = Math.min(lo, v); hi = Math.max(hi, v); }
+    scale[k] = Math.fround((hi - lo) / 255 / 4);  // clip the tails: more saturation, more ties
+    zp[k] = k - 2;
+  }
+  const q = new Int8Array(c.z.length), deq = new Float32Array(c.z.length);
+  for (let i = 0; i < c.z.length; i++) {
+    const k = Math.floor(i / C) % E1;
+    q[i] = Math.max(-128, Math.min(127, Math.round(c.z[i] / scale[k]) + zp[k]));
+    deq[i] = Math.fround((q[i] - zp[k]) * scale[k]);  // ONNX DequantizeLinear, in float32
+  }
+  return { q, scale, zp, deq };
+}
+
+const view = (z: Float32Array, i: number): ExitView => ({ data: () => z, offset: (k) => (i * E1 + k) * C });
+
+// ---- the TypeScript's decisions
+function expectFrame(p: FramePolicy, z: Float32Array, n: number): Int32Array {
+  const ch = chainFor(p, reach, E, C);
+  const out = new Int32Array(n * 2);
+  for (let i = 0; i < n; i++) { const r = runFrame(p, ch, view(z, i)); out[2 * i] = r.exit; out[2 * i + 1] = r.label; }
+  return out;
+}
+function expectStream(p: StreamPolicy, z: Float32Array, n: number): Int32Array {
+  const ch = chainFor(p.then ?? fullModel(E), reach, E, C);
+  const s = streamStart(C);
+  const out = new Int32Array(n * 4);
+  for (let i = 0; i < n; i++) {
+    const r = streamStep(p, s, view(z, i), ch);
+    out.set([r.exit, r.label, r.reused ? 1 : 0, r.scene], 4 * i);
+  }
+  return out;
+}
+
+// ---- thresholds taken from the data, as the tuner takes them
+const quantiles = (v: number[], qs: number[]) => { const s = [...v].sort((a, b) => a - b); return qs.map((q) => s[Math.min(s.length - 1, Math.floor(q * s.length))]); };
+function scoreThresholds(kind: 'confidence' | 'entropy' | 'margin', zs: Float32Array[], n: number, qs: number[][]): (number | null)[][] {
+  const f = kind === 'confidence' ? confidence : kind === 'margin' ? margin : entropy;
+  return qs.map((set) => set.map((q, k) => {
+    if (q < 0) return null;
+    const v: number[] = [];
+    for (const z of zs) for (let i = 0; i < n; i++) v.push(f(z, (i * E1 + k) * C, C));
+    return quantiles(v, [q])[0];
+  }));
+}
+function distanceThresholds(kind: DistanceKind, zs: Float32Array[], n: number, k: number, qs: number[]): number[] {
+  const a = new Float64Array(C), b = new Float64Array(C), v: number[] = [];
+  for (const z of zs) for (let i = 1; i < n; i++) {
+    softmax(z, ((i - 1) * E1 + k) * C, C, a); softmax(z, (i * E1 + k) * C, C, b);
+    v.push(distance(kind, b, a, C));
+  }
+  return quantiles(v.filter(Number.isFinite), qs);
+}
+
+// ---- the harness: decisions through the whole-sample API and stage by stage
+const HARNESS = `#include <stdio.h>
+#include <stdlib.h>
+#include "offramp_policy.h"
+#define E OFFRAMP_EXITS
+#define C OFFRAMP_CLASSES
+static void put(FILE *f, int32_t v) { fwrite(&v, 4, 1, f); }
+int main(int argc, char **argv) {
+  FILE *in, *out;
+  int32_t n, i, k, j;
+  int q8;
+  offramp_q8_t qp[E + 1];
+  float *zf = NULL; int8_t *zq = NULL;
+#if OFFRAMP_POLICY_STREAM
+  offramp_stream_t s1, s2;
+#endif
+  if (argc != 4) return 2;
+  q8 = argv[1][0] == 'q';
+  in = fopen(argv[2], "rb"); out = fopen(argv[3], "wb");
+  if (!in || !out || fread(&n, 4, 1, in) != 1) return 3;
+  if (q8) {
+    for (k = 0; k <= E; k++) if (fread(&qp[k].scale, 4, 1, in) != 1 || fread(&qp[k].zero_point, 4, 1, in) != 1) return 3;
+    zq = malloc((size_t)n * (E + 1) * C);
+    if (!zq || fread(zq, 1, (size_t)n * (E + 1) * C, in) != (size_t)n * (E + 1) * C) return 3;
+  } else {
+    zf = malloc((size_t)n * (E + 1) * C * 4);
+    if (!zf || fread(zf, 4, (size_t)n * (E + 1) * C, in) != (size_t)n * (E + 1) * C) return 3;
+  }
+#if OFFRAMP_POLICY_STREAM
+  offramp_stream_start(&s1); offramp_stream_start(&s2);
+#endif
+  for (i = 0; i < n; i++) {
+    const float *z[E + 1];
+    const int8_t *q[E + 1];
+    for (k = 0; k <= E; k++) { z[k] = zf ? zf + ((size_t)i * (E + 1) + k) * C : NULL; q[k] = zq ? zq + ((size_t)i * (E + 1) + k) * C : NULL; }
+#if OFFRAMP_POLICY_STREAM
+    {
+      const offramp_stream_policy_t *p = &offramp_policy;
+      offramp_stream_result_t r = q8 ? offramp_stream_step_q8(p, &s1, q, qp) : offramp_stream_step(p, &s1, z);
+      int32_t c = offramp_stream_compare_exit(p, &s2), label;
+      int tested = 0;
+      put(out, r.exit); put(out, r.label); put(out, r.reused); put(out, r.scene);
+      if (s2.scene >= 0) {
+        if (q8 ? offramp_stream_test_q8(p, &s2, q[c], qp[c]) : offramp_stream_test(p, &s2, z[c])) {
+          put(out, c); put(out, s2.label); put(out, 1); put(out, s2.scene);
+          continue;
+        }
+        tested = 1;
+      }
+      {
+        offramp_frame_t f;
+        offramp_frame_start(&f);
+        for (j = c > 0 ? c : 0; j < E; j++) if (q8 ? offramp_decide_q8(&p->then, &f, j, q[j], qp[j]) : offramp_decide(&p->then, &f, j, z[j])) break;
+      }
+      label = q8 ? offramp_argmax_q8(q[j]) : offramp_argmax(z[j]);
+      if (q8) offramp_stream_open_q8(p, &s2, q, qp, j, label, tested); else offramp_stream_open(p, &s2, z, j, label, tested);
+      put(out, j > c ? j : c); put(out, label); put(out, 0); put(out, s2.scene);
+    }
+#else
+    {
+      offramp_result_t r = q8 ? offramp_run_frame_q8(&offramp_policy, q, qp, 0) : offramp_run_frame(&offramp_policy, z, 0);
+      offramp_frame_t f;
+      put(out, r.exit); put(out, r.label);
+      offramp_frame_start(&f);
+      for (j = 0; j < E; j++) if (q8 ? offramp_decide_q8(&offramp_policy, &f, j, q[j], qp[j]) : offramp_decide(&offramp_policy, &f, j, z[j])) break;
+      put(out, j); put(out, q8 ? offramp_argmax_q8(q[j]) : offramp_argmax(z[j]));
+    }
+#endif
+  }
+  free(zf); free(zq);
+  return fclose(out) ? 4 : 0;
+}
+`;
+
+function run(cmd: string, args: string[], cwd: string): Promise<void> {
+  return new Promise((resolve, reject) => {
+    const c = spawn(cmd, args, { cwd, stdio: ['ignore', 'ignore', 'pipe'] });
+    let err = '';
+    c.stderr.on('data', (d) => { err += d; });
+    c.on('close', (code) => (code === 0 ? resolve() : reject(new Error(`${cmd} ${args.join(' ')} (in ${cwd}) exited ${code}\n${err}`))));
+  });
+}
+async function pool<T>(items: T[], f: (x: T, i: number) => Promise<void>): Promise<void> {
+  let next = 0;
+  await Promise.all(Array.from({ length: Math.max(1, os.cpus().length) }, async () => { while (next < items.length) { const i = next++; await f(items[i], i); } }));
+}
+
+function writeInputs(dir: string, c: Cache, q: Q8): void {
+  const head = new Int32Array([c.n]);
+  fs.writeFileSync(path.join(dir, 'f32.bin'), Buffer.concat([Buffer.from(head.buffer), Buffer.from(c.z.buffer)]));
+  const qp = Buffer.alloc(E1 * 8);
+  for (let k = 0; k < E1; k++) { qp.writeFloatLE(q.scale[k], 8 * k); qp.writeInt32LE(q.zp[k], 8 * k + 4); }
+  fs.writeFileSync(path.join(dir, 'q8.bin'), Buffer.concat([Buffer.from(head.buffer), qp, Buffer.from(q.q.buffer)]));
+}
+
+const label = (p: Policy) => JSON.stringify(p);
+
+describe.skipIf(!GCC)('emit-c against lib/policy', () => {
+  const N = 4400, NS = 3300;
+  const val = frames(N, 11, false), valQ = quantise(val);
+  const str = frames(NS, 12, true), strQ = quantise(str);
+
+  // per-frame policies
+  const frame: FramePolicy[] = [];
+  const QS = [[0.3, 0.5, 0.7], [0.5, -1, 0.2], [0.9, 0.9, 0.9], [0, 0.5, 1 - 1e-9]];
+  for (const kind of ['confidence', 'entropy', 'margin'] as const)
+    for (const th of scoreThresholds(kind, [val.z, valQ.deq], N, QS)) frame.push({ kind, thresholds: th });
+  for (const patience of [1, 2, 3, 4]) frame.push({ kind: 'patience', thresholds: [], patience });
+  const worst = worstCase({ kind: 'budget', thresholds: [], budget: 0 }, reach, E, C);
+  for (const k of [0, 1, 2, 3]) frame.push({ kind: 'budget', thresholds: [], budget: worst[k] });
+  frame.push({ kind: 'budget', thresholds: [], budget: worst[1] - 1 });
+  for (const [i, score] of (['confidence', 'entropy', 'margin'] as const).entries()) {
+    const th = scoreThresholds(score, [val.z, valQ.deq], N, [[0.4, 0.6, 0.8]])[0];
+    const p: FramePolicy = { kind: 'budget', thresholds: th, budget: 0, score };
+    p.budget = worstCase(p, reach, E, C)[1 + i];
+    frame.push(p);
+  }
+
+  // stream policies: every distance, difference at every exit (the final output too), agreeing; several `then`s
+  const thens: (FramePolicy | undefined)[] = [undefined, frame[0], frame[13], frame[17], frame[22]];
+  const stream: StreamPolicy[] = [];
+  let t = 0;
+  for (const d of DISTANCES) {
+    for (const exit of [0, 1, 2, 3]) {
+      const [tau] = distanceThresholds(d, [str.z, strQ.deq], NS, exit, [0.3 + 0.15 * exit]);
+      const then = thens[t++ % thens.length];
+      stream.push({ kind: 'difference', thresholds: [tau], distance: d, exit, ...(then && { then }) });
+    }
+    for (const q of [0.25, 0.6]) {
+      const [tau] = distanceThresholds(d, [str.z, strQ.deq], NS, 0, [q]);
+      const then = thens[t++ % thens.length];
+      stream.push({ kind: 'agreeing', thresholds: [tau], distance: d, ...(then && { then }) });
+    }
+  }
+
+  it('the data holds what the checks need: exact threshold ties, logit ties, reuse and scene changes', () => {
+    let atThreshold = 0;
+    for (const p of frame.slice(0, 12) as { kind: 'confidence' | 'entropy' | 'margin'; thresholds: (number | null)[] }[]) {
+      const f = p.kind === 'confidence' ? confidence : p.kind === 'margin' ? margin : entropy;
+      for (let i = 0; i < N; i++) for (let k = 0; k < E; k++) if (f(val.z, (i * E1 + k) * C, C) === p.thresholds[k]) atThreshold++;
+    }
+    expect(atThreshold).toBeGreaterThan(20);
+    const e = expectStream(stream[1], str.z, NS);
+    let reused = 0;
+    for (let i = 0; i < NS; i++) reused += e[4 * i + 2];
+    expect(reused).toBeGreaterThan(NS * 0.1);
+    expect(e[4 * (NS - 1) + 3]).toBeGreaterThan(50);
+  });
+
+  it('every policy kind and distance: identical decisions on float32 and int8 logits, whole-sample and stage by stage', async () => {
+    const dir = path.join(tmp, 'parity');
+    fs.mkdirSync(dir, { recursive: true });
+    const vdir = path.join(dir, 'val'), sdir = path.join(dir, 'stream');
+    fs.mkdirSync(vdir); fs.mkdirSync(sdir);
+    writeInputs(vdir, val, valQ);
+    writeInputs(sdir, str, strQ);
+    const all: Policy[] = [...frame, ...stream];
+    const emitted = (p: Policy) => emitC({ manifest: manifest(), manifestName: 'manifest.json', manifestSha256: '0'.repeat(64), policy: p, policyFrom: 'test' }).files;
+    // the harness once per header shape (frame, stream); the source per policy
+    for (const [name, p] of [['h-frame', frame[0]], ['h-stream', stream[0]]] as const) {
+      const h = path.join(dir, name);
+      fs.mkdirSync(h);
+      for (const f of emitted(p)) fs.writeFileSync(path.join(h, f.name), f.text);
+      fs.writeFileSync(path.join(h, 'harness.c'), HARNESS);
+      await run('gcc', [...CFLAGS, '-c', 'harness.c', '-o', 'harness.o'], h);
+    }
+    const failures: string[] = [];
+    await pool(all, async (p, i) => {
+      const d = path.join(dir, `p${i}`);
+      fs.mkdirSync(d);
+      for (const f of emitted(p)) fs.writeFileSync(path.join(d, f.name), f.text);
+      const isStream = p.kind === 'difference' || p.kind === 'agreeing';
+      await run('gcc', [...CFLAGS, 'offramp_policy.c', path.join(dir, isStream ? 'h-stream' : 'h-frame', 'harness.o'), '-o', 'h', '-lm'], d);
+      const data = isStream ? sdir : vdir;
+      for (const mode of ['f32', 'q8'] as const) {
+        await run(path.join(d, 'h'), [mode, path.join(data, `${mode}.bin`), path.join(d, `${mode}.out`)], d);
+        const b = fs.readFileSync(path.join(d, `${mode}.out`));
+        const got = new Int32Array(b.buffer, b.byteOffset, b.length / 4);
+        const z = isStream ? (mode === 'f32' ? str.z : strQ.deq) : (mode === 'f32' ? val.z : valQ.deq);
+        const n = isStream ? NS : N, w = isStream ? 4 : 2;
+        const want = isStream ? expectStream(p as StreamPolicy, z, n) : expectFrame(p as FramePolicy, z, n);
+        expect(got.length).toBe(n * 2 * w);
+        for (let s = 0; s < n; s++) for (const half of [0, 1]) for (let j = 0; j < w; j++) {
+          if (got[(2 * s + half) * w + j] !== want[s * w + j]) {
+            failures.push(`${label(p)} ${mode} ${half ? 'staged' : 'whole'} sample ${s}: C [${[...got.subarray((2 * s + half) * w, (2 * s + half + 1) * w)]}] vs TS [${[...want.subarray(s * w, (s + 1) * w)]}]`);
+            break;
+          }
+        }
+      }
+    });
+    expect(failures.slice(0, 10)).toEqual([]);
+  }, 60_000);
+
+  it('offramp_exp and offramp_log equal V8\'s Math.exp and Math.log bit for bit', async () => {
+    const d = path.join(tmp, 'explog');
+    fs.mkdirSync(d);
+    for (const f of emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: frame[0], policyFrom: 'test' }).files) fs.writeFileSync(path.join(d, f.name), f.text);
+    fs.writeFileSync(path.join(d, 'explog.c'), `#include <stdio.h>
+#include "offramp_policy.h"
+int main(int argc, char **argv) {
+  FILE *in = fopen(argv[1], "rb"), *out = fopen(argv[2], "wb");
+  double x, r[2];
+  if (argc != 3 || !in || !out) return 2;
+  while (fread(&x, 8, 1, in) == 1) { r[0] = offramp_exp(x); r[1] = offramp_log(x); fwrite(r, 8, 2, out); }
+  return fclose(out) ? 3 : 0;
+}
+`);
+    const rnd = mulberry32(5);
+    const xs: number[] = [];
+    for (let i = 0; i < 60000; i++) xs.push(-750 * rnd(), -30 * rnd(), 2 * rnd() - 1, 2 * rnd(), 2 ** (-1074 * rnd()), 1 + (rnd() - 0.5) * 1e-5, 1000 * rnd());
+    for (let i = 1; i <= 2000; i++) xs.push(i, 1 / i, -i / 7);
+    xs.push(0, -0, 1, -1, Infinity, -Infinity, 709.7, 709.79, -745.1, -745.2, 5e-324, Number.MAX_VALUE);
+    fs.writeFileSync(path.join(d, 'x.bin'), new Float64Array(xs));
+    await run('gcc', [...CFLAGS, 'explog.c', 'offramp_policy.c', '-o', 'explog', '-lm'], d);
+    await run(path.join(d, 'explog'), ['x.bin', 'r.bin'], d);
+    const b = fs.readFileSync(path.join(d, 'r.bin'));
+    const r = new Float64Array(b.buffer, b.byteOffset, b.length / 8);
+    const bad: string[] = [];
+    xs.forEach((x, i) => {
+      for (const [j, f] of [[0, Math.exp], [1, Math.log]] as const) {
+        const want = f(x), got = r[2 * i + j];
+        if (!(Object.is(got, want) || (Number.isNaN(got) && Number.isNaN(want)))) bad.push(`${j ? 'log' : 'exp'}(${x}) = ${got}, V8 ${want}`);
+      }
+    });
+    expect(bad.slice(0, 5)).toEqual([]);
+  }, 30_000);
+});
+
+describe('emit-c output', () => {
+  it('hex constants are the exact doubles; C strings escape quotes, trigraphs and non-ASCII', () => {
+    // C99 6.4.4.2 hexadecimal floating constants; values checked against their IEEE bits
+    expect(hexDouble(0.9)).toBe('0x1.ccccccccccccdp-1');
+    expect(hexDouble(1)).toBe('0x1p0');
+    expect(hexDouble(-0.5)).toBe('-0x1p-1');
+    expect(hexDouble(5e-324)).toBe('0x0.0000000000001p-1022');
+    expect(hexDouble(0)).toBe('0.0');
+    expect(cString('a"b\\c??=é')).toBe('"a\\042b\\134c\\077\\077=\\303\\251"');
+  });
+
+  it('the stage table, exits and reach follow the manifest; the banner names it and its sha256', () => {
+    const out = emitC({ manifest: manifest(), manifestName: '../split/manifest.json', manifestSha256: 'ab'.repeat(32), policy: { kind: 'confidence', thresholds: [0.5, null, 0.25] }, policyFrom: 'the manifest' });
+    const [h, c] = out.files;
+    expect(h.name).toBe('offramp_policy.h');
+    expect(h.text).toContain(`manifest: ../split/manifest.json (sha256 ${'ab'.repeat(32)})`);
+    expect(h.text).toContain('#define OFFRAMP_EXITS 3');
+    expect(h.text).toContain('#define OFFRAMP_CLASSES 10');
+    expect(h.text).toContain('#define OFFRAMP_POLICY_STREAM 0');
+    expect(c.text).toContain('{ "stage-1.onnx", UINT64_C(101000), 3u, 1u, 4u, 2u, 2048u, 8192u, 2058u, 8232u, 4096u, 16384u, 1, 1 },');
+    // reach: stages 0..k summed, 51 000 + 101 000 + …
+    expect(c.text).toContain('offramp_reach[OFFRAMP_EXITS + 1] = { UINT64_C(51000), UINT64_C(152000), UINT64_C(303000), UINT64_C(504000) }');
+    expect(c.text).toContain('{ 1, 0, 1 },\n  { 0x1p-1 /* 0.5 */, 0.0, 0x1p-2 /* 0.25 */ }');
+    expect(c.text).not.toMatch(/\d{4}-\d\d-\d\dT/);
+  });
+
+  it('manifests emit-c cannot serve are refused with the file named', () => {
+    const m = manifest();
+    m.stages[0].exits = [];
+    m.stages[0].outputs = m.stages[0].outputs.filter((o) => o.name !== 'exit-0');
+    m.outputs = m.outputs.filter((o) => o.name !== 'exit-0');
+    expect(() => chainTable(m, 'x/manifest.json')).toThrow(/numbered exit-0/);
+    const w = manifest();
+    w.outputs[1] = { ...w.outputs[1], shape: [1, 7], bytes: 28 };
+    expect(() => chainTable(w, 'x/manifest.json')).toThrow(/same classes/);
+    expect(() => emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: { kind: 'margin', thresholds: [0.1] } as Policy, policyFrom: 't' }, 'x/manifest.json'))
+      .toThrow(/margin needs 3 thresholds/);
+  });
+});
+
+describe('offramp emit-c', () => {
+  const split = path.join(tmp, 'cli-split');
+  const mfile = path.join(split, 'manifest.json');
+  const policy: Policy = { kind: 'entropy', thresholds: [0.2, 0.3, null] };
+  const runCli = async (args: string[]) => {
+    const err: string[] = [];
+    const w = process.stderr.write.bind(process.stderr), o = process.stdout.write.bind(process.stdout);
+    process.stderr.write = ((s: string) => { err.push(String(s)); return true; }) as typeof process.stderr.write;
+    process.stdout.write = (() => true) as typeof process.stdout.write;
+    try { return { code: await main(args), err: err.join('') }; } finally { process.stderr.write = w; process.stdout.write = o; }
+  };
+
+  it('reads the manifest\'s policy, writes both files, byte-identical on a second run', async () => {
+    fs.mkdirSync(split, { recursive: true });
+    fs.writeFileSync(mfile, JSON.stringify(manifest(policy), null, 2));
+    const out = path.join(tmp, 'cli-out');
+    expect((await runCli(['emit-c', split, '-o', out])).code).toBe(0);
+    const first = ['offramp_policy.h', 'offramp_policy.c'].map((f) => fs.readFileSync(path.join(out, f)));
+    expect(first[1].toString()).toContain('../cli-split/manifest.json (sha256 ');
+    expect(first[1].toString()).toContain('policy (the manifest): {"kind":"entropy","thresholds":[0.2,0.3,null]}');
+    expect((await runCli(['emit-c', mfile, '-o', out])).code).toBe(0);
+    expect(['offramp_policy.h', 'offramp_policy.c'].map((f) => fs.readFileSync(path.join(out, f)))).toEqual(first);
+    expect(fs.readdirSync(out).sort()).toEqual(['offramp_policy.c', 'offramp_policy.h']);
+  });
+
+  it('--policy overrides (inline JSON or a file); without any policy it is a usage error', async () => {
+    const bare = path.join(tmp, 'cli-bare');
+    fs.mkdirSync(bare);
+    fs.writeFileSync(path.join(bare, 'manifest.json'), JSON.stringify(manifest()));
+    const out = path.join(tmp, 'cli-out2');
+    const none = await runCli(['emit-c', bare, '-o', out]);
+    expect(none.code).toBe(2);
+    expect(none.err).toMatch(/manifest\.json: the manifest holds no policy yet/);
+    expect((await runCli(['emit-c', bare, '-o', out, '--policy', '{"kind":"patience","thresholds":[],"patience":2}'])).code).toBe(0);
+    expect(fs.readFileSync(path.join(out, 'offramp_policy.c'), 'utf8')).toContain('OFFRAMP_PATIENCE, OFFRAMP_NO_SCORE, 2, 3,');
+    const pf = path.join(tmp, 'policy.json');
+    fs.writeFileSync(pf, JSON.stringify({ kind: 'difference', thresholds: [0.1], distance: 'js', exit: 1 }));
+    expect((await runCli(['emit-c', bare, '-o', out, '--policy', pf])).code).toBe(0);
+    expect(fs.readFileSync(path.join(out, 'offramp_policy.h'), 'utf8')).toContain('#define OFFRAMP_POLICY_STREAM 1');
+    fs.writeFileSync(pf, JSON.stringify({ kind: 'difference', thresholds: [0.1], distance: 'hamming', exit: 1 }));
+    const bad = await runCli(['emit-c', bare, '-o', out, '--policy', pf]);
+    expect(bad.code).toBe(1);
+    expect(bad.err).toContain(`${pf}: policy: distance must be one of`);
+    const missing = await runCli(['emit-c', path.join(tmp, 'nowhere'), '-o', out]);
+    expect(missing.code).toBe(1);
+    expect(missing.err).toMatch(/no manifest here/);
+  });
+});
