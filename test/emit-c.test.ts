@@ -31,7 +31,7 @@ const CFLAGS = ['-std=c99', '-Wall', '-Wextra', '-Werror', '-pedantic', '-O2'];
 const E = 3, C = 10, E1 = E + 1;
 
 // ---- a split manifest: 4 stages, exit-k made by stage k, the final output by the last
-function manifest(policy?: Policy): Manifest & { policy?: Policy } {
+function manifest(policy?: Policy): Manifest {
   const t = (name: string, shape: number[]): ManifestTensor => ({ name, dtype: 'float32', shape, bytes: shape.reduce((a, d) => a * d, 1) * 4 });
   return {
     schema: 'offramp-manifest/1', source: { file: '../model.onnx', sha256: '0'.repeat(64) }, order: 'file',
@@ -47,7 +47,7 @@ function manifest(policy?: Policy): Manifest & { policy?: Policy } {
       macs: 50_000 * (i + 1) + 1_000, macFraction: 0, weightBytes: 2048 * (i + 1), peakActivationBytes: 16384, handoverBytes: i < E ? 8192 : 0,
     })),
     sharedWeights: [], totals: { macs: 0, weightBytes: 0, stageWeightBytes: 0 },
-    ...(policy && { policy }),
+    ...(policy && { policy: { rule: policy, tuned: { maxDrop: 1, labelled: true, samples: 1, accuracy: 1, fullAccuracy: 1, meanMacs: 1, fullMacs: 1, exitShare: [1] } } }),
   };
 }
 const reach = chainTable(manifest()).reach.map(Number);

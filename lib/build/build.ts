@@ -22,6 +22,7 @@ import { checkChain, npySamples, type CheckResult } from '../run/check.js';
 import { captureExits } from '../tune/model-capture.js';
 import { tune, type TuneResult } from '../tune/search.js';
 import { budgetOf, type Budget } from '../target/budget.js';
+import { writeC } from '../emit/write.js';
 import type { Target } from '../target/target.js';
 import { OfframpError } from '../errors.js';
 import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
@@ -51,6 +52,9 @@ export interface BuildOptions {
 
 export interface BuildResult {
   dir: string;
+  /** the trained model given */
+  source: string;
+  /** the grafted model written into dir */
   model: string;
   files: string[];
   candidates: { cut: string; macFraction: number; head: ExitRecord }[];
@@ -65,6 +69,8 @@ export interface BuildResult {
 }
 
 export const GRAFTED_FILE = 'model.onnx';
+/** where the C decision code goes, inside the build folder */
+export const FIRMWARE_DIR = 'firmware';
 
 /** Cumulative backbone MACs at each cut value of a plan (by the plan's step order). */
 function macsBefore(plan: CutPlan, report: CostReport): (cut: string) => number {
@@ -148,6 +154,9 @@ export async function buildExits(file: string, o: BuildOptions): Promise<BuildRe
   };
   const manifest = writeManifestPolicy(o.out, policy);
 
+  say('emit-c', 'firmware decision code');
+  const c = writeC(o.out, path.join(o.out, FIRMWARE_DIR));
+
   say('check', 'staged chain against the grafted model');
   const chain = await loadChain(o.out);
   let check: CheckResult;
@@ -163,7 +172,7 @@ export async function buildExits(file: string, o: BuildOptions): Promise<BuildRe
   const budget = o.target && budgetOf(staged.model, cost, o.target, o.int8 ? 'int8' : 'stored');
 
   return {
-    dir: o.out, model: modelFile, files: [modelFile, ...split.files],
+    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
     placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget,
   };

@@ -4,7 +4,7 @@ import type { Command } from 'commander';
 import { buildExits } from '../build/build.js';
 import { parseHead } from '../heads/spec.js';
 import { resolveTarget } from '../target/target.js';
-import { buildJson, buildText } from '../report/build.js';
+import { buildHtml, buildJson, buildText } from '../report/build.js';
 import { overLine, storedLabel } from '../report/budget.js';
 import { writeAtomic } from '../util/atomic.js';
 import { usageError } from '../errors.js';
@@ -29,7 +29,7 @@ export function buildCommand(program: Command): void {
     .argument('<model>', 'trained ONNX classifier (first output: logits)')
     .requiredOption('--data <file>', 'calibration inputs (.npy [N, …]); even rows fit the heads, odd rows tune the policy')
     .option('--labels <file>', 'integer labels .npy [N]; without them everything is judged against the model\'s own answers')
-    .requiredOption('-o, --out <dir>', 'output folder: model.onnx, stage files, manifest.json, report.json')
+    .requiredOption('-o, --out <dir>', 'output folder: model.onnx, stage files, manifest.json, report.html, report.json')
     .option('--max-drop <points>', 'accuracy the exits may cost, in percentage points', '1')
     .option('--max-exits <n>', 'most exits to place', '3')
     .option('--candidates <n>', 'candidate cuts to fit heads at', '6')
@@ -51,7 +51,8 @@ export function buildCommand(program: Command): void {
       });
       const json = buildJson(r);
       writeAtomic(path.join(o.out, 'report.json'), json);
-      emit(o.json ? json : buildText(r) + `\nreport     ${path.join(o.out, 'report.json')}\n`);
+      writeAtomic(path.join(o.out, 'report.html'), buildHtml(r));
+      emit(o.json ? json : buildText(r) + `\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
     });
 }

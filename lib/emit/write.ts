@@ -22,10 +22,10 @@ export function writeC(where: string, outDir: string, o: WriteCOptions = {}): Em
     const code = (e as NodeJS.ErrnoException).code;
     throw new OfframpError('io', code === 'ENOENT' ? 'no manifest here (run offramp split first)' : `cannot read: ${(e as Error).message}`, file);
   }
-  let manifest: Manifest & { policy?: unknown };
+  let manifest: Manifest;
   try { manifest = JSON.parse(bytes.toString('utf8')); } catch (e) { throw new OfframpError('decode', `not JSON: ${(e as Error).message}`, file); }
   if (manifest?.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${manifest?.schema}', expected '${MANIFEST_SCHEMA}'`, file);
-  const chosen = o.policy ?? (manifest.policy !== undefined ? { value: manifest.policy, from: 'the manifest' } : undefined);
+  const chosen = o.policy ?? (manifest.policy?.rule !== undefined ? { value: manifest.policy.rule, from: 'the manifest' } : undefined);
   if (!chosen) throw new OfframpError('usage', 'the manifest holds no policy yet (run offramp tune, or give --policy)', file);
 
   fs.mkdirSync(outDir, { recursive: true });

@@ -2,7 +2,9 @@
 // chain reproduces the model, and how each stage sits against the chip.
 import type { BuildResult } from '../build/build.js';
 import type { Policy } from '../policy/policy.js';
+import path from 'node:path';
 import { bytes, si, table, toJson } from './units.js';
+import { COLORS, esc, lineChart, barChart, type Series } from './svg.js';
 import { budgetText, storedLabel } from './budget.js';
 
 export const BUILD_SCHEMA = 'offramp-build/1';
@@ -23,7 +25,9 @@ export function policyText(p: Policy): string {
 export function buildSummary(r: BuildResult) {
   const t = r.policy.tuned;
   return {
+    source: r.source,
     model: r.model,
+    files: r.files.map((f) => path.relative(r.dir, f).split(path.sep).join('/')),
     exits: r.exits.map((e) => ({ output: e.output, cut: e.cut, head: e.head, macs: e.macs, params: e.params, fit: e.fit })),
     policy: r.policy.rule,
     heldOut: {
@@ -68,4 +72,49 @@ export function buildText(r: BuildResult): string {
   ];
   if (r.budget) lines.push('', budgetText(r.budget, storedLabel(r.cost)).trimEnd());
   return lines.join('\n') + '\n';
+}
+
+// ── HTML ────────────────────────────────────────────────────────────────────
+
+/** The self-contained report page: summary, charts (inline SVG), stages against the chip, exit placement. */
+export function buildHtml(r: BuildResult): string {
+  const s = buildSummary(r), h = s.heldOut;
+  const series: Series[] = s.fronts.map((k, i) => ({
+    name: k.kind, color: COLORS[i % COLORS.length], pts: k.points.map((p) => [p.meanMacs, p.accuracy * 100] as [number, number]),
+  }));
+  series.push({ name: 'full model', color: '#000', pts: [], marks: [[h.fullMacs, h.fullAccuracy * 100, 'full model']] });
+  series.push({ name: 'chosen', color: '#e377c2', pts: [], marks: [[h.meanMacs, h.accuracy * 100, `chosen: ${policyText(s.policy)}`]] });
+  const exitNames = [...s.exits.map((e) => e.output), 'final'];
+  const b = r.budget;
+  const stageRows = s.stages.map((st, k) => {
+    const sb = b?.stages[k];
+    const fit = sb ? (sb.fits ? 'fits' : '<b>over</b>') : '-';
+    const lat = sb ? `${(Number(sb.stored.latencyNs) / 1e6).toFixed(2)} ms` : '-';
+    return `<tr><td>${esc(st.file)}</td><td>${si(st.macs)}</td><td>${bytes(st.weightBytes)}</td><td>${bytes(st.peakActivationBytes)}</td><td>${st.handoverBytes ? bytes(st.handoverBytes) : '-'}</td><td>${esc(st.exits.join(', ') || 'final')}</td><td>${pct(h.exitShare[k] ?? 0)}</td><td>${lat}</td><td>${fit}</td></tr>`;
+  }).join('');
+  const candRows = s.placement.candidates.map((c) => `<tr><td><code>${esc(c.cut)}</code></td><td>${pct(c.macFraction)}</td><td>${c.accuracy === null ? '-' : pct(c.accuracy)}</td><td>${pct(c.agreement)}</td><td>${s.exits.some((e) => e.cut === c.cut) ? 'yes' : ''}</td></tr>`).join('');
+  const target = b ? `${esc(b.target.name)}: flash ${bytes(b.target.flashBytes)}, RAM ${bytes(b.target.ramBytes)}, ${b.target.clockMhz} MHz, ${b.target.macsPerCycle} MAC/cycle${b.target.rough ? ' (rough figures, from memory)' : ''}` : 'none given';
+  return `<!doctype html>
+<html lang="en"><head><meta charset="utf-8"><title>offramp build: ${esc(r.dir)}</title>
+<style>body{font-family:sans-serif;max-width:980px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}td:first-child,th:first-child{text-align:left}code{font-size:90%}.verdict{font-size:120%;font-weight:bold}.over{color:#b00}</style>
+</head><body>
+<h1>Early exits for <code>${esc(path.basename(r.source))}</code></h1>
+<p class="verdict ${b && !b.fits ? 'over' : ''}">${b ? (b.fits ? 'Every stage fits the target.' : `Over budget: ${esc(b.over.map((o) => `stage ${o.stage} ${o.resource} by ${bytes(-o.margin)}`).join('; '))}.`) : 'No target given: stages are not judged.'}</p>
+<ul>
+<li>Exits at ${s.exits.map((e) => `<code>${esc(e.cut)}</code> (${esc(e.head)})`).join(', ')}; policy <code>${esc(policyText(s.policy))}</code>.</li>
+<li>Held out (${h.samples} samples${h.labelled ? '' : ', against the model\u2019s own answers'}): accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop}).</li>
+<li>Mean MACs per sample ${si(Math.round(h.meanMacs))} vs ${si(h.fullMacs)}: <b>${pct(h.saving)} saved</b>.</li>
+<li>Staged chain checked against the grafted model on ${s.check.samples} samples: ${s.check.ok ? 'identical outputs' : 'MISMATCH'} (max abs difference ${s.check.maxAbs}).</li>
+<li>Target: ${target}.</li>
+</ul>
+<h2>Stages</h2>
+<table><tr><th>stage</th><th>MACs</th><th>weights</th><th>peak act.</th><th>hands over</th><th>exit</th><th>leave here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>
+${lineChart('Accuracy vs mean MACs per policy (held-out part)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
+${barChart('Exit histogram of the chosen policy (held-out)', exitNames, h.exitShare.map((x) => x * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
+${barChart('MACs per stage', s.stages.map((st) => st.file.replace('.onnx', '')), s.stages.map((st) => st.macs), (v) => si(v), '#ff7f0e')}
+<h2>Where the exits went</h2>
+<p>Heads were fitted at every candidate cut; every set of up to three was tuned, and the set with the fewest mean MACs within the bound was kept.</p>
+<table><tr><th>candidate cut</th><th>MACs before</th><th>head accuracy</th><th>agreement</th><th>chosen</th></tr>${candRows}</table>
+</body></html>
+`;
 }

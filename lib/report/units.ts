@@ -4,7 +4,7 @@
 export function si(v: bigint | number, digits = 3): string {
   const x = Number(v);
   const units: [number, string][] = [[1e12, 'T'], [1e9, 'G'], [1e6, 'M'], [1e3, 'K']];
-  for (const [k, u] of units) if (Math.abs(x) >= k) return `${trim((x / k).toPrecision(digits))} ${u}`;
+  for (const [k, u] of units) if (Math.abs(x) >= k) return `${fixed(x / k, digits)} ${u}`;
   return String(x);
 }
 
@@ -16,6 +16,8 @@ export function bytes(v: bigint | number): string {
   return `${x} B`;
 }
 
+/** `digits` significant digits without exponent notation (500 stays 500, not 5.0e+2). */
+const fixed = (v: number, digits: number) => { const p = v.toPrecision(digits); return p.includes('e') ? String(Math.round(v)) : trim(p); };
 const trim = (s: string) => (s.includes('.') && !s.includes('e') ? s.replace(/\.?0+$/, '') : s);
 
 /** JSON with bigints as numbers where exact, else as decimal strings. */
