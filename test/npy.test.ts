@@ -132,7 +132,7 @@ describe('npy writer', () => {
     const d = tmp(), out = path.join(d, 'v.npy');
     const big = Float32Array.from({ length: 40 }, (_, i) => i / 4);
     writeNpy(out, big.subarray(10, 30), [5, 4]);
-    expect(Array.from(readNpy(out).data)).toEqual(Array.from(big.subarray(10, 30)));
+    expect(Array.from(readNpy(out).data as Float32Array)).toEqual(Array.from(big.subarray(10, 30)));
     expect(fs.readdirSync(d)).toEqual(['v.npy']); // no temporary left behind
     const e = errorOf(() => writeNpy(out, big, [3, 3]));
     expect(e.line()).toMatch(/shape \(3, 3\) holds 9 values, data has 40/);

@@ -52,8 +52,8 @@ export function tensorData(t: TensorProto, file: string): PbTensor {
   if (t.rawData && t.rawData.length) {
     const bytes = n * (dtypeInfo(dtype).bits / 8);
     if (t.rawData.length !== bytes) throw err(`${where}: raw_data has ${t.rawData.length} bytes, dims [${dims.join(', ')}] need ${bytes}`, file);
-    // slice(): an aligned copy; raw_data is a view at an arbitrary offset in the file buffer.
-    return { ...out, data: new C(t.rawData.slice().buffer) };
+    // An aligned copy: raw_data is a view at any offset into the file (and a Buffer's slice() would be a view too).
+    return { ...out, data: new C(new Uint8Array(t.rawData).buffer) };
   }
   // Typed fields, per onnx.proto: which repeated field carries which element type.
   const field: ArrayLike<number | bigint> | undefined =
