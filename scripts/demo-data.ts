@@ -76,7 +76,7 @@ export function stream(n: number, seed: number): { x: Float32Array; y: BigInt64A
     const s = randomScene(rand, Math.floor(rand() * CLASSES.length));
     const len = 40 + Math.floor(rand() * 360);
     for (let j = 0; j < len && i < n; j++, i++) {
-      spectrogram(s, rand, x, i * BINS * FRAMES, 0.5);
+      spectrogram(s, rand, x, i * BINS * FRAMES);
       y[i] = BigInt(s.cls);
       segment[i] = BigInt(id);
     }

@@ -1,0 +1,26 @@
+// `npm run demo`: the whole job on the invented fan-vibration scenario (models-demo/).
+// Writes the data, builds exits for the committed model against a generic Cortex-M4F
+// profile, then tunes a stream policy on the ordered stream and replays it frame by frame.
+import path from 'node:path';
+import { main } from '../lib/cli/main.js';
+import { writeDemoData } from './demo-data.js';
+
+const root = path.resolve(path.dirname(new URL(import.meta.url).pathname), '../..');
+// Relative paths, so what is printed reads the same on any machine.
+process.chdir(root);
+const at = (...p: string[]) => path.join('models-demo', ...p);
+const data = (f: string) => at('data', f);
+const out = at('out');
+
+async function step(title: string, args: string[]): Promise<void> {
+  process.stdout.write(`\n$ offramp ${args.join(' ')}\n`);
+  const code = await main(args);
+  if (code !== 0) { process.stderr.write(`demo: ${title} exited ${code}\n`); process.exit(code); }
+}
+
+writeDemoData(at('data'));
+await step('build', ['build', at('fan-monitor.onnx'), '--data', data('calib-x.npy'), '--labels', data('calib-y.npy'), '--target', 'm4f', '-o', out]);
+await step('stream tuning', ['tune', out, '--data', data('stream-x.npy'), '--labels', data('stream-y.npy'), '--stream', '--report', path.join(out, 'stream-tune.html')]);
+await step('firmware code', ['emit-c', out, '-o', path.join(out, 'firmware')]);
+await step('replay', ['replay', out, '--data', data('stream-x.npy'), '--labels', data('stream-y.npy'), '--segments', data('stream-segments.npy'), '--csv', path.join(out, 'replay.csv')]);
+process.stdout.write(`\nreports: ${path.join(out, 'report.html')} (build), ${path.join(out, 'stream-tune.html')} (stream policies)\n`);
