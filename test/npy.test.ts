@@ -5,7 +5,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { describe, it, expect } from 'vitest';
-import { readNpyHeader, readNpy, npyBatches, toFloat32, writeNpy, sampleShape, type NpyArray } from '../lib/data/npy.js';
+import { readNpyHeader, readNpy, npyBatches, toFloat32, writeNpy, sampleShape, npyHeaderBytes, type NpyArray } from '../lib/data/npy.js';
 import { OfframpError } from '../lib/errors.js';
 import { FLOAT, DOUBLE, INT64, INT32, UINT8, INT8, FLOAT16, BOOL } from '../lib/onnx/dtype.js';
 
@@ -88,6 +88,20 @@ describe('npy reader against numpy-written files', () => {
     expect(s.length).toBe(1);
     expect(s[0].shape).toEqual([]);
     expect(Array.from(s[0].data as Float32Array)).toEqual([2.5]);
+  });
+
+  it('batch reading holds one batch, not the file: 256 MB sparse file, RSS grows far less', () => {
+    const d = tmp(), f = path.join(d, 'big.npy');
+    const rows = 65536, cols = 1024; // float32: 256 MiB of data
+    const head = npyHeaderBytes('<f4', [rows, cols]);
+    fs.writeFileSync(f, head);
+    fs.truncateSync(f, head.length + rows * cols * 4); // sparse: zeros cost no disk
+    const base = process.memoryUsage().rss;
+    let peak = base, seen = 0;
+    for (const b of npyBatches(f, 256)) { seen += b.rows; peak = Math.max(peak, process.memoryUsage().rss); }
+    expect(seen).toBe(rows);
+    expect(peak - base).toBeLessThan(64 * 2 ** 20);
+    fs.rmSync(d, { recursive: true });
   });
 
   it('refuses what it cannot read with one line naming the file', () => {
