@@ -1,0 +1,60 @@
+// The build report as a person sees it: Debian's headless Chromium renders
+// report.html, and the page's own layout says whether the charts are there and sized.
+import { describe, it, expect } from 'vitest';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { spawnSync } from 'node:child_process';
+import { offramp } from './helpers/cli.js';
+import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
+import { writeNpy } from '../lib/data/npy.js';
+
+const CHROMIUM = '/usr/bin/chromium';
+const have = fs.existsSync(CHROMIUM);
+// Flags for a closed network and a root sandbox-less run (common practice for CI containers).
+const FLAGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking',
+  '--disable-component-update', '--disable-sync', '--hide-scrollbars'];
+
+function chromium(args: string[], profile: string) {
+  return spawnSync(CHROMIUM, [...FLAGS, `--user-data-dir=${profile}`, ...args], { encoding: 'utf8', timeout: 60_000 });
+}
+
+describe('report.html in a real browser', () => {
+  it('renders three sized SVG charts and a screenshot', () => {
+    if (!have) {
+      if (process.env.CI) throw new Error(`${CHROMIUM} missing: apt-get install chromium`);
+      return;
+    }
+    const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-browser-'));
+    const s = samples(300, 5);
+    writeNpy(path.join(dir, 'x.npy'), s.x, [300, 1, BINS, FRAMES]);
+    writeNpy(path.join(dir, 'y.npy'), s.y, [300]);
+    const out = path.join(dir, 'out');
+    const model = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
+    expect(offramp(['build', model, '--data', path.join(dir, 'x.npy'), '--labels', path.join(dir, 'y.npy'), '--target', 'm4f', '-o', out]).code).toBe(0);
+
+    // A copy of the page with a probe that writes each chart's rendered box into the DOM.
+    const probe = `<script>document.body.setAttribute('data-probe', JSON.stringify([...document.querySelectorAll('svg')].map((s) => {
+      const r = s.getBoundingClientRect(); return { w: r.width, h: r.height, marks: s.querySelectorAll('rect,polyline,circle').length }; })));</script>`;
+    const page = path.join(out, 'probe.html');
+    fs.writeFileSync(page, fs.readFileSync(path.join(out, 'report.html'), 'utf8').replace('</body>', `${probe}</body>`));
+    const dom = chromium(['--dump-dom', `file://${page}`], path.join(dir, 'p1'));
+    const m = /data-probe="([^"]*)"/.exec(dom.stdout);
+    expect(m, dom.stderr.slice(-500)).not.toBeNull();
+    const charts = JSON.parse(m![1].replace(/&quot;/g, '"')) as { w: number; h: number; marks: number }[];
+    expect(charts).toHaveLength(3);
+    for (const c of charts) {
+      expect(c.w).toBeGreaterThanOrEqual(600);
+      expect(c.h).toBeGreaterThanOrEqual(250);
+      expect(c.marks).toBeGreaterThanOrEqual(2);
+    }
+
+    const shot = path.join(dir, 'report.png');
+    chromium([`--screenshot=${shot}`, '--window-size=1100,1800', `file://${path.join(out, 'report.html')}`], path.join(dir, 'p2'));
+    const png = fs.readFileSync(shot);
+    // PNG signature and IHDR width/height (PNG specification, ISO/IEC 15948).
+    expect(png.subarray(1, 4).toString()).toBe('PNG');
+    expect([png.readUInt32BE(16), png.readUInt32BE(20)]).toEqual([1100, 1800]);
+    expect(png.length).toBeGreaterThan(20_000);
+  });
+});
