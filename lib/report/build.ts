@@ -113,7 +113,7 @@ ${lineChart('Accuracy vs mean MACs per policy (held-out part)', 'mean MACs per s
 ${barChart('Exit histogram of the chosen policy (held-out)', exitNames, h.exitShare.map((x) => x * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
 ${barChart('MACs per stage', s.stages.map((st) => st.file.replace('.onnx', '')), s.stages.map((st) => st.macs), (v) => si(v), '#ff7f0e')}
 <h2>Where the exits went</h2>
-<p>Heads were fitted at every candidate cut; every set of up to three was tuned, and the set with the fewest mean MACs within the bound was kept.</p>
+<p>Heads were fitted at every candidate cut; every set of up to ${Math.max(...s.placement.tried.map((t) => t.exits.length))} of them was tuned, and the set with the fewest mean MACs within the bound was kept.</p>
 <table><tr><th>candidate cut</th><th>MACs before</th><th>head accuracy</th><th>agreement</th><th>chosen</th></tr>${candRows}</table>
 </body></html>
 `;
