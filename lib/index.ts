@@ -35,3 +35,5 @@ export { makeCache, type ExitCache, type ExitCosts } from './tune/cache.js';
 export { writeC } from './emit/write.js';
 export { emitC } from './emit/c.js';
 export { buildExits, type BuildOptions, type BuildResult } from './build/build.js';
+export { eliminateDeadCode } from './graph/passes.js';
+export { foldShapeSubgraphs } from './shapes/fold.js';
