@@ -2,6 +2,7 @@
 // as softmax regression, plus L2 on both weight matrices. Fitted with Adam
 // (Kingma & Ba 2015) on seeded mini-batches over standardised features; the
 // standardisation is folded back into the first layer, so the head reads raw features.
+import { rowLoss } from './targets.js';
 import { mulberry32 } from '../graph/build.js';
 import { allRows, heldOutSplit, type Features, type Targets } from './targets.js';
 import { moments } from './softmax.js';
@@ -30,29 +31,12 @@ export function mlpObjective(F: Features, T: Targets, rows: ArrayLike<number>, t
       for (let j = 0; j < d; j++) z += P.W1[u * d + j] * X[off + j];
       a[u] = z > 0 ? z : 0;
     }
-    let mx = -Infinity;
     for (let c = 0; c < k; c++) {
       let z = P.b2[c];
       for (let u = 0; u < h; u++) z += P.W2[c * h + u] * a[u];
       s[c] = z / temp;
-      if (s[c] > mx) mx = s[c];
     }
-    let sum = 0;
-    for (let c = 0; c < k; c++) sum += (e[c] = Math.exp(s[c] - mx));
-    const lse = mx + Math.log(sum);
-    if (T.kind === 'labels') {
-      const y = T.labels[r];
-      total += lse - s[y];
-      for (let c = 0; c < k; c++) e[c] = e[c] / sum - (c === y ? 1 : 0);
-    } else {
-      let kl = 0;
-      for (let c = 0; c < k; c++) {
-        const p = T.p[r * k + c];
-        if (p > 0) kl += p * (Math.log(p) - (s[c] - lse));
-        e[c] = temp * (e[c] / sum - p);
-      }
-      total += temp * temp * kl;
-    }
+    total += rowLoss(s, e, k, T, r, temp);
     if (!G) continue;
     da.fill(0);
     for (let c = 0; c < k; c++) {

@@ -3,6 +3,7 @@
 // loss_i is cross-entropy to a label, or T²·KL(p_i ‖ softmax(s_i/T)) to soft targets
 // (the T² keeps gradient scale independent of T, as in knowledge distillation).
 // In scikit-learn's terms (C·Σ CE + ½‖W‖²) this is l2 = 1/(C·m).
+import { rowLoss } from './targets.js';
 import { lbfgs } from './lbfgs.js';
 import { allRows, heldOutSplit, type Features, type Targets } from './targets.js';
 
@@ -17,35 +18,18 @@ export function softmaxObjective(F: Features, T: Targets, rows: Int32Array, thet
   const { X, d } = F, k = T.k, m = rows.length;
   const W = theta.subarray(0, k * d), b = theta.subarray(k * d);
   const s = new Float64Array(k), e = new Float64Array(k);
-  const temp = T.kind === 'soft' ? T.temperature : 1, scale = temp * temp;
+  const temp = T.kind === 'soft' ? T.temperature : 1;
   if (grad) grad.fill(0);
   let total = 0;
   for (const r of rows) {
     const off = r * d;
-    let mx = -Infinity;
     for (let c = 0; c < k; c++) {
       let z = b[c];
       const wo = c * d;
       for (let j = 0; j < d; j++) z += W[wo + j] * X[off + j];
       s[c] = z / temp;
-      if (s[c] > mx) mx = s[c];
     }
-    let sum = 0;
-    for (let c = 0; c < k; c++) sum += (e[c] = Math.exp(s[c] - mx));
-    const lse = mx + Math.log(sum);
-    if (T.kind === 'labels') {
-      const y = T.labels[r];
-      total += lse - s[y];
-      for (let c = 0; c < k; c++) e[c] = e[c] / sum - (c === y ? 1 : 0);
-    } else {
-      let kl = 0;
-      for (let c = 0; c < k; c++) {
-        const p = T.p[r * k + c];
-        if (p > 0) kl += p * (Math.log(p) - (s[c] - lse));
-        e[c] = temp * (e[c] / sum - p); // d(T²·KL)/dz = T·(q − p)
-      }
-      total += scale * kl;
-    }
+    total += rowLoss(s, e, k, T, r, temp);
     if (grad) {
       for (let c = 0; c < k; c++) {
         const ec = e[c];

@@ -58,3 +58,29 @@ export function matchRate(pred: Int32Array, truth: ArrayLike<number>, rows: Int3
   for (const r of rows) if (pred[r] === truth[r]) hit++;
   return hit / rows.length;
 }
+
+/**
+ * One row's loss and its gradient with respect to the raw logits z, given s = z/T.
+ * Labels (T = 1): cross-entropy, dz = q − onehot. Soft targets: T²·KL(p‖softmax(s)),
+ * dz = T·(q − p), the T² keeping gradients on the labels' scale (knowledge distillation).
+ * `e` is scratch of length k and receives dz.
+ */
+export function rowLoss(s: ArrayLike<number>, e: Float64Array, k: number, T: Targets, r: number, temp: number): number {
+  let mx = -Infinity;
+  for (let c = 0; c < k; c++) if (s[c] > mx) mx = s[c];
+  let sum = 0;
+  for (let c = 0; c < k; c++) sum += (e[c] = Math.exp(s[c] - mx));
+  const lse = mx + Math.log(sum);
+  if (T.kind === 'labels') {
+    const y = T.labels[r];
+    for (let c = 0; c < k; c++) e[c] = e[c] / sum - (c === y ? 1 : 0);
+    return lse - s[y];
+  }
+  let kl = 0;
+  for (let c = 0; c < k; c++) {
+    const p = T.p[r * k + c];
+    if (p > 0) kl += p * (Math.log(p) - (s[c] - lse));
+    e[c] = temp * (e[c] / sum - p);
+  }
+  return temp * temp * kl;
+}
