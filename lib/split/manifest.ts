@@ -182,5 +182,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
   };
   writeAtomic(path.join(dir, MANIFEST_FILE), toJson(manifest) + '\n');
   files.push(path.join(dir, MANIFEST_FILE));
+  // Stage files of an earlier split into more stages would outlive the manifest that named them.
+  for (let k = entries.length; fs.existsSync(path.join(dir, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(dir, `stage-${k}.onnx`));
   return { manifest, dir, files, stages };
 }
