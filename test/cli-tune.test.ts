@@ -1,0 +1,57 @@
+// tune and replay through the CLI: the happy path's agreement between them, and bad input.
+import { describe, it, expect, beforeAll } from 'vitest';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { offramp } from './helpers/cli.js';
+import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
+import { writeNpy } from '../lib/data/npy.js';
+
+const MODEL = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
+let dir: string, x: string, y: string, short: string, split: string, plain: string;
+
+beforeAll(() => {
+  dir = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-tune-'));
+  const s = samples(400, 9);
+  x = path.join(dir, 'x.npy'); y = path.join(dir, 'y.npy'); short = path.join(dir, 'short.npy');
+  writeNpy(x, s.x, [400, 1, BINS, FRAMES]);
+  writeNpy(y, s.y, [400]);
+  writeNpy(short, s.y.subarray(0, 10), [10]);
+  const grafted = path.join(dir, 'g.onnx');
+  expect(offramp(['graft', MODEL, '--at', '10%,70%', '--data', x, '--labels', y, '-o', grafted]).code).toBe(0);
+  split = path.join(dir, 'split');
+  expect(offramp(['split', grafted, '-o', split]).code).toBe(0);
+  plain = path.join(dir, 'plain');
+  expect(offramp(['split', MODEL, '--at', '40%', '-o', plain]).code).toBe(0);
+});
+
+describe('offramp tune and replay', () => {
+  it('replay spends what tune predicted for the same frames', () => {
+    const t = JSON.parse(offramp(['tune', split, '--data', x, '--labels', y, '--held-out', '0.5', '--json']).stdout);
+    const r = offramp(['replay', split, '--data', x, '--labels', y, '--json']);
+    expect(r.code).toBe(0);
+    const j = JSON.parse(r.stdout);
+    expect(j.summary.frames).toBe(400);
+    expect(j.summary.meanMacs).toBeLessThan(j.summary.fullMacs);
+    // The tuner's figures come from the cache; the replay runs the stage files. Over both parts they must agree.
+    const c = t.chosen, n = c.tune.samples + c.held.samples;
+    expect(j.summary.meanMacs).toBeCloseTo((c.tune.meanMacs * c.tune.samples + c.held.meanMacs * c.held.samples) / n, 3);
+    expect(j.summary.accuracy).toBeCloseTo((c.tune.accuracy * c.tune.samples + c.held.accuracy * c.held.samples) / n, 9);
+    const m = JSON.parse(fs.readFileSync(path.join(split, 'manifest.json'), 'utf8'));
+    expect(j.policy).toEqual(m.policy.rule);
+  });
+  it('bad input: one line naming the file, exit 1; usage errors exit 2', () => {
+    const noExits = offramp(['tune', plain, '--data', x, '--labels', y]);
+    expect(noExits.code).toBe(1);
+    expect(noExits.stderr.trim().split('\n')).toHaveLength(1);
+    expect(noExits.stderr).toMatch(/exit/);
+    const fewLabels = offramp(['tune', split, '--data', x, '--labels', short]);
+    expect(fewLabels.code).toBe(1);
+    expect(fewLabels.stderr).toMatch(/label/);
+    const noPolicy = offramp(['replay', plain, '--data', x]);
+    expect(noPolicy.code).not.toBe(0);
+    expect(noPolicy.stderr.trim().split('\n')).toHaveLength(1);
+    expect(offramp(['tune', split, '--data', x, '--max-drop', 'lots']).code).toBe(2);
+    expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"nonsense"}']).code).not.toBe(0);
+  });
+});
