@@ -14,6 +14,16 @@ export function parseDims(list: string[] = []): Record<string, number> {
   return out;
 }
 
+/** `--at` shares of the MACs: 0.25 or 25%, strictly between 0 and 1. */
+export function parseFractions(v: string): number[] {
+  return splitList(v).map((s) => {
+    const m = /^(\d+(?:\.\d+)?)(%?)$/.exec(s);
+    const f = m ? Number(m[1]) / (m[2] ? 100 : 1) : NaN;
+    if (!(f > 0 && f < 1)) throw usageError(`--at takes MAC shares between 0 and 1 (0.25 or 25%), not '${s}'`);
+    return f;
+  });
+}
+
 export const collect = (v: string, prev: string[] = []) => [...prev, v];
 export const splitList = (v?: string): string[] => (v ? v.split(',').map((s) => s.trim()).filter(Boolean) : []);
 

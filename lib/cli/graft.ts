@@ -9,7 +9,7 @@ import { parseHead, parseLayout } from '../heads/spec.js';
 import { dataSource, readLabels } from '../heads/sources.js';
 import { si, table, toJson } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims, splitList } from './common.js';
+import { collect, emit, parseDims, parseFractions, splitList } from './common.js';
 
 export const GRAFT_SCHEMA = 'offramp-graft/1';
 
@@ -24,14 +24,6 @@ const num = (v: string, what: string, ok: (x: number) => boolean) => {
   return x;
 };
 
-export function parseFractions(v: string): number[] {
-  return splitList(v).map((s) => {
-    const m = /^(\d+(?:\.\d+)?)(%?)$/.exec(s);
-    const f = m ? Number(m[1]) / (m[2] ? 100 : 1) : NaN;
-    if (!(f > 0 && f < 1)) throw usageError(`--at takes MAC fractions between 0 and 1 (0.25 or 25%), not '${s}'`);
-    return f;
-  });
-}
 
 const pct = (x: number | undefined) => (x === undefined || Number.isNaN(x) ? '-' : `${(100 * x).toFixed(1)}%`);
 

@@ -6,16 +6,7 @@ import { writeSplit } from '../split/manifest.js';
 import { exitCuts } from '../cuts/exits.js';
 import { bytes, si, table } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims, splitList } from './common.js';
-
-function fractions(v: string): number[] {
-  return splitList(v).map((s) => {
-    const m = /^(\d+(?:\.\d+)?)%$/.exec(s);
-    const f = m ? Number(m[1]) / 100 : Number(s);
-    if (!(f > 0 && f < 1)) throw usageError(`--at takes MAC shares like 25%,50% (between 0 and 100%), not '${s}'`);
-    return f;
-  });
-}
+import { collect, emit, parseDims, parseFractions, splitList } from './common.js';
 
 export function splitCommand(program: Command): void {
   program.command('split')
@@ -34,7 +25,7 @@ export function splitCommand(program: Command): void {
       const atExits = !o.cuts && !o.at ? exitCuts(model) : [];
       if (!o.cuts && !o.at && !atExits.length) throw usageError('give --cuts or --at (the model has no exit heads to cut at)');
       const plan = await scanModel(model, { dims: parseDims(o.dim), batch: Number(o.batch) });
-      const cuts = o.cuts || atExits.length ? [...(o.cuts ? splitList(o.cuts) : atExits)].map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, fractions(o.at!));
+      const cuts = o.cuts || atExits.length ? [...(o.cuts ? splitList(o.cuts) : atExits)].map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, parseFractions(o.at!));
       const { manifest } = writeSplit(plan, cuts, o.out, file);
       if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
       const rows = manifest.stages.map((s) => [
