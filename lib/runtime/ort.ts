@@ -14,8 +14,9 @@ export type Session = ort.InferenceSession;
 
 export async function openSession(bytes: Uint8Array, file?: string): Promise<Session> {
   try {
-    // One intra-op thread: results must not depend on the machine's core count.
-    return await ort.InferenceSession.create(bytes, { intraOpNumThreads: 1, interOpNumThreads: 1, graphOptimizationLevel: 'all', logSeverityLevel: 3 });
+    // One intra-op thread: results must not depend on the machine's core count. Runtime logging is
+    // off (fatal only): its failures come back as our one-line errors instead.
+    return await ort.InferenceSession.create(bytes, { intraOpNumThreads: 1, interOpNumThreads: 1, graphOptimizationLevel: 'all', logSeverityLevel: 4 });
   } catch (e) {
     throw new OfframpError('runtime', `onnxruntime cannot load the model: ${firstLine(e)}`, file);
   }
