@@ -16,9 +16,10 @@ export function splitCommand(program: Command): void {
     .option('--at <list>', 'the clean cuts nearest these MAC shares, e.g. 25%,50%,75%')
     .requiredOption('-o, --out <dir>', 'folder for the stage files and manifest.json')
     .option('--json', 'print the manifest instead of a summary')
+    .option('--reorder', 'reorder each stage file\'s nodes to lower its peak activation memory (the order an interpreter runs)')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
-    .action(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; dim: string[]; batch: string }) => {
+    .action(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; reorder?: boolean; dim: string[]; batch: string }) => {
       if (o.cuts && o.at) throw usageError('give one of --cuts and --at, not both');
       const model = loadModel(file);
       // A grafted model already says where its stages end: one exit per stage.
@@ -26,7 +27,7 @@ export function splitCommand(program: Command): void {
       if (!o.cuts && !o.at && !atExits.length) throw usageError('give --cuts or --at (the model has no exit heads to cut at)');
       const plan = await scanModel(model, { dims: parseDims(o.dim), batch: Number(o.batch) });
       const cuts = o.cuts || atExits.length ? [...(o.cuts ? splitList(o.cuts) : atExits)].map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, parseFractions(o.at!));
-      const { manifest } = writeSplit(plan, cuts, o.out, file);
+      const { manifest } = writeSplit(plan, cuts, o.out, file, { reorder: o.reorder });
       if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
       const rows = manifest.stages.map((s) => [
         s.file, String(s.nodes), si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`, bytes(s.weightBytes), bytes(s.peakActivationBytes),
@@ -36,6 +37,11 @@ export function splitCommand(program: Command): void {
         `split ${file} into ${manifest.stages.length} stages in ${o.out} (${manifest.order === 'block' ? 'block-keeping' : 'file'} order)`, '',
         table(['stage', 'nodes', 'MACs', 'share', 'weights', 'peak act.', 'hands over', 'bytes', 'exits'], rows),
       ];
+      const re = manifest.stages.filter((s) => s.reorder);
+      if (re.length) {
+        lines.push('', 'memory-aware order of the stage files (own peak, first order → reordered):');
+        for (const s of re) lines.push(`  ${s.file}: ${bytes(s.reorder!.before)} → ${bytes(s.reorder!.after)}`);
+      }
       if (manifest.sharedWeights.length) {
         lines.push('', `shared weights copied into several stages (${bytes(manifest.sharedWeights.reduce((a, w) => a + w.bytes * (w.stages.length - 1), 0))} extra):`);
         for (const w of manifest.sharedWeights) lines.push(`  ${w.name} (${bytes(w.bytes)}) in stages ${w.stages.join(', ')}`);

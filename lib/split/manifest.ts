@@ -4,7 +4,10 @@
 import crypto from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
-import type { TensorType } from '../graph/ir.js';
+import type { Model, TensorType } from '../graph/ir.js';
+import { costModel } from '../cost/report.js';
+import { reorderModel } from '../cost/reorder.js';
+import { inferShapes } from '../shapes/infer.js';
 import { modelToProto } from '../graph/ir.js';
 import { encodeModel, PROTO_LIMIT } from '../onnx/codec.js';
 import { bytesFor, dtypeName } from '../onnx/dtype.js';
@@ -57,6 +60,8 @@ export interface ManifestStage {
   peakActivationBytes: number;
   /** bytes of `cut`: what the next stage receives from this one and its predecessors */
   handoverBytes: number;
+  /** present after a split with reordering: the stage file's own peak in its first and in its memory-aware node order */
+  reorder?: { before: number; after: number };
 }
 
 export interface Manifest {
@@ -113,7 +118,27 @@ export interface SplitResult { manifest: Manifest; dir: string; files: string[];
 const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
 
 /** Split the plan's model at `cuts` into `dir`. `source` is the model file the plan was made from. */
-export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: string): SplitResult {
+export interface SplitOptions {
+  /** Reorder each stage file's nodes to lower its peak activation memory (the order an interpreter runs). */
+  reorder?: boolean;
+}
+
+/**
+ * A stage model in its memory-aware order, with its peak before and after; the
+ * model unchanged where its values cannot all be sized (measured shapes).
+ */
+function reorderStage(sm: Model): { model: Model; before: bigint; after: bigint } | undefined {
+  try {
+    const report = costModel(sm, { shapes: inferShapes(sm) });
+    const r = reorderModel(sm, report);
+    return { model: r.model, before: r.order.before, after: r.order.after };
+  } catch (e) {
+    if (e instanceof OfframpError) return undefined;
+    throw e;
+  }
+}
+
+export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: string, opts: SplitOptions = {}): SplitResult {
   const m = plan.model;
   const g = m.graph;
   const stages = planStages(plan, cuts);
@@ -143,7 +168,10 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
     const file = `stage-${s.index}.onnx`;
     const target = path.join(dir, file);
     if (fs.existsSync(target) && fs.realpathSync(target) === sourceReal) throw new OfframpError('io', 'refusing to overwrite the source model', target);
-    const bytes = encodeModel(modelToProto(stageModel(m, stageGraph(g, s, fileType), s, stages.length)));
+    let sm = stageModel(m, stageGraph(g, s, fileType), s, stages.length);
+    const ro = opts.reorder ? reorderStage(sm) : undefined;
+    if (ro) sm = ro.model;
+    const bytes = encodeModel(modelToProto(sm));
     if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
     writeAtomic(target, bytes);
     files.push(target);
@@ -154,6 +182,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
       exits: s.exits, cut: s.cut, macs: Number(s.macs),
       macFraction: plan.totalMacs ? Number((s.macs * 1000000n) / plan.totalMacs) / 1e6 : 0,
       weightBytes: Number(s.weightBytes), peakActivationBytes: Number(s.peakActivationBytes), handoverBytes: Number(s.handoverBytes),
+      ...(ro && { reorder: { before: Number(ro.before), after: Number(ro.after) } }),
     };
   });
 
