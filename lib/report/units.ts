@@ -20,10 +20,7 @@ export function bytes(v: bigint | number): string {
 const fixed = (v: number, digits: number) => { const p = v.toPrecision(digits); return p.includes('e') ? String(Math.round(v)) : trim(p); };
 const trim = (s: string) => (s.includes('.') && !s.includes('e') ? s.replace(/\.?0+$/, '') : s);
 
-/** JSON with bigints as numbers where exact, else as decimal strings. */
-export function toJson(v: unknown, indent = 2): string {
-  return JSON.stringify(v, (_k, x) => (typeof x === 'bigint' ? (x <= BigInt(Number.MAX_SAFE_INTEGER) && x >= -BigInt(Number.MAX_SAFE_INTEGER) ? Number(x) : x.toString()) : x), indent);
-}
+export { toJson } from '../util/json.js';
 
 /** Aligned text table; numeric-looking columns align right. */
 export function table(head: string[], rows: string[][]): string {

@@ -12,7 +12,7 @@ import { modelToProto } from '../graph/ir.js';
 import { encodeModel, PROTO_LIMIT } from '../onnx/codec.js';
 import { bytesFor, dtypeName } from '../onnx/dtype.js';
 import { tensorByteSize } from '../onnx/tensor.js';
-import { toJson } from '../report/units.js';
+import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
