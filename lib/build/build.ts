@@ -18,7 +18,7 @@ import type { HeadKind } from '../heads/spec.js';
 import { exitRecords, type ExitRecord } from '../heads/graft.js';
 import { writeSplit, writeManifestPolicy, type Manifest, type ManifestPolicy } from '../split/manifest.js';
 import { loadChain } from '../run/chain.js';
-import { checkChain, npySamples, type CheckResult } from '../run/check.js';
+import { checkChain, npySamples, randomSamples, type CheckResult } from '../run/check.js';
 import { captureExits } from '../tune/model-capture.js';
 import { tune, type TuneResult } from '../tune/search.js';
 import { budgetOf, type Budget } from '../target/budget.js';
@@ -161,7 +161,9 @@ export async function buildExits(file: string, o: BuildOptions): Promise<BuildRe
   const chain = await loadChain(o.out);
   let check: CheckResult;
   try {
-    const samples = fs.statSync(o.data).isDirectory() ? [] : npySamples(manifest.inputs, { [manifest.inputs[0].name]: o.data }, o.checkSamples ?? 16);
+    // TensorProto folders: seeded random inputs of the right shape, as `offramp check` uses without data.
+    const n = o.checkSamples ?? 16;
+    const samples = fs.statSync(o.data).isDirectory() ? randomSamples(manifest.inputs, n, seed) : npySamples(manifest.inputs, { [manifest.inputs[0].name]: o.data }, n);
     check = await checkChain(chain, modelFile, samples);
   } finally { await chain.release(); }
   if (!check.ok) throw new OfframpError('runtime', `the staged chain does not reproduce the model: ${check.diffs.filter((d) => !d.ok).map((d) => d.name).join(', ')}`, modelFile);
