@@ -35,7 +35,7 @@ export function tensorNumbers(t: TensorProto, limit = 1 << 16): number[] | undef
       4: (i: number) => v.getUint16(i * 2, true), 5: (i: number) => v.getInt16(i * 2, true), 6: (i: number) => v.getInt32(i * 4, true),
       7: (i: number) => sat(v.getBigInt64(i * 8, true)), 9: (i: number) => v.getUint8(i), 11: (i: number) => v.getFloat64(i * 8, true),
       12: (i: number) => v.getUint32(i * 4, true), 13: (i: number) => sat(v.getBigUint64(i * 8, true)),
-      10: (i: number) => half(v.getUint16(i * 2, true)),
+      10: (i: number) => half(v.getUint16(i * 2, true)), 16: (i: number) => bfloat(v.getUint16(i * 2, true)),
     } as Record<number, (i: number) => number>)[dt];
     if (!get) return undefined;
     if (raw.length < n * (dtypeInfo(dt).bits / 8)) throw new CodecError('raw_data is shorter than its dims say', `tensor ${t.name ?? ''}`);
@@ -48,6 +48,7 @@ export function tensorNumbers(t: TensorProto, limit = 1 << 16): number[] | undef
   if ((dt === 7) && t.int64Data) return Array.from(t.int64Data, sat);
   if ((dt === 12 || dt === 13) && t.uint64Data) return Array.from(t.uint64Data, sat);
   if (dt === 10 && t.int32Data) return Array.from(t.int32Data, half);
+  if (dt === 16 && t.int32Data) return Array.from(t.int32Data, bfloat);
   if ([2, 3, 4, 5, 6, 9].includes(dt)) return Array.from(t.int32Data ?? new Int32Array(n));
   if (n === 0) return [];
   return undefined;
@@ -55,6 +56,10 @@ export function tensorNumbers(t: TensorProto, limit = 1 << 16): number[] | undef
 
 const sat = (b: bigint): number =>
   b > BigInt(Number.MAX_SAFE_INTEGER) ? Number.MAX_SAFE_INTEGER : b < BigInt(Number.MIN_SAFE_INTEGER) ? Number.MIN_SAFE_INTEGER : Number(b);
+
+const f32 = new Float32Array(1), u32 = new Uint32Array(f32.buffer);
+/** bfloat16 bits: the top half of a float32. */
+function bfloat(h: number): number { u32[0] = (h & 0xffff) << 16; return f32[0]; }
 
 function half(h: number): number {
   const s = h & 0x8000 ? -1 : 1, e = (h >> 10) & 0x1f, m = h & 0x3ff;

@@ -31,6 +31,8 @@ export interface InferOptions {
   batch?: number;
   /** ignore shapes declared in value_info (conformance tests check the rules alone) */
   rulesOnly?: boolean;
+  /** values of graph inputs known ahead (small integer tensors: shapes, axes, sizes), so shape arithmetic folds through them */
+  inputValues?: Map<string, Const>;
 }
 
 export function bindInput(t: TensorType | undefined, opts: InferOptions): TensorType | undefined {
@@ -59,7 +61,9 @@ export function inferShapes(model: Model, opts: InferOptions = {}, graph: Graph 
   for (const v of graph.inputs) {
     if (graph.initializers.has(v.name)) continue; // an input with a default: the initializer's shape rules
     const t = bindInput(v.type, opts);
-    if (t) values.set(v.name, { type: t, source: 'input' });
+    const known = opts.inputValues?.get(v.name);
+    if (known) values.set(v.name, { type: { dtype: known.dtype, shape: known.dims }, value: known, source: 'input' });
+    else if (t) values.set(v.name, { type: t, source: 'input' });
   }
   const declared = new Map<string, TensorType>();
   if (!opts.rulesOnly) {
