@@ -45,6 +45,8 @@ export interface BuildOptions {
   head?: HeadKind;
   seed?: number;
   l2?: number;
+  /** write the stage files in a memory-aware node order (the budget then judges that order) */
+  reorder?: boolean;
   /** samples the staged chain is checked on against the model (default 16) */
   checkSamples?: number;
   progress?: (step: string, detail: string) => void;
@@ -84,7 +86,7 @@ function macsBefore(plan: CutPlan, report: CostReport): (cut: string) => number 
   return (cut) => cum.get(cut) ?? 0;
 }
 
-/** The grafted model reordered so its file order runs stage after stage, with each stage's last step. */
+/** The grafted model reordered so its file order runs stage after stage, as the stage files run, with each stage's last step. */
 function stagedOrder(grafted: Model, stages: { nodes: number[] }[]): { model: Model; ends: number[] } {
   const seen = new Set<number>(), order: number[] = [], ends: number[] = [];
   for (const s of stages) {
@@ -137,7 +139,7 @@ export async function buildExits(file: string, o: BuildOptions): Promise<BuildRe
 
   say('split', `${chosenCuts.length + 1} stages`);
   const gPlan = await scanModel(g, { batch: 1 });
-  const split = writeSplit(gPlan, exitCuts(g).map((c) => resolveCut(gPlan, c)), o.out, modelFile);
+  const split = writeSplit(gPlan, exitCuts(g).map((c) => resolveCut(gPlan, c)), o.out, modelFile, { reorder: o.reorder });
 
   say('tune', `policies on ${tuneData.rows} rows`);
   const captured = await captureExits(g, tuneData, tuneLabels);

@@ -14,7 +14,7 @@ import { targetOptions } from './target-options.js';
 interface BuildFlags {
   data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head: string;
   seed: string; json?: boolean; target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string;
-  int8MacsPerCycle?: string; int8?: boolean;
+  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean;
 }
 
 const whole = (v: string, what: string, min: number) => {
@@ -35,6 +35,7 @@ export function buildCommand(program: Command): void {
     .option('--candidates <n>', 'candidate cuts to fit heads at', '6')
     .option('--head <kind>', 'linear, mlp:H or conv:C', 'linear')
     .option('--seed <n>', 'seed of every random choice', '1')
+    .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
     .option('--json', 'print the report as JSON (schema offramp-build/1)')
     .action(async (file: string, o: BuildFlags) => {
       const target = resolveTarget(o);
@@ -46,7 +47,7 @@ export function buildCommand(program: Command): void {
       const r = await buildExits(file, {
         data: o.data, labels: o.labels, out: o.out, target, int8: o.int8, maxDrop,
         maxExits: whole(o.maxExits, '--max-exits', 1), candidates: whole(o.candidates, '--candidates', 1),
-        head: parseHead(o.head), seed: whole(o.seed, '--seed', 0),
+        head: parseHead(o.head), seed: whole(o.seed, '--seed', 0), reorder: o.reorder,
         progress: tty ? (step, detail) => process.stderr.write(`${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s  ${step.padEnd(8)} ${detail}\n`) : undefined,
       });
       const json = buildJson(r);

@@ -113,6 +113,7 @@ export function writeManifestPolicy(dir: string, policy: ManifestPolicy): Manife
   return out;
 }
 
+/** `stages`: each stage's nodes in the order its file runs them. */
 export interface SplitResult { manifest: Manifest; dir: string; files: string[]; stages: StagePlan[] }
 
 const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
@@ -127,11 +128,11 @@ export interface SplitOptions {
  * A stage model in its memory-aware order, with its peak before and after; the
  * model unchanged where its values cannot all be sized (measured shapes).
  */
-function reorderStage(sm: Model): { model: Model; before: bigint; after: bigint } | undefined {
+function reorderStage(sm: Model): { model: Model; before: bigint; after: bigint; order: number[] } | undefined {
   try {
     const report = costModel(sm, { shapes: inferShapes(sm) });
     const r = reorderModel(sm, report);
-    return { model: r.model, before: r.order.before, after: r.order.after };
+    return { model: r.model, before: r.order.before, after: r.order.after, order: r.order.order };
   } catch (e) {
     if (e instanceof OfframpError) return undefined;
     throw e;
@@ -164,6 +165,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
   };
 
   const files: string[] = [];
+  const written: StagePlan[] = [];
   const entries: ManifestStage[] = stages.map((s) => {
     const file = `stage-${s.index}.onnx`;
     const target = path.join(dir, file);
@@ -171,6 +173,8 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
     let sm = stageModel(m, stageGraph(g, s, fileType), s, stages.length);
     const ro = opts.reorder ? reorderStage(sm) : undefined;
     if (ro) sm = ro.model;
+    // The stage file's node j is s.nodes[j]; callers get the plan in the order the file runs.
+    written.push(ro ? { ...s, nodes: ro.order.map((j) => s.nodes[j]) } : s);
     const bytes = encodeModel(modelToProto(sm));
     if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
     writeAtomic(target, bytes);
@@ -213,5 +217,5 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
   files.push(path.join(dir, MANIFEST_FILE));
   // Stage files of an earlier split into more stages would outlive the manifest that named them.
   for (let k = entries.length; fs.existsSync(path.join(dir, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(dir, `stage-${k}.onnx`));
-  return { manifest, dir, files, stages };
+  return { manifest, dir, files, stages: written };
 }
