@@ -2,7 +2,7 @@
 // of TensorProto files (test_data_set_*/input_0.pb), one set at a time.
 import fs from 'node:fs';
 import type { Dim } from '../graph/ir.js';
-import { npyBatches, readNpy, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
+import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { listDataSets, readTensorFile, setFiles, type PbTensor } from '../data/pbdir.js';
 import { OfframpError } from '../errors.js';
 import type { Batch } from './capture.js';
@@ -53,14 +53,7 @@ function join(parts: Float32Array[], rows: number, per: number): Batch {
 }
 
 /** Integer labels [N] from a .npy file. */
-export function readLabels(file: string): Int32Array {
-  const { header, data } = readNpy(file);
-  if (header.shape.length !== 1 && !(header.shape.length === 2 && header.shape[1] === 1))
-    throw new OfframpError('data', `labels must be [N] integers, got shape [${header.shape.join(', ')}]`, file);
-  if (data instanceof Float32Array || data instanceof Float64Array || data instanceof Uint16Array)
-    throw new OfframpError('data', `labels must be integers, got ${header.descr}`, file);
-  return Int32Array.from(data as ArrayLike<number | bigint>, Number);
-}
+export { readLabels } from '../data/labels.js';
 
 export const dataSource = (path: string, modelInput: readonly Dim[], sample: readonly number[]): DataSource =>
   fs.statSync(path, { throwIfNoEntry: false })?.isDirectory() ? pbSource(path, sample) : npySource(path, modelInput);

@@ -2,7 +2,7 @@
 // keeping each exit's logits and the final output's in an ExitCache. Also what
 // the tuner needs from the manifest: exits in order, the final output, costs per exit.
 import { OfframpError } from '../errors.js';
-import { npyBatches, readNpy, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
+import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import type { Chain } from '../run/chain.js';
 import type { Manifest } from '../split/manifest.js';
@@ -48,18 +48,7 @@ export function chainLayout(m: Manifest, file?: string): ChainLayout {
   return { exits, exitStage, final: finals[0].name, classes, costs: { stage, head: exits.map(() => 0) }, input: m.inputs[0].name };
 }
 
-/** Labels from a .npy of N integers (any integer or float type holding whole numbers). */
-export function readLabels(file: string): Int32Array {
-  const { header, data } = readNpy(file);
-  if (header.shape.length > 2 || (header.shape.length === 2 && header.shape[1] !== 1)) throw new OfframpError('data', `labels must be [N] or [N, 1], not [${header.shape.join(', ')}]`, file);
-  const out = new Int32Array(data.length);
-  for (let i = 0; i < data.length; i++) {
-    const v = Number(data[i]);
-    if (!Number.isInteger(v)) throw new OfframpError('data', `label ${v} is not a whole number`, file, `row ${i}`);
-    out[i] = v;
-  }
-  return out;
-}
+export { readLabels } from '../data/labels.js';
 
 /** Frames of a .npy as batch-1 tensors for the chain's input, one at a time. */
 export function* frames(m: Manifest, file: string, limit = Infinity): Generator<OrtTensor> {
