@@ -10,6 +10,7 @@ import { dataSource, readLabels } from '../heads/sources.js';
 import { si, table, toJson } from '../report/units.js';
 import { usageError } from '../errors.js';
 import { collect, emit, parseDims, parseFractions, splitList } from './common.js';
+import { progressBar } from './progress.js';
 
 export const GRAFT_SCHEMA = 'offramp-graft/1';
 
@@ -40,17 +41,6 @@ export function graftJson(r: GraftResult, out: string): string {
   return `${toJson({ schema: GRAFT_SCHEMA, out, exits: r.heads.map((h) => h.record) })}\n`;
 }
 
-function progressBar(enabled: boolean) {
-  if (!enabled) return undefined;
-  let last = '';
-  return (phase: string, done: number, total: number) => {
-    const w = 30, f = total ? Math.min(1, done / total) : 1;
-    const line = `${phase.padEnd(7)} [${'#'.repeat(Math.round(f * w)).padEnd(w)}] ${done}/${total}`;
-    if (line === last) return;
-    last = line;
-    process.stderr.write(`\r${line}${done >= total ? '\n' : ''}`);
-  };
-}
 
 export function graftCommand(program: Command): void {
   program.command('graft')

@@ -4,6 +4,8 @@ import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
 import { captureCache, readLabels } from '../tune/chain-capture.js';
+import { readNpyHeader } from '../data/npy.js';
+import { progressBar } from './progress.js';
 import { tune, TUNE_KINDS, type FrameKind } from '../tune/search.js';
 import { tuneStream } from '../tune/stream.js';
 import { STREAM_KINDS, type FramePolicy, type Policy, type StreamPolicy } from '../policy/policy.js';
@@ -46,7 +48,9 @@ export function tuneCommand(program: Command): void {
       const labels = o.labels ? readLabels(o.labels) : undefined;
       const chain = await loadChain(dir);
       try {
-        const { cache, layout } = await captureCache(chain, o.data, labels);
+        const bar = progressBar(!!process.stderr.isTTY && !o.json);
+        const total = readNpyHeader(o.data).rows;
+        const { cache, layout } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
         let result: TuneResult<Policy>;
         if (!o.stream) result = tune(cache, layout.costs, { maxDrop, heldOut, grid, kinds: frameKinds.length ? frameKinds : undefined });
         else {

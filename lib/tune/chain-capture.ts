@@ -80,7 +80,7 @@ export async function captureCache(chain: Chain, data: string, labels?: Int32Arr
     const r = await chain.run({ [layout.input]: x });
     names.forEach((nm, k) => copyLogits(r.outputs[nm], nm, C, logits, (i * (E + 1) + k) * C));
     i++;
-    if (onProgress && i % 1000 === 0) onProgress(i);
+    if (onProgress && (i % 100 === 0 || i === rows)) onProgress(i);
   }
   return { cache: makeCache(rows, E, C, logits, labels), layout };
 }
