@@ -60,6 +60,19 @@ describe('offramp build', () => {
     expect(r.stderr.trim().split('\n')).toHaveLength(1);
     expect(JSON.parse(fs.readFileSync(path.join(out, 'report.json'), 'utf8')).budget.fits).toBe(false);
   });
+  it('leaves the folder as it was when a build fails, and keeps files it does not write', () => {
+    const out = path.join(dir, 'keep');
+    expect(offramp(['build', MODEL, '--data', x, '--labels', y, '-o', out]).code).toBe(0);
+    fs.writeFileSync(path.join(out, 'notes.txt'), 'mine');
+    const before = files(out);
+    const bad = path.join(dir, 'bad-labels.npy');
+    writeNpy(bad, BigInt64Array.from({ length: 600 }, (_, i) => BigInt(i % 7)), [600]); // class 5 and 6 do not exist
+    const r = offramp(['build', MODEL, '--data', x, '--labels', bad, '-o', out]);
+    expect(r.code).toBe(1);
+    expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    expect(files(out)).toEqual(before);
+    expect(fs.readdirSync(dir).filter((f) => f.includes('.partial-'))).toEqual([]);
+  });
   it('refuses bad input with one line', () => {
     const r = offramp(['build', MODEL, '--data', y, '-o', path.join(dir, 'bad')]);
     expect(r.code).toBe(1);

@@ -16,7 +16,7 @@ import { classifierIO, graftExits, type DataSource } from '../heads/fit-heads.js
 import { dataSource, readLabels } from '../heads/sources.js';
 import type { HeadKind } from '../heads/spec.js';
 import { exitRecords, type ExitRecord } from '../heads/graft.js';
-import { writeSplit, writeManifestPolicy, type Manifest, type ManifestPolicy } from '../split/manifest.js';
+import { writeSplit, writeManifestPolicy, MANIFEST_FILE, type Manifest, type ManifestPolicy } from '../split/manifest.js';
 import { loadChain } from '../run/chain.js';
 import { checkChain, npySamples, randomSamples, type CheckResult } from '../run/check.js';
 import { captureExits } from '../tune/model-capture.js';
@@ -97,7 +97,35 @@ function stagedOrder(grafted: Model, stages: { nodes: number[] }[]): { model: Mo
   return { model: { ...grafted, graph: reorderGraph(grafted.graph, order) }, ends: ends.slice(0, -1) };
 }
 
+/**
+ * Build into a scratch folder beside DIR, then move each file into DIR (the manifest last), so a
+ * failed build leaves DIR as it was and a finished one never mixes with an earlier one's files.
+ * Files in DIR that a build does not write are left alone.
+ */
 export async function buildExits(file: string, o: BuildOptions): Promise<BuildResult> {
+  const final = path.resolve(o.out);
+  const target = path.join(final, GRAFTED_FILE);
+  if (fs.existsSync(target) && fs.realpathSync(target) === fs.realpathSync(file)) throw new OfframpError('io', 'refusing to overwrite the source model', target);
+  const work = `${final}.partial-${process.pid}`;
+  fs.rmSync(work, { recursive: true, force: true });
+  try {
+    const r = await buildInto(file, { ...o, out: work });
+    const rel = (f: string) => path.relative(work, f);
+    const moves = r.files.map(rel).sort((a, b) => Number(a === MANIFEST_FILE) - Number(b === MANIFEST_FILE));
+    fs.mkdirSync(final, { recursive: true });
+    for (const f of moves) {
+      fs.mkdirSync(path.dirname(path.join(final, f)), { recursive: true });
+      fs.renameSync(path.join(work, f), path.join(final, f));
+    }
+    // Stage files of an earlier build with more stages would outlive the manifest that named them.
+    for (let k = r.manifest.stages.length; fs.existsSync(path.join(final, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(final, `stage-${k}.onnx`));
+    return { ...r, dir: o.out, model: path.join(o.out, GRAFTED_FILE), files: moves.map((f) => path.join(o.out, f)) };
+  } finally {
+    fs.rmSync(work, { recursive: true, force: true });
+  }
+}
+
+async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const say = (step: string, detail: string) => o.progress?.(step, detail);
   const maxDrop = o.maxDrop ?? 1, head: HeadKind = o.head ?? { kind: 'linear' }, seed = o.seed ?? 1;
   const model: LoadedModel = loadModel(file);
