@@ -159,7 +159,6 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
 
   fs.mkdirSync(o.out, { recursive: true });
   const modelFile = path.join(o.out, GRAFTED_FILE);
-  if (fs.existsSync(modelFile) && fs.realpathSync(modelFile) === fs.realpathSync(file)) throw new OfframpError('io', 'refusing to overwrite the source model', modelFile);
   say('graft', chosenCuts.join(', '));
   const grafted = await graftExits(model, fitData, { ...graftOpts, cuts: chosenCuts });
   saveModel(grafted.model, modelFile);
