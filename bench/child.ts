@@ -5,7 +5,21 @@ const [kind, file, out] = process.argv.slice(2);
 const t0 = process.hrtime.bigint();
 const ms = (from: bigint) => Number(process.hrtime.bigint() - from) / 1e6;
 const res: Record<string, number> = {};
-if (kind === 'make') {
+if (kind === 'npy') {
+  // Calibration data far larger than a batch: a 256 MiB .npy (sparse on disk) read 256 rows at a time.
+  const fs = await import('node:fs');
+  const { npyBatches, npyHeaderBytes } = await import('../lib/data/npy.js');
+  const rows = 65536, cols = 1024, head = npyHeaderBytes('<f4', [rows, cols]);
+  fs.writeFileSync(file, head);
+  fs.truncateSync(file, head.length + rows * cols * 4);
+  const base = process.resourceUsage().maxRSS * 1024;
+  let seen = 0;
+  for (const b of npyBatches(file, 256)) seen += b.rows;
+  res.rows = seen;
+  res.fileBytes = head.length + rows * cols * 4;
+  res.rssGrowthBytes = process.resourceUsage().maxRSS * 1024 - base;
+  fs.rmSync(file);
+} else if (kind === 'make') {
   const { resnet50 } = await import('../test/helpers/nets.js');
   const { saveModel } = await import('../lib/graph/io.js');
   saveModel(resnet50({ weights: 'random', seed: 7 }), file);

@@ -32,6 +32,9 @@ async function parent(): Promise<void> {
     line('whole `offramp cost --json` run', `${cli.totalMs.toFixed(1)} ms`, `target < 1000 ms: ratio ${(cli.totalMs / 1000).toFixed(2)}`);
     line('peak RSS of that run', `${(cli.maxRssBytes / 2 ** 20).toFixed(1)} MiB`, `target < 2× file: ratio ${(cli.maxRssBytes / size).toFixed(2)}`);
     line('MACs counted', `${parts.macs}`);
+    const npy = run('npy', path.join(dir, 'big.npy'));
+    console.log('\ncalibration data read in batches');
+    line(`peak RSS growth, ${(npy.fileBytes / 2 ** 20).toFixed(0)} MiB .npy`, `${(npy.rssGrowthBytes / 2 ** 20).toFixed(1)} MiB`, `target: independent of the file; ratio to the file ${(npy.rssGrowthBytes / npy.fileBytes).toFixed(3)}`);
     const chainRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'chain.js')], { encoding: 'utf8' });
     if (chainRun.status !== 0) throw new Error(`bench chain failed: ${chainRun.stderr}`);
     const ch = JSON.parse(chainRun.stdout);
