@@ -15,7 +15,7 @@ import { exitCuts } from '../cuts/exits.js';
 import { classifierIO, graftExits, type DataSource } from '../heads/fit-heads.js';
 import { dataSource, readLabels } from '../heads/sources.js';
 import type { HeadKind } from '../heads/spec.js';
-import { exitRecords, type ExitRecord } from '../heads/graft.js';
+import { exitRecords, graftHeads, type ExitRecord } from '../heads/graft.js';
 import { writeSplit, writeManifestPolicy, MANIFEST_FILE, type Manifest, type ManifestPolicy } from '../split/manifest.js';
 import { loadChain } from '../run/chain.js';
 import { checkChain, npySamples, randomSamples, type CheckResult } from '../run/check.js';
@@ -146,8 +146,7 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const before = macsBefore(plan, backbone);
 
   say('fit', `${cands.length} candidate heads on ${fitData.rows} rows`);
-  const graftOpts = { head, seed, l2: o.l2, labels: fitLabels, shapes };
-  const trial = await graftExits(model, fitData, { ...graftOpts, cuts: cands.map((c) => c.tensors[0].name) });
+  const trial = await graftExits(model, fitData, { head, seed, l2: o.l2, labels: fitLabels, shapes, cuts: cands.map((c) => c.tensors[0].name) });
   say('capture', `exit outputs on ${tuneData.rows} rows`);
   const trialCache = await captureExits({ ...trial.model, file }, tuneData, tuneLabels);
   const trialExits = trialCache.exits;
@@ -160,8 +159,8 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   fs.mkdirSync(o.out, { recursive: true });
   const modelFile = path.join(o.out, GRAFTED_FILE);
   say('graft', chosenCuts.join(', '));
-  const grafted = await graftExits(model, fitData, { ...graftOpts, cuts: chosenCuts });
-  saveModel(grafted.model, modelFile);
+  // The heads placement judged, not a refit: graftHeads numbers the exits anew.
+  saveModel(graftHeads(model, placement.chosen.exits.map((k) => trial.heads[k]), io.batch), modelFile);
   const g = loadModel(modelFile);
 
   say('split', `${chosenCuts.length + 1} stages`);
