@@ -1,7 +1,7 @@
 // The cost report: per node MACs/ops/params/output bytes, model totals, peak
 // activation memory over the file's node order, and per-stage totals for cuts.
 import type { Model, Node } from '../graph/ir.js';
-import { readsOf } from '../graph/links.js';
+import { findProduced, readsOf } from '../graph/links.js';
 import { inferShapes, type InferOptions, type ShapeResult, type ShapeSource } from '../shapes/infer.js';
 import { findRule } from '../ops/registry.js';
 import { attrsOf } from '../ops/attrs.js';
@@ -169,14 +169,9 @@ export function cutSteps(model: Model, order: number[], cuts: string[]): { name:
   const g = model.graph;
   const stepOf = new Map(order.map((ni, s) => [ni, s]));
   const out = cuts.map((c) => {
-    let ni = g.nodes.findIndex((n) => n.outputs.includes(c));
-    let name = c;
-    if (ni < 0) {
-      ni = g.nodes.findIndex((n) => n.name === c);
-      if (ni >= 0) name = g.nodes[ni].outputs[0];
-    }
-    if (ni < 0) throw new OfframpError('usage', `cut '${c}' names no value or node of the graph`);
-    return { name, step: stepOf.get(ni)! };
+    const v = findProduced(g, c);
+    if (!v) throw new OfframpError('usage', `cut '${c}' names no value or node of the graph`);
+    return { name: v.name, step: stepOf.get(v.node)! };
   });
   out.sort((a, b) => a.step - b.step);
   for (let i = 1; i < out.length; i++) if (out[i].step === out[i - 1].step) throw new OfframpError('usage', `cuts '${out[i - 1].name}' and '${out[i].name}' fall at the same place`);

@@ -80,3 +80,11 @@ export function isTopological(g: Graph): boolean {
   const order = topoOrder(g);
   return order.every((x, i) => x === i);
 }
+
+/** A value named by the user: a node output, or a node's name standing for its first output. */
+export function findProduced(g: Graph, spec: string): { name: string; node: number } | undefined {
+  let node = g.nodes.findIndex((n) => n.outputs.includes(spec));
+  if (node >= 0) return { name: spec, node };
+  node = g.nodes.findIndex((n) => n.name === spec);
+  return node >= 0 ? { name: g.nodes[node].outputs[0], node } : undefined;
+}

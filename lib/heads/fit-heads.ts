@@ -1,7 +1,7 @@
 // The graft pipeline: resolve cuts, capture pooled features in one runtime pass,
 // fit a head per cut (backbone frozen), attach them. Deterministic for a seed.
 import type { Dim, Model } from '../graph/ir.js';
-import { topoOrder } from '../graph/links.js';
+import { findProduced, topoOrder } from '../graph/links.js';
 import { mulberry32 } from '../graph/build.js';
 import { FLOAT, dtypeName } from '../onnx/dtype.js';
 import { completeShapes } from '../cost/analyze.js';
@@ -65,11 +65,9 @@ export function classifierIO(model: Model & { file?: string }, shapes: ShapeResu
 export function resolveCuts(model: Model & { file?: string }, cuts: string[]): string[] {
   const g = model.graph, order = topoOrder(g), stepOf = new Map(order.map((ni, s) => [ni, s]));
   const out = cuts.map((c) => {
-    let ni = g.nodes.findIndex((n) => n.outputs.includes(c));
-    let name = c;
-    if (ni < 0) { ni = g.nodes.findIndex((n) => n.name === c); if (ni >= 0) name = g.nodes[ni].outputs[0]; }
-    if (ni < 0) throw new OfframpError('usage', `cut '${c}' names no value or node of the graph`, model.file);
-    return { name, step: stepOf.get(ni)! };
+    const v = findProduced(g, c);
+    if (!v) throw new OfframpError('usage', `cut '${c}' names no value or node of the graph`, model.file);
+    return { name: v.name, step: stepOf.get(v.node)! };
   }).sort((a, b) => a.step - b.step);
   for (let i = 1; i < out.length; i++) if (out[i].name === out[i - 1].name) throw new OfframpError('usage', `cut '${out[i].name}' is given twice`, model.file);
   return out.map((c) => c.name);
