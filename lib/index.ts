@@ -16,8 +16,8 @@ export { costJson, costText, costMarkdown, COST_SCHEMA } from './report/cost.js'
 export { OfframpError, type ErrorKind } from './errors.js';
 export { VERSION } from './version.js';
 export { memoryOrder, memoryOrderOf, reorderModel, reorderGraph, type MemoryOrder, type StageOrder, type MemoryOrderOptions } from './cost/reorder.js';
-export { parseBytes, readTargetFile, targetFromJson, resolveTarget, BUILTIN_TARGETS, type Target, type TargetOptions, type Ratio } from './target/target.js';
-export { budgetOf, checkBudget, stageFootprints, CONVENTIONS as BUDGET_CONVENTIONS, type Budget, type StageBudget, type StageFootprint, type Footprint, type Fit, type Over, type Precision } from './target/budget.js';
+export { parseBytes, readTargetFile, targetFromJson, resolveTarget, BUILTIN_TARGETS, type Target, type TargetOptions, type Ratio } from './chip/target.js';
+export { budgetOf, checkBudget, stageFootprints, CONVENTIONS as BUDGET_CONVENTIONS, type Budget, type StageBudget, type StageFootprint, type Footprint, type Fit, type Over, type Precision } from './chip/budget.js';
 export { budgetText, budgetMarkdown, reorderText, reorderMarkdown } from './report/budget.js';
 export { scanModel, planCuts, rankCuts, cutsAtFractions, resolveCut, type Cut, type CutPlan } from './cuts/scan.js';
 export { exitOutputs, exitCuts } from './cuts/exits.js';
@@ -34,6 +34,6 @@ export { tune, type TuneResult, type TuneOptions } from './tune/search.js';
 export { makeCache, type ExitCache, type ExitCosts } from './tune/cache.js';
 export { writeC } from './emit/write.js';
 export { emitC } from './emit/c.js';
-export { buildExits, type BuildOptions, type BuildResult } from './build/build.js';
+export { buildExits, type BuildOptions, type BuildResult } from './pipeline/build.js';
 export { eliminateDeadCode } from './graph/passes.js';
 export { foldShapeSubgraphs } from './shapes/fold.js';

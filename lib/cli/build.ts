@@ -1,9 +1,9 @@
 // `offramp build MODEL --data X.npy [--labels y.npy] [--target …] -o DIR`: the whole job in one command.
 import path from 'node:path';
 import type { Command } from 'commander';
-import { buildExits } from '../build/build.js';
+import { buildExits } from '../pipeline/build.js';
 import { parseHead } from '../heads/spec.js';
-import { resolveTarget } from '../target/target.js';
+import { resolveTarget } from '../chip/target.js';
 import { buildHtml, buildJson, buildText } from '../report/build.js';
 import { overLine, storedLabel } from '../report/budget.js';
 import { writeAtomic } from '../util/atomic.js';

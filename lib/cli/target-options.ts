@@ -1,6 +1,6 @@
 // The chip a report is judged against: the same options on every command that budgets.
 import type { Command } from 'commander';
-import { BUILTIN_TARGETS } from '../target/target.js';
+import { BUILTIN_TARGETS } from '../chip/target.js';
 
 export function targetOptions(c: Command): Command {
   return c

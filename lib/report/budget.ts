@@ -2,7 +2,7 @@
 // objects as they are (fields "budget" and "reorder" of the cost report).
 import type { CostReport } from '../cost/report.js';
 import type { MemoryOrder } from '../cost/reorder.js';
-import type { Budget, Fit, Over, Precision, StageCheck } from '../target/budget.js';
+import type { Budget, Fit, Over, Precision, StageCheck } from '../chip/budget.js';
 import { bytes, mdTable, si, table } from './units.js';
 
 /** What the stored figures are: "float32" when every weight is, else "as stored". */

@@ -1,6 +1,6 @@
 // The build report: what was placed where, what the policy saves, whether the
 // chain reproduces the model, and how each stage sits against the chip.
-import type { BuildResult } from '../build/build.js';
+import type { BuildResult } from '../pipeline/build.js';
 import type { Policy } from '../policy/policy.js';
 import path from 'node:path';
 import { bytes, si, table, toJson } from './units.js';
