@@ -40,8 +40,6 @@ export async function openSession(bytes: Uint8Array, file?: string): Promise<Ses
 export interface SyncSession {
   readonly inputNames: readonly string[];
   readonly outputNames: readonly string[];
-  /** whether each input, then each output, declares its first dim symbolic (the file accepts any batch) */
-  readonly anyBatch: { inputs: boolean[]; outputs: boolean[] };
   run(feeds: Record<string, ort.Tensor>): Record<string, ort.Tensor>;
   release(): void;
 }
@@ -54,12 +52,9 @@ export function openSyncSession(bytes: Uint8Array, file?: string): SyncSession {
   }
   const inputNames = s.inputMetadata.map((m) => m.name), outputNames = s.outputMetadata.map((m) => m.name);
   const fetches = Object.fromEntries(outputNames.map((n) => [n, null]));
-  // the binding marks a symbolic dim as -1
-  const free = (m: { isTensor: boolean; shape: number[] }) => m.isTensor && m.shape.length > 0 && m.shape[0] === -1;
-  const anyBatch = { inputs: s.inputMetadata.map(free), outputs: s.outputMetadata.map(free) };
   let released = false;
   return {
-    inputNames, outputNames, anyBatch,
+    inputNames, outputNames,
     run(feeds) {
       if (released) throw new OfframpError('runtime', 'session already released', file);
       for (const n of inputNames) if (!feeds[n]) throw new OfframpError('runtime', `input '${n}' not fed`, file);
