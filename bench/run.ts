@@ -5,6 +5,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
+import type { ChainBench, ChainPair } from './chain.js';
 
 const CHILD = path.join(path.dirname(fileURLToPath(import.meta.url)), 'child.js');
 
@@ -37,10 +38,21 @@ async function parent(): Promise<void> {
     line(`peak RSS growth, ${(npy.fileBytes / 2 ** 20).toFixed(0)} MiB .npy`, `${(npy.rssGrowthBytes / 2 ** 20).toFixed(1)} MiB`, `target: independent of the file; ratio to the file ${(npy.rssGrowthBytes / npy.fileBytes).toFixed(3)}`);
     const chainRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'chain.js')], { encoding: 'utf8' });
     if (chainRun.status !== 0) throw new Error(`bench chain failed: ${chainRun.stderr}`);
-    const ch = JSON.parse(chainRun.stdout);
-    console.log(`\nstaged chain (ResNet-18, ${ch.stages} stages, batch 1, ${ch.runs} interleaved runs, medians)`);
-    line('whole model', `${ch.wholeMs.toFixed(2)} ms`);
-    line('staged chain', `${ch.chainMs.toFixed(2)} ms`, `target ratio ≤ 1.10: ratio ${ch.ratio.toFixed(3)}`);
+    const ch = JSON.parse(chainRun.stdout) as ChainBench;
+    const pairLines = (p: ChainPair, target: number, note = '') => {
+      console.log(`\n${p.model}: ${(p.macs / 1e6).toFixed(2)} M MACs in ${p.stages} stages, batch 1, ${p.runs} interleaved runs, medians per frame${note}`);
+      line('whole model', `${p.wholeMs.toFixed(3)} ms`);
+      line('staged chain (loadChain().run)', `${p.chainMs.toFixed(3)} ms`, `target ratio ≤ ${target.toFixed(2)}: ratio ${p.ratio.toFixed(3)}`);
+      line('both via awaited session API', `${p.wholeApiMs.toFixed(3)} ms`, `chain ${p.chainApiMs.toFixed(3)} ms: ratio ${p.apiRatio.toFixed(3)} (the runner before)`);
+    };
+    console.log('\nstaged chain against the whole model (same runtime path; ratios of interleaved medians)');
+    pairLines(ch.resnet, 1.1);
+    pairLines(ch.cnn, 1.5);
+    if (ch.fixture) pairLines(ch.fixture, 1.5, '; 4× fewer MACs than the target model, shown for reference');
+    const r = ch.replay;
+    console.log(`\nofframp replay (small CNN with 3 exit heads, ${r.frames} frames × ${r.reps}, interleaved with the whole model; confidence policy: ${r.meanStages.toFixed(2)} of ${r.stages} stages per frame; medians)`);
+    line('replay frames / s', `${r.fps.toFixed(0)}`, `target ≥ whole model's rate ÷ 1.5: replay/whole ${r.ratio.toFixed(2)}, ratio to target ${(r.ratio * 1.5).toFixed(2)}`);
+    line('whole model frames / s', `${r.wholeFps.toFixed(0)}`, 'one run per frame, no exits');
     const tuneRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'tune.js')], { encoding: 'utf8' });
     if (tuneRun.status !== 0) throw new Error(`bench tune failed: ${tuneRun.stderr}`);
     const tu = JSON.parse(tuneRun.stdout);

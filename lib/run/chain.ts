@@ -1,9 +1,11 @@
 // The staged runner: a split's stages in onnxruntime, one after another. Handover
-// tensors go from one session's outputs to the next one's feeds as they are.
+// tensors go from one session's outputs to the next one's feeds as they are (no copy
+// on our side). Stages run on the caller's turn (openSyncSession): for a model of a few
+// million MACs the per-call cost of the awaited session API outweighed a stage's work.
 import fs from 'node:fs';
 import path from 'node:path';
 import crypto from 'node:crypto';
-import { openSession, runSession, type OrtTensor, type Session } from '../runtime/ort.js';
+import { openSyncSession, type OrtTensor, type SyncSession } from '../runtime/ort.js';
 import { MANIFEST_FILE, MANIFEST_SCHEMA, type Manifest } from '../split/manifest.js';
 import { OfframpError } from '../errors.js';
 
@@ -43,18 +45,19 @@ export function readManifest(where: string): { manifest: Manifest; file: string 
 export async function loadChain(manifestPath: string): Promise<Chain> {
   const { manifest, file } = readManifest(manifestPath);
   const dir = path.dirname(file);
-  const sessions: Session[] = [];
+  const sessions: SyncSession[] = [];
   try {
     for (const s of manifest.stages) {
       const stageFile = path.join(dir, s.file);
       let bytes: Buffer;
       try { bytes = fs.readFileSync(stageFile); } catch { throw new OfframpError('io', 'stage file is missing', stageFile); }
       if (crypto.createHash('sha256').update(bytes).digest('hex') !== s.sha256) throw new OfframpError('io', 'stage file changed since the split (SHA-256 differs from the manifest)', stageFile);
-      sessions.push(await openSession(bytes, stageFile));
+      sessions.push(openSyncSession(bytes, stageFile));
     }
-  } catch (e) { await Promise.all(sessions.map((x) => x.release())); throw e; }
+  } catch (e) { for (const x of sessions) x.release(); throw e; }
+  const files = manifest.stages.map((s) => path.join(dir, s.file));
 
-  const run = async (inputs: Record<string, OrtTensor>, options: RunOptions = {}): Promise<ChainResult> => {
+  const runOne = (inputs: Record<string, OrtTensor>, options: RunOptions = {}): ChainResult => {
     const env = new Map<string, OrtTensor>(Object.entries(inputs));
     let macs = 0;
     const collect = () => Object.fromEntries(manifest.outputs.filter((o) => env.has(o.name)).map((o) => [o.name, env.get(o.name)!]));
@@ -62,11 +65,11 @@ export async function loadChain(manifestPath: string): Promise<Chain> {
       const feeds: Record<string, OrtTensor> = {};
       for (const i of s.inputs) {
         const t = env.get(i.name);
-        if (!t) throw new OfframpError('runtime', `stage ${s.index} needs '${i.name}'${i.from === 'input' ? ', a model input not given' : ''}`, path.join(dir, s.file));
+        if (!t) throw new OfframpError('runtime', `stage ${s.index} needs '${i.name}'${i.from === 'input' ? ', a model input not given' : ''}`, files[s.index]);
         feeds[i.name] = t;
       }
-      const out = await runSession(sessions[s.index], feeds, path.join(dir, s.file));
-      for (const [k, v] of Object.entries(out)) env.set(k, v);
+      const out = sessions[s.index].run(feeds);
+      for (const k in out) env.set(k, out[k]);
       macs += s.macs;
       if (options.policy) for (const e of s.exits) {
         if (options.policy({ name: e, stage: s.index, value: env.get(e)! })) return { outputs: collect(), exit: e, macs, stagesRun: s.index + 1 };
@@ -74,5 +77,10 @@ export async function loadChain(manifestPath: string): Promise<Chain> {
     }
     return { outputs: collect(), exit: null, macs, stagesRun: manifest.stages.length };
   };
-  return { manifest, dir, run, release: async () => { await Promise.all(sessions.map((x) => x.release())); } };
+
+  return {
+    manifest, dir,
+    run: async (inputs, options) => runOne(inputs, options),
+    release: async () => { for (const x of sessions) x.release(); },
+  };
 }

@@ -2,7 +2,7 @@
 // per output. Integers must match exactly; floats within a relative tolerance,
 // magnitudes below 1 compared as 1 (so values near zero are held to rtol absolute).
 import fs from 'node:fs';
-import { openSession, randomTensor, runSession, tensorFromData, type OrtTensor } from '../runtime/ort.js';
+import { openSyncSession, randomTensor, tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import { mulberry32 } from '../graph/build.js';
 import { dtypeByName } from '../onnx/dtype.js';
 import { halfToNumber, npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
@@ -95,11 +95,12 @@ export interface CheckResult { samples: number; diffs: Diff[]; ok: boolean }
 export async function checkChain(chain: Chain, modelFile: string, samples: Sample[], tol: Tolerance = {}): Promise<CheckResult> {
   let bytes: Buffer;
   try { bytes = fs.readFileSync(modelFile); } catch { throw new OfframpError('io', 'no such file', modelFile); }
-  const session = await openSession(bytes, modelFile);
+  // the runner's own session kind: same options and kernels as the awaited API, without its per-call hop
+  const session = openSyncSession(bytes, modelFile);
   const rows = new Map<string, Diff[]>();
   try {
     for (const s of samples) {
-      const want = await runSession(session, s, modelFile);
+      const want = session.run(s);
       const got = await chain.run(s);
       for (const o of chain.manifest.outputs) {
         if (!want[o.name]) continue;
@@ -107,7 +108,7 @@ export async function checkChain(chain: Chain, modelFile: string, samples: Sampl
         l.push(diffTensors(o.name, got.outputs[o.name], want[o.name], tol));
       }
     }
-  } finally { await session.release(); }
+  } finally { session.release(); }
   const diffs = [...rows.values()].map(mergeDiffs);
   return { samples: samples.length, diffs, ok: diffs.every((d) => d.ok) };
 }
