@@ -1,0 +1,199 @@
+// The arena planner (greedy by size / greedy by breadth, Pisarchyk & Lee 2020, "Efficient
+// Memory Management for Deep Neural Net Inference"): no two values alive at one step share
+// a byte, on hand-made cases, random graphs and the ONNX conformance models; never below the
+// live-set bound, and against the exhaustive optimum on small random cases.
+import { describe, it, expect } from 'vitest';
+import { planArena, ARENA_ALIGN, type ArenaPlan } from '../lib/cost/arena.js';
+import { liveRanges, peakOver, type LiveValue } from '../lib/cost/memory.js';
+import { costModel } from '../lib/cost/report.js';
+import { readsOf } from '../lib/graph/links.js';
+import { loadModel } from '../lib/graph/io.js';
+import { mulberry32 } from '../lib/graph/build.js';
+import type { Graph } from '../lib/graph/ir.js';
+import { model, vi, node } from './helpers/proto.js';
+import { cases, requireTestdata } from './helpers/testdata.js';
+
+/** Every pair of values alive at a common step: disjoint byte ranges. Returns the pairs checked. */
+function expectNoOverlap(p: ArenaPlan): number {
+  let pairs = 0;
+  for (let i = 0; i < p.slots.length; i++) for (let j = i + 1; j < p.slots.length; j++) {
+    const a = p.slots[i], b = p.slots[j];
+    if (a.birth > b.death || b.birth > a.death || !a.bytes || !b.bytes) continue;
+    pairs++;
+    if (!(a.offset + a.bytes <= b.offset || b.offset + b.bytes <= a.offset)) {
+      throw new Error(`${a.name} [${a.offset}, +${a.bytes}) steps ${a.birth}–${a.death} overlaps ${b.name} [${b.offset}, +${b.bytes}) steps ${b.birth}–${b.death}`);
+    }
+  }
+  return pairs;
+}
+
+/** The plan's own claims, checked from its slots. */
+function expectSound(p: ArenaPlan, ranges: LiveValue[], from: number, to: number): void {
+  expectNoOverlap(p);
+  for (const s of p.slots) expect(s.offset % BigInt(p.align)).toBe(0n);
+  expect(p.bytes).toBe(p.slots.reduce((m, s) => (s.offset + s.bytes > m ? s.offset + s.bytes : m), 0n));
+  // The bound is the live-set peak the cost report prints, and no plan goes below it.
+  expect(p.bound).toBe(peakOver(ranges, from, to).bytes);
+  expect(p.bytes >= p.bound).toBe(true);
+}
+
+/** A random graph as in the reorder tests: nodes read one or two earlier values, some make two. */
+function randomRanges(rnd: () => number, maxNodes: number): { ranges: LiveValue[]; steps: number } {
+  const pick = <T>(xs: T[]) => xs[Math.floor(rnd() * xs.length)];
+  const n = 2 + Math.floor(rnd() * maxNodes);
+  const values = ['x'];
+  const sizes = new Map<string, bigint>([['x', BigInt(1 + Math.floor(rnd() * 64)) * 4n]]);
+  const protos = [];
+  for (let i = 0; i < n; i++) {
+    const reads = [...new Set([pick(values), ...(rnd() < 0.5 ? [pick(values)] : [])])];
+    const outs = rnd() < 0.2 ? [`v${i}`, `w${i}`] : [`v${i}`];
+    // Sizes from 1 byte (alignment matters) to a few KiB, with repeats (ties matter).
+    for (const o of outs) { sizes.set(o, rnd() < 0.2 ? 256n : BigInt(1 + Math.floor(rnd() * 4096))); values.push(o); }
+    protos.push(node('Op', reads, outs));
+  }
+  const outputs = [`v${n - 1}`, ...(rnd() < 0.3 ? [`v${Math.floor(n / 2)}`] : [])];
+  const g: Graph = model(protos, [vi('x', [1])], outputs.map((o) => vi(o, [1]))).graph;
+  const io = g.nodes.map((nd) => ({ inputs: nd.inputs, outputs: nd.outputs, reads: readsOf(nd) }));
+  return { ranges: liveRanges(g.nodes.map((_, i) => i), io, sizes, ['x'], outputs), steps: n };
+}
+
+/**
+ * The exhaustive optimum for byte offsets (align 1): some placing order, each value at the lowest offset
+ * where it fits, reaches it (take any optimal plan and place its values by increasing offset: each lands
+ * at or below its optimal offset). So the minimum over all permutations of lowest-fit is the optimum.
+ */
+function optimum(values: LiveValue[]): bigint {
+  let best: bigint | undefined;
+  const rec = (left: LiveValue[], placed: { v: LiveValue; offset: bigint }[], top: bigint) => {
+    if (best !== undefined && top >= best) return;
+    if (!left.length) { best = top; return; }
+    for (const v of left) {
+      const busy = placed.filter((p) => p.v.birth <= v.death && v.birth <= p.v.death).sort((a, b) => (a.offset < b.offset ? -1 : 1));
+      let offset = 0n;
+      for (const p of busy) if (p.offset < offset + v.bytes && offset < p.offset + p.v.bytes) offset = p.offset + p.v.bytes;
+      const end = offset + v.bytes;
+      rec(left.filter((x) => x !== v), [...placed, { v, offset }], end > top ? end : top);
+    }
+  };
+  rec(values, [], 0n);
+  return best!;
+}
+
+describe('arena plan, worked examples', () => {
+  it('a chain reuses the first buffer for the last value', () => {
+    // x 64 B (step 0), a 128 B (0–1), b 128 B (1–2), c 32 B (2). Live sets: {x,a} 192, {a,b} 256, {b,c} 160.
+    // Greedy by size: a at 0, b above it at 128 (they meet at step 1), x above a at 128 (it does not meet b),
+    // c in the gap under b at 0. Arena 256 = the bound.
+    const r: LiveValue[] = [
+      { name: 'x', bytes: 64n, birth: -1, death: 0 }, { name: 'a', bytes: 128n, birth: 0, death: 1 },
+      { name: 'b', bytes: 128n, birth: 1, death: 2 }, { name: 'c', bytes: 32n, birth: 2, death: 2 },
+    ];
+    const p = planArena(r);
+    expect(p.slots.map((s) => [s.name, s.offset])).toEqual([['x', 128n], ['a', 0n], ['b', 128n], ['c', 0n]]);
+    expect([p.bytes, p.bound, p.method]).toEqual([256n, 256n, 'greedy-by-size']);
+    expectSound(p, r, 0, 2);
+  });
+
+  it('offsets are 16-byte aligned; sizes are not padded', () => {
+    // Three 20-byte values live together: offsets 0, 32, 64 (each end rounded up to 16); arena 84 > bound 60.
+    const r: LiveValue[] = ['a', 'b', 'c'].map((name) => ({ name, bytes: 20n, birth: 0, death: 0 }));
+    const p = planArena(r);
+    expect(ARENA_ALIGN).toBe(16);
+    expect(p.slots.map((s) => s.offset)).toEqual([0n, 32n, 64n]);
+    expect([p.bytes, p.bound]).toEqual([84n, 60n]);
+    expect(planArena(r, { align: 1 }).bytes).toBe(60n);
+  });
+
+  it('greedy by breadth wins where greedy by size fragments the arena', () => {
+    // A 16 (steps 2–4), B 64 (2), C 48 (2–3), D 48 (3), E 32 (3–5). Live sets: step 2 A+B+C = 128,
+    // step 3 A+C+D+E = 144 (the bound), step 4 A+E = 48, step 5 E = 32.
+    // By size: B@0, C@64 (meets B), D@0 (meets only C: the gap under it), E@112 (the 16-byte gap 48–64 is too
+    // small), A@144 (meets all four) → 160.
+    // By breadth: step 3 first, its values by size: C@0, D@48, E@96, A@128 (144); then step 2: B meets A and C,
+    // the gap 48–128 holds it → B@48. Arena 144 = the bound, so breadth is kept.
+    const r: LiveValue[] = [
+      { name: 'A', bytes: 16n, birth: 2, death: 4 }, { name: 'B', bytes: 64n, birth: 2, death: 2 }, { name: 'C', bytes: 48n, birth: 2, death: 3 },
+      { name: 'D', bytes: 48n, birth: 3, death: 3 }, { name: 'E', bytes: 32n, birth: 3, death: 5 },
+    ];
+    const p = planArena(r);
+    expect([p.bytes, p.bound, p.method]).toEqual([144n, 144n, 'greedy-by-breadth']);
+    expect(p.slots.map((s) => [s.name, s.offset])).toEqual([['A', 128n], ['B', 48n], ['C', 0n], ['D', 48n], ['E', 96n]]);
+    expectSound(p, r, 0, 5);
+    // Greedy by size alone, as worked above.
+    const bySize = planArena(r, { methods: ['greedy-by-size'] });
+    expect(bySize.slots.map((s) => [s.name, s.offset])).toEqual([['A', 144n], ['B', 0n], ['C', 64n], ['D', 0n], ['E', 112n]]);
+    expect(bySize.bytes).toBe(160n);
+    expectSound(bySize, r, 0, 5);
+  });
+});
+
+describe('arena plan on random graphs (property)', () => {
+  it('no overlap, aligned, never below the bound, independent of the order the ranges come in', () => {
+    const rnd = mulberry32(11);
+    let pairs = 0, above = 0;
+    for (let trial = 0; trial < 400; trial++) {
+      const { ranges, steps } = randomRanges(rnd, 40);
+      // The whole order, and a stage in the middle (values crossing it clipped to it, as the cost report does).
+      const a = Math.floor(rnd() * steps), b = a + Math.floor(rnd() * (steps - a));
+      for (const [from, to] of [[0, steps - 1], [a, b]]) {
+        const p = planArena(ranges, { from, to });
+        expectSound(p, ranges, from, to);
+        pairs += expectNoOverlap(p);
+        if (p.bytes > p.bound) above++;
+        // Same values in another order: the same plan (ties are broken by size, birth, name).
+        const shuffled = [...ranges].sort(() => rnd() - 0.5);
+        const q = planArena(shuffled, { from, to });
+        const at = new Map(q.slots.map((s) => [s.name, s.offset]));
+        expect(p.slots.map((s) => at.get(s.name))).toEqual(p.slots.map((s) => s.offset));
+      }
+    }
+    // Not vacuous: many live pairs were checked, and some plans do sit above the bound.
+    expect(pairs).toBeGreaterThan(5000);
+    expect(above).toBeGreaterThan(0);
+  });
+
+  it('against the exhaustive optimum on small cases: never better (it cannot be), usually equal', () => {
+    const rnd = mulberry32(5);
+    let equal = 0, n = 0, worst = 1;
+    for (let trial = 0; trial < 150; trial++) {
+      const { ranges, steps } = randomRanges(rnd, 5);
+      const values = ranges.map((v) => ({ ...v, birth: Math.max(v.birth, 0) })).filter((v) => v.birth <= v.death);
+      if (values.length > 7) continue;
+      const p = planArena(values, { from: 0, to: steps - 1, align: 1 });
+      const opt = optimum(values);
+      expect(p.bytes >= opt).toBe(true);
+      expect(opt >= p.bound).toBe(true);
+      n++;
+      if (p.bytes === opt) equal++;
+      worst = Math.max(worst, Number(p.bytes) / Number(opt));
+    }
+    console.log(`arena vs exhaustive optimum: ${equal}/${n} equal, worst ratio ${worst.toFixed(3)}`);
+    expect(n).toBeGreaterThan(100);
+    expect(equal / n).toBeGreaterThan(0.9);
+  });
+});
+
+describe('arena plan on the ONNX conformance models (Debian libonnx-testdata)', () => {
+  it.runIf(requireTestdata())('no overlap over every model the cost report can size, and the report agrees', () => {
+    let planned = 0, pairs = 0;
+    for (const c of cases('all')) {
+      let report;
+      let m;
+      try { m = loadModel(c.model); report = costModel(m); } catch { continue; } // unsized or unloadable: nothing to plan
+      const g = m.graph;
+      const sizes = new Map<string, bigint>();
+      for (const t of report.model.inputs) sizes.set(t.name, t.bytes);
+      for (const n of report.nodes) if (n.op !== 'Constant') for (const o of n.outputs) sizes.set(o.name, o.bytes);
+      const order = report.nodes.map((n) => n.index);
+      const io = g.nodes.map((nd) => ({ inputs: nd.inputs, outputs: nd.outputs, reads: readsOf(nd) }));
+      const ranges = liveRanges(order, io, sizes, report.model.inputs.map((t) => t.name), report.model.outputs.map((t) => t.name));
+      const p = planArena(ranges, { from: 0, to: order.length - 1 });
+      expectSound(p, ranges, 0, order.length - 1);
+      pairs += expectNoOverlap(p);
+      expect(p.bound).toBe(report.model.peakActivationBytes);
+      planned++;
+    }
+    console.log(`conformance models planned: ${planned}, live pairs checked: ${pairs}`);
+    expect(planned).toBeGreaterThan(500);
+  });
+});
