@@ -2,7 +2,9 @@
 // two values live at the same step share a byte. The live-set peak (memory.ts) is
 // the lower bound for a node order; fragmentation can push a real plan above it.
 // Two heuristics from Pisarchyk & Lee 2020, "Efficient Memory Management for Deep
-// Neural Net Inference": greedy by size and greedy by breadth; the smaller wins.
+// Neural Net Inference": greedy by size and greedy by breadth; then a few rounds of
+// squeaky wheel optimization over their orders, for the layouts both miss. The
+// smallest plan wins.
 import type { LiveValue } from './memory.js';
 
 /**
@@ -13,7 +15,7 @@ import type { LiveValue } from './memory.js';
  */
 export const ARENA_ALIGN = 16;
 
-export type ArenaMethod = 'greedy-by-size' | 'greedy-by-breadth';
+export type ArenaMethod = 'greedy-by-size' | 'greedy-by-breadth' | 'squeaky-wheel';
 export interface Slot { name: string; offset: bigint; bytes: bigint; birth: number; death: number }
 export interface ArenaPlan {
   /** arena size: the largest offset + bytes over all slots */
@@ -100,18 +102,57 @@ export function planArena(ranges: LiveValue[], opts: { from?: number; to?: numbe
   const align = opts.align ?? ARENA_ALIGN;
   const values = clip(ranges, from, to);
   const a = BigInt(align);
-  const methods = opts.methods ?? ['greedy-by-size', 'greedy-by-breadth'];
-  const plans = methods.map((method) => {
-    const at = place(method === 'greedy-by-size' ? greedyBySize(values) : greedyByBreadth(values, from, to), a);
+  const methods = opts.methods ?? ['greedy-by-size', 'greedy-by-breadth', 'squeaky-wheel'];
+  const bound = liveBound(values);
+  const run = (order: LiveValue[]) => {
+    const at = place(order, a);
     const bytes = values.reduce((m, v) => { const end = at.get(v.name)! + v.bytes; return end > m ? end : m; }, 0n);
-    return { method, at, bytes };
-  });
+    return { at, bytes, order };
+  };
+  const bySize = run(greedyBySize(values));
+  const byBreadth = methods.includes('greedy-by-breadth') || methods.includes('squeaky-wheel') ? run(greedyByBreadth(values, from, to)) : bySize;
+  const plans: { method: ArenaMethod; at: Map<string, bigint>; bytes: bigint }[] = [];
+  for (const m of methods) {
+    if (m === 'greedy-by-size') plans.push({ method: m, ...bySize });
+    else if (m === 'greedy-by-breadth') plans.push({ method: m, ...byBreadth });
+    else plans.push({ method: m, ...squeakyWheel([bySize, byBreadth], bound, run) });
+  }
   // The smaller arena; on a tie, the method listed first (greedy by size by default).
   const best = plans.reduce((x, y) => (y.bytes < x.bytes ? y : x));
   return {
-    bytes: best.bytes, bound: liveBound(values), method: best.method, align,
+    bytes: best.bytes, bound, method: best.method, align,
     slots: values.map((v) => ({ name: v.name, offset: best.at.get(v.name)!, bytes: v.bytes, birth: v.birth, death: v.death })),
   };
+}
+
+/** Rounds of re-prioritising per start; each is one placement pass, O(values²). */
+const WHEEL_ROUNDS = 8;
+
+/**
+ * Squeaky wheel optimization (Joslin & Clements 1999) over the greedy orders: the values a plan puts
+ * above the live-set bound go first in the next round, the rest keep their order. Greedy by size puts
+ * every large buffer first, into fixed slots; in a chain of residual blocks the block inputs then
+ * stack above both slots, while the optimum alternates them with the large buffers from block to
+ * block. Putting those inputs first finds that layout. Never worse than its starting plans.
+ */
+function squeakyWheel(starts: { at: Map<string, bigint>; bytes: bigint; order: LiveValue[] }[], bound: bigint, run: (o: LiveValue[]) => { at: Map<string, bigint>; bytes: bigint; order: LiveValue[] }) {
+  let best = starts.reduce((x, y) => (y.bytes < x.bytes ? y : x));
+  for (const start of starts) {
+    let cur = start;
+    const seen = new Set<string>();
+    for (let round = 0; round < WHEEL_ROUNDS && best.bytes > bound; round++) {
+      const high = cur.order.filter((v) => cur.at.get(v.name)! + v.bytes > bound);
+      if (!high.length) break;
+      const high1 = new Set(high);
+      const order = [...high, ...cur.order.filter((v) => !high1.has(v))];
+      const key = order.map((v) => v.name).join('\0');
+      if (seen.has(key)) break;
+      seen.add(key);
+      cur = run(order);
+      if (cur.bytes < best.bytes) best = cur;
+    }
+  }
+  return best;
 }
 
 /** Largest sum of bytes live at one step (the values are already clipped). */
