@@ -1,5 +1,5 @@
-// Arena planning time: planArena over every activation of EfficientNet-B0 (the builder's
-// ~260 values in file order) and of its third quarter by MACs (where greedy alone
+// Arena planning time: planArena over every activation of EfficientNet-B0 (240 values
+// in file order) and of its third quarter by MACs (where greedy alone
 // fragments and the squeaky-wheel rounds run). Prints one JSON line; bench/run.ts prints it
 // with the target.
 import { efficientnetB0 } from '../test/helpers/nets.js';
