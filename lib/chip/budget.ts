@@ -17,7 +17,7 @@ import type { Ratio, Target } from './target.js';
 export const CONVENTIONS = [
   'weights: bytes as stored in the stage files; a weight read by two stages counts in both',
   'int8: 1 byte per floating-point weight; Conv/ConvTranspose/Gemm/MatMul weights add a float32 scale and an int8 zero point per output channel (5 bytes), their biases are int32 (4 bytes per element); BatchNormalization folds into the layer before it (an int32 bias, 4 bytes per channel); integer weights stay as stored',
-  `RAM: the stage's arena (an offset for every value of the stage on its own: what it reads from earlier stages, makes and hands on; greedy by size or by breadth, ${ARENA_ALIGN}-byte offsets; at least its peak activation), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena`,
+  `RAM: the stage's arena (an offset for every value of the stage on its own: what it reads from earlier stages, makes and hands on; greedy by size, by breadth, or squeaky-wheel rounds over them, ${ARENA_ALIGN}-byte offsets; at least its peak activation), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena`,
   'int8 activations: 1 byte per floating-point element; integer tensors stay as stored',
   'latency: cycles = ceil(MACs / macs-per-cycle), time = cycles / clock; other arithmetic, data movement and interpreter overhead are not counted',
   'flash holds weights only: code, interpreter and constants of the firmware come on top',

@@ -38,7 +38,8 @@ export function buildSummary(r: BuildResult) {
     stages: r.manifest.stages.map((s, k) => ({
       file: s.file, macs: s.macs, weightBytes: r.cost.stages[k]?.paramBytes ?? BigInt(s.weightBytes),
       peakActivationBytes: r.cost.stages[k]?.peakActivationBytes ?? BigInt(s.peakActivationBytes),
-      arenaBytes: s.arenaBytes ?? null,
+      // Beside the peak, from the same view (the cost report's stages); the manifest keeps the stage files' own plans.
+      arenaBytes: r.cost.stages[k]?.arenaBytes ?? (s.arenaBytes === undefined ? null : BigInt(s.arenaBytes)),
       handoverBytes: s.handoverBytes, exits: s.exits,
     })),
     check: { samples: r.check.samples, ok: r.check.ok, maxAbs: Math.max(0, ...r.check.diffs.map((d) => d.maxAbs)) },
