@@ -15,7 +15,8 @@ import type { LiveValue } from './memory.js';
  */
 export const ARENA_ALIGN = 16;
 
-export type ArenaMethod = 'greedy-by-size' | 'greedy-by-breadth' | 'squeaky-wheel';
+/** 'stacked': every value its own bytes, only where the sizes sum beyond 2^53 (see Problem). */
+export type ArenaMethod = 'greedy-by-size' | 'greedy-by-breadth' | 'squeaky-wheel' | 'stacked';
 export interface Slot { name: string; offset: bigint; bytes: bigint; birth: number; death: number }
 export interface ArenaPlan {
   /** arena size: the largest offset + bytes over all slots */
@@ -28,57 +29,78 @@ export interface ArenaPlan {
   slots: Slot[];
 }
 
-const alignUp = (x: bigint, a: bigint) => ((x + a - 1n) / a) * a;
-const meet = (a: { birth: number; death: number }, b: { birth: number; death: number }) => a.birth <= b.death && b.birth <= a.death;
+/**
+ * Placing works on numbers: exact while the values' sizes, each rounded up to the alignment, sum to at
+ * most 2^53 (8 PiB). Beyond that every value simply gets bytes of its own ('stacked', in bigint).
+ */
+interface Problem { n: number; size: Float64Array; birth: Int32Array; death: Int32Array; name: string[]; meets: number[][]; align: number }
+
 /** Larger first; then earlier birth; then name (code-unit order), so ties never depend on the engine's sort. */
-const bySize = (a: LiveValue, b: LiveValue) => (a.bytes !== b.bytes ? (a.bytes > b.bytes ? -1 : 1) : a.birth - b.birth || (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
+const bySize = (p: Problem) => (a: number, b: number) =>
+  p.size[b] - p.size[a] || p.birth[a] - p.birth[b] || (p.name[a] < p.name[b] ? -1 : p.name[a] > p.name[b] ? 1 : 0);
+
+/**
+ * For each value, the others alive at some common step (a sweep by birth). Placing a value looks only
+ * at these, so a pass costs the sum of the live sets, not the square of the value count.
+ */
+function meetings(birth: Int32Array, death: Int32Array): number[][] {
+  const n = birth.length;
+  const out: number[][] = Array.from({ length: n }, () => []);
+  const byBirth = Array.from({ length: n }, (_, i) => i).sort((a, b) => birth[a] - birth[b] || a - b);
+  let active: number[] = [];
+  for (const v of byBirth) {
+    active = active.filter((a) => death[a] >= birth[v]);
+    for (const a of active) { out[a].push(v); out[v].push(a); }
+    active.push(v);
+  }
+  return out;
+}
 
 /**
  * Place values one at a time, each in the smallest gap among the placed values it
  * meets in time that holds it (best fit), else above them all. The paper's offset
  * rule for both heuristics; only the order of the values differs.
  */
-function place(order: LiveValue[], align: bigint): Map<string, bigint> {
-  const at = new Map<string, bigint>();
-  const placed: { v: LiveValue; offset: bigint }[] = [];
+function place(p: Problem, order: readonly number[]): { at: Float64Array; bytes: number } {
+  const at = new Float64Array(p.n).fill(-1);
+  const near: number[] = [];
+  let top = 0;
   for (const v of order) {
-    let prev = 0n, best: bigint | undefined, bestGap = 0n;
-    for (const p of placed) {
-      if (!meet(p.v, v) || p.v.bytes === 0n) continue;
-      if (p.offset > prev) {
-        const gap = p.offset - prev;
-        if (gap >= v.bytes && (best === undefined || gap < bestGap)) { best = prev; bestGap = gap; }
-      }
-      const end = alignUp(p.offset + p.v.bytes, align);
+    const size = p.size[v];
+    if (size === 0) { at[v] = 0; continue; }
+    near.length = 0;
+    for (const u of p.meets[v]) if (at[u] >= 0 && p.size[u] > 0) near.push(u);
+    // By offset; among equal offsets the order does not change the result.
+    near.sort((x, y) => at[x] - at[y]);
+    let prev = 0, best = -1, bestGap = 0;
+    for (const u of near) {
+      const gap = at[u] - prev;
+      if (gap >= size && (best < 0 || gap < bestGap)) { best = prev; bestGap = gap; }
+      const end = Math.ceil((at[u] + p.size[u]) / p.align) * p.align;
       if (end > prev) prev = end;
     }
-    const offset = v.bytes === 0n ? 0n : best ?? prev;
-    at.set(v.name, offset);
-    // Kept sorted by offset (then by order of placing), so gaps are found in one sweep.
-    let i = placed.length;
-    while (i > 0 && placed[i - 1].offset > offset) i--;
-    placed.splice(i, 0, { v, offset });
+    at[v] = best >= 0 ? best : prev;
+    if (at[v] + size > top) top = at[v] + size;
   }
-  return at;
+  return { at, bytes: top };
 }
 
 /** Greedy by size: values in non-increasing size. */
-function greedyBySize(values: LiveValue[]): LiveValue[] {
-  return [...values].sort(bySize);
-}
+const greedyBySize = (p: Problem): number[] => Array.from({ length: p.n }, (_, i) => i).sort(bySize(p));
 
 /**
  * Greedy by breadth: steps in non-increasing breadth (bytes live there), ties by
  * step; at each, its live values not yet placed, in non-increasing size.
  */
-function greedyByBreadth(values: LiveValue[], from: number, to: number): LiveValue[] {
-  const live: LiveValue[][] = Array.from({ length: to - from + 1 }, () => []);
-  for (const v of values) for (let s = v.birth; s <= v.death; s++) live[s - from].push(v);
-  const breadth = live.map((l) => l.reduce((a, v) => a + v.bytes, 0n));
-  const steps = live.map((_, i) => i).sort((a, b) => (breadth[a] !== breadth[b] ? (breadth[a] > breadth[b] ? -1 : 1) : a - b));
-  const seen = new Set<LiveValue>();
-  const out: LiveValue[] = [];
-  for (const s of steps) for (const v of [...live[s]].sort(bySize)) if (!seen.has(v)) { seen.add(v); out.push(v); }
+function greedyByBreadth(p: Problem, from: number, to: number): number[] {
+  const live: number[][] = Array.from({ length: to - from + 1 }, () => []);
+  for (let v = 0; v < p.n; v++) for (let s = p.birth[v]; s <= p.death[v]; s++) live[s - from].push(v);
+  const breadth = live.map((l) => l.reduce((a, v) => a + p.size[v], 0));
+  const steps = live.map((_, i) => i).sort((a, b) => breadth[b] - breadth[a] || a - b);
+  const seen = new Uint8Array(p.n);
+  const out: number[] = [];
+  const cmp = bySize(p);
+  for (const s of steps) for (const v of live[s].sort(cmp)) if (!seen[v]) { seen[v] = 1; out.push(v); }
   return out;
 }
 
@@ -101,33 +123,34 @@ export function planArena(ranges: LiveValue[], opts: { from?: number; to?: numbe
   const to = opts.to ?? ranges.reduce((a, v) => Math.max(a, v.death), from - 1);
   const align = opts.align ?? ARENA_ALIGN;
   const values = clip(ranges, from, to);
-  const a = BigInt(align);
-  const methods = opts.methods ?? ['greedy-by-size', 'greedy-by-breadth', 'squeaky-wheel'];
   const bound = liveBound(values);
-  const run = (order: LiveValue[]) => {
-    const at = place(order, a);
-    const bytes = values.reduce((m, v) => { const end = at.get(v.name)! + v.bytes; return end > m ? end : m; }, 0n);
-    return { at, bytes, order };
-  };
-  const bySize = run(greedyBySize(values));
-  const byBreadth = methods.includes('greedy-by-breadth') || methods.includes('squeaky-wheel') ? run(greedyByBreadth(values, from, to)) : bySize;
-  const plans: { method: ArenaMethod; at: Map<string, bigint>; bytes: bigint }[] = [];
-  for (const m of methods) {
-    if (m === 'greedy-by-size') plans.push({ method: m, ...bySize });
-    else if (m === 'greedy-by-breadth') plans.push({ method: m, ...byBreadth });
-    else plans.push({ method: m, ...squeakyWheel([bySize, byBreadth], bound, run) });
+  const a = BigInt(align);
+  const slots = (offset: (i: number) => bigint): Slot[] => values.map((v, i) => ({ name: v.name, offset: offset(i), bytes: v.bytes, birth: v.birth, death: v.death }));
+  const total = values.reduce((t, v) => t + ((v.bytes + a - 1n) / a) * a, 0n);
+  if (total > BigInt(Number.MAX_SAFE_INTEGER)) {
+    let next = 0n;
+    const at = values.map((v) => { const o = next; next += ((v.bytes + a - 1n) / a) * a; return o; });
+    return { bytes: values.length ? at[at.length - 1] + values[values.length - 1].bytes : 0n, bound, method: 'stacked', align, slots: slots((i) => at[i]) };
   }
+  const birth = Int32Array.from(values, (v) => v.birth), death = Int32Array.from(values, (v) => v.death);
+  const p: Problem = { n: values.length, size: Float64Array.from(values, (v) => Number(v.bytes)), birth, death, name: values.map((v) => v.name), meets: meetings(birth, death), align };
+  const methods = opts.methods ?? ['greedy-by-size', 'greedy-by-breadth', 'squeaky-wheel'];
+  const run = (order: number[]): Run => ({ ...place(p, order), order });
+  const bySizeRun = run(greedyBySize(p));
+  const byBreadthRun = methods.includes('greedy-by-breadth') || methods.includes('squeaky-wheel') ? run(greedyByBreadth(p, from, to)) : bySizeRun;
+  const plans = methods.map((method) => ({
+    method,
+    ...(method === 'greedy-by-size' ? bySizeRun : method === 'greedy-by-breadth' ? byBreadthRun : squeakyWheel([bySizeRun, byBreadthRun], p, Number(bound), run)),
+  }));
   // The smaller arena; on a tie, the method listed first (greedy by size by default).
   const best = plans.reduce((x, y) => (y.bytes < x.bytes ? y : x));
-  return {
-    bytes: best.bytes, bound, method: best.method, align,
-    slots: values.map((v) => ({ name: v.name, offset: best.at.get(v.name)!, bytes: v.bytes, birth: v.birth, death: v.death })),
-  };
+  return { bytes: BigInt(best.bytes), bound, method: best.method, align, slots: slots((i) => BigInt(best.at[i])) };
 }
 
-/** Rounds of re-prioritising per start; each is one placement pass, O(values²). */
+/** Rounds of re-prioritising per start; each is one placement pass. */
 const WHEEL_ROUNDS = 8;
 
+type Run = { at: Float64Array; bytes: number; order: number[] };
 /**
  * Squeaky wheel optimization (Joslin & Clements 1999) over the greedy orders: the values a plan puts
  * above the live-set bound go first in the next round, the rest keep their order. Greedy by size puts
@@ -135,17 +158,18 @@ const WHEEL_ROUNDS = 8;
  * stack above both slots, while the optimum alternates them with the large buffers from block to
  * block. Putting those inputs first finds that layout. Never worse than its starting plans.
  */
-function squeakyWheel(starts: { at: Map<string, bigint>; bytes: bigint; order: LiveValue[] }[], bound: bigint, run: (o: LiveValue[]) => { at: Map<string, bigint>; bytes: bigint; order: LiveValue[] }) {
+function squeakyWheel(starts: Run[], p: Problem, bound: number, run: (o: number[]) => Run): Run {
   let best = starts.reduce((x, y) => (y.bytes < x.bytes ? y : x));
   for (const start of starts) {
     let cur = start;
     const seen = new Set<string>();
     for (let round = 0; round < WHEEL_ROUNDS && best.bytes > bound; round++) {
-      const high = cur.order.filter((v) => cur.at.get(v.name)! + v.bytes > bound);
+      const high = cur.order.filter((v) => cur.at[v] + p.size[v] > bound);
       if (!high.length) break;
-      const high1 = new Set(high);
-      const order = [...high, ...cur.order.filter((v) => !high1.has(v))];
-      const key = order.map((v) => v.name).join('\0');
+      const isHigh = new Uint8Array(p.n);
+      for (const v of high) isHigh[v] = 1;
+      const order = [...high, ...cur.order.filter((v) => !isHigh[v])];
+      const key = order.join(',');
       if (seen.has(key)) break;
       seen.add(key);
       cur = run(order);
