@@ -59,6 +59,13 @@ async function parent(): Promise<void> {
     console.log(`\nofframp tune (synthetic cache: ${tu.samples} samples, ${tu.exits} exits)`);
     line('settings evaluated / s', `${tu.evalPerSec.toFixed(0)}`, `target ≥ 10000: ratio ${(tu.evalPerSec / 10000).toFixed(2)}`);
     line('whole tune(): settings / s', `${tu.tunePerSec.toFixed(0)}`, `${tu.tuneSettings} settings in ${tu.tuneMs.toFixed(0)} ms`);
+    const arenaRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'arena.js')], { encoding: 'utf8' });
+    if (arenaRun.status !== 0) throw new Error(`bench arena failed: ${arenaRun.stderr}`);
+    const ar = JSON.parse(arenaRun.stdout);
+    console.log(`
+arena plan (EfficientNet-B0, ${ar.values} activations)`);
+    line('whole model', `${ar.wholeMs.toFixed(2)} ms`, `target < 50 ms: ratio ${(ar.wholeMs / 50).toFixed(2)} (${ar.wholeMethod})`);
+    line(`third quarter, ${ar.partValues} values`, `${ar.partMs.toFixed(2)} ms`, `target < 50 ms: ratio ${(ar.partMs / 50).toFixed(2)} (${ar.partMethod})`);
   } finally {
     fs.rmSync(dir, { recursive: true, force: true });
   }

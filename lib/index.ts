@@ -12,6 +12,8 @@ export { register as registerRules, findRule, registeredOps } from './ops/regist
 export type { OpRule, InferCtx, CostCtx, Cost, Known, Const } from './ops/rule.js';
 export { costModel, type CostReport, type CostOptions, type NodeCost, type StageCost } from './cost/report.js';
 export { analyzeModel, completeShapes } from './cost/analyze.js';
+export { planArena, ARENA_ALIGN, type ArenaPlan, type ArenaMethod, type Slot } from './cost/arena.js';
+export { liveRanges, peakOver, type LiveValue } from './cost/memory.js';
 export { costJson, costText, costMarkdown, COST_SCHEMA } from './report/cost.js';
 export { OfframpError, type ErrorKind } from './errors.js';
 export { VERSION } from './version.js';

@@ -93,12 +93,14 @@ describe('stage footprints (hand-computed)', () => {
     // Stored: W 108·4 + B 4·4 = 448; Wg 40·4 + bg 10·4 = 200.
     // Activations (B): x 768, y 1024, r 1024, p 16, f 16, logits 40; steps conv 0, relu 1 | gap 2, flatten 3, gemm 4.
     // Stage 0 peak at relu: y + r = 2048; hands r (1024) out. Stage 1 peak at gap: r + p = 1040; r comes in.
-    expect(f[0].stored).toEqual({ weightBytes: 448n, peakBytes: 2048n, handoverInBytes: 0n, handoverOutBytes: 1024n });
-    expect(f[1].stored).toEqual({ weightBytes: 200n, peakBytes: 1040n, handoverInBytes: 1024n, handoverOutBytes: 0n });
+    // Arenas: stage 0 y@0, r@1024 (meets y), x@1024 (meets y only) → 2048; stage 1 r@0, p@1024, f@0 (meets p only),
+    // logits@16 (meets f only, 16-byte offsets) → 1040. Both equal the peak: nothing fragments.
+    expect(f[0].stored).toEqual({ weightBytes: 448n, peakBytes: 2048n, arenaBytes: 2048n, handoverInBytes: 0n, handoverOutBytes: 1024n });
+    expect(f[1].stored).toEqual({ weightBytes: 200n, peakBytes: 1040n, arenaBytes: 1040n, handoverInBytes: 1024n, handoverOutBytes: 0n });
     // int8: W 108 + 4 channels × (4-byte scale + 1-byte zero point) = 128, B int32 16 → 144; Wg 40 + 10 × 5 = 90, bg 40 → 130.
     // Activations one byte per element: stage 0 peak 256 + 256, out 256; stage 1 peak 256 + 4.
-    expect(f[0].int8).toEqual({ weightBytes: 144n, peakBytes: 512n, handoverInBytes: 0n, handoverOutBytes: 256n });
-    expect(f[1].int8).toEqual({ weightBytes: 130n, peakBytes: 260n, handoverInBytes: 256n, handoverOutBytes: 0n });
+    expect(f[0].int8).toEqual({ weightBytes: 144n, peakBytes: 512n, arenaBytes: 512n, handoverInBytes: 0n, handoverOutBytes: 256n });
+    expect(f[1].int8).toEqual({ weightBytes: 130n, peakBytes: 260n, arenaBytes: 260n, handoverInBytes: 256n, handoverOutBytes: 0n });
     // The stored figures agree with the cost report's own.
     r.stages.forEach((s, k) => { expect(f[k].stored.weightBytes).toBe(s.paramBytes); expect(f[k].stored.peakBytes).toBe(s.peakActivationBytes); });
   });
@@ -112,11 +114,11 @@ describe('stage footprints (hand-computed)', () => {
     expect(r.stages[1].peakActivationBytes).toBe(1200n); // the report's view over the whole order: a + a2 + b
     const f = stageFootprints(m, r).map((s) => s.stored);
     // Stage 0: own peak x + a = a + a2 = 800; hands a and a2 out (800).
-    expect(f[0]).toMatchObject({ peakBytes: 800n, handoverInBytes: 0n, handoverOutBytes: 800n });
+    expect(f[0]).toMatchObject({ peakBytes: 800n, arenaBytes: 800n, handoverInBytes: 0n, handoverOutBytes: 800n });
     // Stage 1: own peak a2 + b = 800; buffers a, a2 in (800) and b out (400); a counts once though it crosses both boundaries.
     expect(f[1]).toMatchObject({ peakBytes: 800n, handoverInBytes: 800n, handoverOutBytes: 400n });
     // Stage 2: own peak a + b + y = 1200; a and b come in.
-    expect(f[2]).toMatchObject({ peakBytes: 1200n, handoverInBytes: 800n, handoverOutBytes: 0n });
+    expect(f[2]).toMatchObject({ peakBytes: 1200n, arenaBytes: 1200n, handoverInBytes: 800n, handoverOutBytes: 0n });
   });
   it('int8: BatchNormalization folds into the conv before it', () => {
     const m = model([
@@ -132,7 +134,7 @@ describe('stage footprints (hand-computed)', () => {
   it('the whole model is one stage without handover', () => {
     const m = tinyNet();
     const [s] = stageFootprints(m, costModel(m));
-    expect(s.stored).toEqual({ weightBytes: 648n, peakBytes: 2048n, handoverInBytes: 0n, handoverOutBytes: 0n });
+    expect(s.stored).toEqual({ weightBytes: 648n, peakBytes: 2048n, arenaBytes: 2048n, handoverInBytes: 0n, handoverOutBytes: 0n });
   });
 });
 
@@ -174,9 +176,16 @@ describe('budget arithmetic (hand-computed)', () => {
     expect(fit(512n, 512n)).toEqual({ need: 512n, limit: 512n, margin: 0n, marginPercent: 0, fits: true });
   });
   it('checkBudget needs only the footprints', () => {
-    const z = { weightBytes: 0n, peakBytes: 0n, handoverInBytes: 0n, handoverOutBytes: 0n };
+    const z = { weightBytes: 0n, peakBytes: 0n, arenaBytes: 0n, handoverInBytes: 0n, handoverOutBytes: 0n };
     const b = checkBudget([{ index: 0, cut: '', macs: 0n, stored: { ...z, weightBytes: 513n }, int8: z }], t);
     // −1/512 = −0.1953% → −0.19 (truncated toward zero)
     expect(b.over).toEqual([{ stage: 0, cut: '', resource: 'flash', precision: 'stored', need: 513n, limit: 512n, margin: -1n, marginPercent: -0.19 }]);
+  });
+  it('the RAM verdict counts the arena, not the live-set peak', () => {
+    // A plan that fragments: peak 2900 fits 3000, the arena 2990 plus 16 B of handover does not (3006, over by 6).
+    const z = { weightBytes: 0n, peakBytes: 2900n, arenaBytes: 2990n, handoverInBytes: 6n, handoverOutBytes: 10n };
+    const b = checkBudget([{ index: 0, cut: '', macs: 0n, stored: z, int8: z }], t);
+    expect(b.stages[0].stored.ram).toMatchObject({ need: 3006n, margin: -6n, fits: false });
+    expect(b.stages[0].stored).toMatchObject({ peakBytes: 2900n, arenaBytes: 2990n, handoverBytes: 16n });
   });
 });

@@ -26,7 +26,10 @@ describe('offramp cost', () => {
     expect(j.schema).toBe('offramp-cost/1');
     expect(j.model.macs).toBe(j.nodes.reduce((s: number, n: { macs: number }) => s + n.macs, 0));
     expect(j.model.params).toBe(j.nodes.reduce((s: number, n: { params: number }) => s + n.params, 0));
-    for (const k of ['macs', 'params', 'paramBytes', 'peakActivationBytes']) expect(Number.isInteger(j.model[k])).toBe(true);
+    for (const k of ['macs', 'params', 'paramBytes', 'peakActivationBytes', 'arenaBytes']) expect(Number.isInteger(j.model[k])).toBe(true);
+    // The arena plan is never below the live-set bound (at the peak step every live buffer needs its own bytes).
+    expect(j.model.arenaBytes).toBeGreaterThanOrEqual(j.model.peakActivationBytes);
+    expect(Object.keys(j.model).indexOf('arenaBytes')).toBe(Object.keys(j.model).indexOf('peakActivationBytes') + 1);
     expect(j.nodes[0]).toMatchObject({ name: expect.any(String), op: 'Conv', outputs: [{ shape: [1, 64, 112, 112], dtype: 'float32', bytes: 64 * 112 * 112 * 4 }] });
   });
   it('splits totals into stages at --cuts', () => {
@@ -34,6 +37,7 @@ describe('offramp cost', () => {
     expect(j.stages).toHaveLength(3);
     expect(j.stages.reduce((s: number, x: { macs: number }) => s + x.macs, 0)).toBe(j.model.macs);
     expect(j.stages[0].outputs.length).toBeGreaterThan(0);
+    for (const s of j.stages) expect(s.arenaBytes).toBeGreaterThanOrEqual(s.peakActivationBytes);
   });
   it('writes a readable table, Markdown, and files atomically', () => {
     const t = offramp(['cost', net]);

@@ -19,6 +19,8 @@ import {
 } from '../lib/policy/index.js';
 import { emitC, hexDouble, cString } from '../lib/emit/c.js';
 import { chainTable } from '../lib/emit/table.js';
+import { planArena } from '../lib/cost/arena.js';
+import type { LiveValue } from '../lib/cost/memory.js';
 import type { Manifest, ManifestTensor } from '../lib/split/manifest.js';
 import { main } from '../lib/cli/main.js';
 
@@ -390,12 +392,72 @@ describe('emit-c output', () => {
     expect(h.text).toContain('#define OFFRAMP_EXITS 3');
     expect(h.text).toContain('#define OFFRAMP_CLASSES 10');
     expect(h.text).toContain('#define OFFRAMP_POLICY_STREAM 0');
-    expect(c.text).toContain('{ "stage-1.onnx", UINT64_C(101000), 3u, 1u, 4u, 2u, 2048u, 8192u, 2058u, 8232u, 4096u, 16384u, 1, 1 },');
+    // A manifest without arena plans (written before them): arena 0, no buffers, no offsets.
+    expect(c.text).toContain('{ "stage-1.onnx", UINT64_C(101000), 3u, 1u, 4u, 2u, 2048u, 8192u, 2058u, 8232u, 4096u, 16384u, 0u, 0u, 0u, 1, 1 },');
+    expect(c.text).toContain('{ "h1", "float32", 2048u, 8192u, OFFRAMP_NO_OFFSET },');
+    expect(h.text).toContain('#define OFFRAMP_BUFFERS 0');
     // reach: stages 0..k summed, 51 000 + 101 000 + …
     expect(c.text).toContain('offramp_reach[OFFRAMP_EXITS + 1] = { UINT64_C(51000), UINT64_C(152000), UINT64_C(303000), UINT64_C(504000) }');
     expect(c.text).toContain('{ 1, 0, 1 },\n  { 0x1p-1 /* 0.5 */, 0.0, 0x1p-2 /* 0.25 */ }');
     expect(c.text).not.toMatch(/\d{4}-\d\d-\d\dT/);
   });
+
+  it.runIf(GCC)('arena plans reach the C table: firmware finds every tensor\'s offset, and live buffers never share bytes', async () => {
+    // Each stage: its input (from node 0), two intermediates, its outputs (to the last node), planned by planArena.
+    const m = manifest();
+    for (const s of m.stages) {
+      const ranges: LiveValue[] = [
+        ...s.inputs.map((t) => ({ name: t.name, bytes: BigInt(t.bytes), birth: -1, death: 1 })),
+        { name: `a${s.index}`, bytes: 32768n, birth: 0, death: 2 }, { name: `b${s.index}`, bytes: 12345n, birth: 2, death: 4 },
+        ...s.outputs.map((t, j) => ({ name: t.name, bytes: BigInt(t.bytes), birth: 4 + j, death: 6 })),
+      ];
+      const p = planArena(ranges, { from: 0, to: 6 });
+      s.arenaBytes = Number(p.bytes);
+      s.arena = { align: p.align, method: p.method, buffers: p.slots.map((b) => ({ name: b.name, offset: Number(b.offset), bytes: Number(b.bytes), first: b.birth, last: b.death })) };
+    }
+    const d = path.join(tmp, 'arena');
+    fs.mkdirSync(d);
+    const out = emitC({ manifest: m, manifestName: 'm', manifestSha256: '0', policy: { kind: 'confidence', thresholds: [0.5, 0.5, 0.5] }, policyFrom: 'test' });
+    for (const f of out.files) fs.writeFileSync(path.join(d, f.name), f.text);
+    expect(out.files[0].text).toContain(`#define OFFRAMP_ARENA_BYTES ${Math.max(...m.stages.map((s) => s.arenaBytes!))}u`);
+    expect(out.files[0].text).toContain('#define OFFRAMP_ARENA_ALIGN 16u');
+    // The firmware's view, in C: every stage tensor has its buffer at the same offset; buffers fit the stage's
+    // arena and OFFRAMP_ARENA_BYTES, are aligned, and two buffers whose node spans meet are disjoint.
+    fs.writeFileSync(path.join(d, 'arena.c'), `#include <stdio.h>
+#include <string.h>
+#include "offramp_policy.h"
+int main(void) {
+  uint32_t s, i, j, bad = 0, pairs = 0;
+  for (s = 0; s < OFFRAMP_STAGES; s++) {
+    const offramp_stage_t *st = &offramp_stages[s];
+    const offramp_buffer_t *b = &offramp_buffers[st->first_buffer];
+    for (i = 0; i < st->inputs + st->outputs; i++) {
+      const offramp_tensor_t *t = &offramp_tensors[st->first_input + i];
+      int found = 0;
+      for (j = 0; j < st->buffers; j++) if (!strcmp(b[j].name, t->name)) { found = 1; bad += b[j].offset != t->arena_offset || b[j].bytes != t->bytes; }
+      bad += !found;
+    }
+    for (i = 0; i < st->buffers; i++) {
+      bad += b[i].offset % OFFRAMP_ARENA_ALIGN != 0 || b[i].offset + b[i].bytes > st->arena_bytes || st->arena_bytes > OFFRAMP_ARENA_BYTES;
+      for (j = i + 1; j < st->buffers; j++) {
+        if (b[i].first > b[j].last || b[j].first > b[i].last) continue;
+        pairs++;
+        bad += !(b[i].offset + b[i].bytes <= b[j].offset || b[j].offset + b[j].bytes <= b[i].offset);
+      }
+    }
+  }
+  bad += offramp_buffers[OFFRAMP_BUFFERS].name != 0;
+  printf("%u %u\\n", (unsigned)bad, (unsigned)pairs);
+  return bad != 0;
+}
+`);
+    await run('gcc', [...CFLAGS, 'arena.c', 'offramp_policy.c', '-o', 'arena', '-lm'], d);
+    const r = spawnSync(path.join(d, 'arena'), { cwd: d, encoding: 'utf8' });
+    expect(r.status).toBe(0);
+    const [bad, pairs] = r.stdout.trim().split(' ').map(Number);
+    expect(bad).toBe(0);
+    expect(pairs).toBeGreaterThan(10);
+  }, 30_000);
 
   it('manifests emit-c cannot serve are refused with the file named', () => {
     const m = manifest();

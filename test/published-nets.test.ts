@@ -1,8 +1,10 @@
 // The cost model on published classifiers, against the papers' figures and against an
 // independent count from their layer tables (mult-adds of a conv: k·k·cin/group·cout·H·W).
+// The builders (test/helpers/nets.ts) also serve the arena checks (arena.test.ts); exact
+// parameter counts here are what says their structure is the published one.
 import { describe, test, expect } from 'vitest';
 import { costModel } from '../lib/cost/report.js';
-import { mobilenetV1, resnet18, resnet50 } from './helpers/nets.js';
+import { efficientnetB0, mobilenetV1, mobilenetV2, resnet18, resnet50, shufflenetV2 } from './helpers/nets.js';
 
 const near = (x: bigint, fig: number, rel: number) => expect(Math.abs(Number(x) / fig - 1)).toBeLessThanOrEqual(rel);
 
@@ -84,5 +86,35 @@ describe('published figures', () => {
     const v15 = costModel(resnet50({ weights: 'zeros', strideOn: '3x3' })).model;
     near(v15.macs, 4.09e9, 0.005);
     expect(v15.params).toBe(r.params);
+  });
+
+  /** Parameters as torchvision counts them: BN scale and bias but not its running statistics, float weights only. */
+  const torchvisionParams = (make: (o: { weights: 'zeros'; bn: boolean }) => Parameters<typeof costModel>[0]) => {
+    const withBn = costModel(make({ weights: 'zeros', bn: true })).model, folded = costModel(make({ weights: 'zeros', bn: false })).model;
+    // Each BN channel keeps 4 values, a folded conv bias 1: the difference is 3 per channel.
+    const channels = (withBn.params - folded.params) / 3n;
+    const shapes = (withBn.paramBytesByType.int64 ?? 0n) / 8n; // Reshape/Split shape tensors are not parameters
+    return { macs: withBn.macs, params: withBn.params - 2n * channels - shapes };
+  };
+
+  test('MobileNet v2 1.0-224', () => {
+    const r = torchvisionParams(mobilenetV2);
+    near(r.macs, 300e6, 0.005); // Sandler et al. 2018, Table 4: MobileNetV2, 300M multiply-adds
+    near(r.params, 3.4e6, 0.035); // same table: 3.4M parameters
+    expect(r.params - 2n).toBe(3_504_872n); // torchvision's count (from memory); 2 = the Clip bounds of ReLU6, stored as initializers
+  });
+
+  test('EfficientNet-B0', () => {
+    const r = torchvisionParams(efficientnetB0);
+    near(r.macs, 0.39e9, 0.015); // Tan & Le 2019, Table 2: EfficientNet-B0, 0.39B FLOPS (multiply-adds), 5.3M parameters
+    near(r.params, 5.3e6, 0.005);
+    expect(r.params).toBe(5_288_548n); // torchvision's count (from memory)
+  });
+
+  test('ShuffleNet v2 1.0×', () => {
+    const r = torchvisionParams(shufflenetV2);
+    near(r.macs, 146e6, 0.01); // Ma et al. 2018, Table 5: ShuffleNet v2 1×, 146M FLOPs (multiply-adds), 2.3M parameters
+    near(r.params, 2.3e6, 0.01);
+    expect(r.params).toBe(2_278_604n); // torchvision's count (from memory)
   });
 });

@@ -6,6 +6,7 @@ import type { Model } from '../graph/ir.js';
 import { readsOf } from '../graph/links.js';
 import type { CostReport, NodeCost } from '../cost/report.js';
 import { liveRanges, peakOver } from '../cost/memory.js';
+import { ARENA_ALIGN, planArena } from '../cost/arena.js';
 import { numel } from '../ops/rule.js';
 import { dtypeByName, dtypeInfo } from '../onnx/dtype.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
@@ -16,7 +17,7 @@ import type { Ratio, Target } from './target.js';
 export const CONVENTIONS = [
   'weights: bytes as stored in the stage files; a weight read by two stages counts in both',
   'int8: 1 byte per floating-point weight; Conv/ConvTranspose/Gemm/MatMul weights add a float32 scale and an int8 zero point per output channel (5 bytes), their biases are int32 (4 bytes per element); BatchNormalization folds into the layer before it (an int32 bias, 4 bytes per channel); integer weights stay as stored',
-  'RAM: peak activation of the stage on its own (what it reads from earlier stages, makes and hands on), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena',
+  `RAM: the stage's arena (an offset for every value of the stage on its own: what it reads from earlier stages, makes and hands on; greedy by size, by breadth, or squeaky-wheel rounds over them, ${ARENA_ALIGN}-byte offsets; at least its peak activation), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena`,
   'int8 activations: 1 byte per floating-point element; integer tensors stay as stored',
   'latency: cycles = ceil(MACs / macs-per-cycle), time = cycles / clock; other arithmetic, data movement and interpreter overhead are not counted',
   'flash holds weights only: code, interpreter and constants of the firmware come on top',
@@ -25,6 +26,8 @@ export const CONVENTIONS = [
 export interface Footprint {
   weightBytes: bigint;
   peakBytes: bigint;
+  /** the arena a plan of offsets needs for the stage's values (planArena); the RAM verdict counts this */
+  arenaBytes: bigint;
   handoverInBytes: bigint;
   handoverOutBytes: bigint;
 }
@@ -36,7 +39,7 @@ export interface StageFootprint {
 export type Precision = 'stored' | 'int8';
 export interface Fit { need: bigint; limit: bigint; margin: bigint; marginPercent: number; fits: boolean }
 export interface StageCheck {
-  weightBytes: bigint; peakBytes: bigint; handoverBytes: bigint;
+  weightBytes: bigint; peakBytes: bigint; arenaBytes: bigint; handoverBytes: bigint;
   flash: Fit; ram: Fit;
   cycles: bigint; latencyNs: bigint; cumulativeNs: bigint;
   fits: boolean;
@@ -128,9 +131,11 @@ export function stageFootprints(model: Model, report: CostReport): StageFootprin
     const fp = (kind: 'stored' | 'int8'): Footprint => {
       const size = kind === 'stored' ? stored : int8;
       const sum = (names: string[]) => names.reduce((a, v) => a + (size.get(v) ?? 0n), 0n);
+      const own = liveRanges(steps, ioNodes, size, stageIns, stageOuts);
       return {
         weightBytes: w.reduce((a, x) => a + (kind === 'stored' ? x.bytes : int8WeightBytes(x.dtype, x.dims, x.use)), 0n),
-        peakBytes: peakOver(liveRanges(steps, ioNodes, size, stageIns, stageOuts), 0, steps.length - 1).bytes,
+        peakBytes: peakOver(own, 0, steps.length - 1).bytes,
+        arenaBytes: planArena(own, { from: 0, to: steps.length - 1 }).bytes,
         handoverInBytes: sum(handIn), handoverOutBytes: sum(handOut),
       };
     };
@@ -155,10 +160,10 @@ export function checkBudget(stages: StageFootprint[], t: Target, gate: Precision
   const check = (s: StageFootprint, p: Precision, before: bigint): StageCheck => {
     const f = s[p];
     const handoverBytes = f.handoverInBytes + f.handoverOutBytes;
-    const flash = fit(f.weightBytes, t.flashBytes), ram = fit(f.peakBytes + handoverBytes, t.ramBytes);
+    const flash = fit(f.weightBytes, t.flashBytes), ram = fit(f.arenaBytes + handoverBytes, t.ramBytes);
     const cycles = cyclesFor(s.macs, p === 'stored' ? t.macsPerCycle : t.int8MacsPerCycle);
     const latencyNs = nanosFor(cycles, t.clockMhz);
-    return { weightBytes: f.weightBytes, peakBytes: f.peakBytes, handoverBytes, flash, ram, cycles, latencyNs, cumulativeNs: before + latencyNs, fits: flash.fits && ram.fits };
+    return { weightBytes: f.weightBytes, peakBytes: f.peakBytes, arenaBytes: f.arenaBytes, handoverBytes, flash, ram, cycles, latencyNs, cumulativeNs: before + latencyNs, fits: flash.fits && ram.fits };
   };
   const out: StageBudget[] = [];
   let sumS = 0n, sum8 = 0n;

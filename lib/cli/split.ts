@@ -30,12 +30,12 @@ export function splitCommand(program: Command): void {
       const { manifest } = writeSplit(plan, cuts, o.out, file, { reorder: o.reorder });
       if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
       const rows = manifest.stages.map((s) => [
-        s.file, String(s.nodes), si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`, bytes(s.weightBytes), bytes(s.peakActivationBytes),
+        s.file, String(s.nodes), si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`, bytes(s.weightBytes), bytes(s.peakActivationBytes), s.arenaBytes === undefined ? '-' : bytes(s.arenaBytes),
         s.cut.join('+') || '(model outputs)', s.cut.length ? bytes(s.handoverBytes) : '-', s.exits.join(',') || '-',
       ]);
       const lines = [
         `split ${file} into ${manifest.stages.length} stages in ${o.out} (${manifest.order === 'block' ? 'block-keeping' : 'file'} order)`, '',
-        table(['stage', 'nodes', 'MACs', 'share', 'weights', 'peak act.', 'hands over', 'bytes', 'exits'], rows),
+        table(['stage', 'nodes', 'MACs', 'share', 'weights', 'peak act.', 'arena', 'hands over', 'bytes', 'exits'], rows),
       ];
       const re = manifest.stages.filter((s) => s.reorder);
       if (re.length) {

@@ -11,6 +11,7 @@ import { bytesFor, dtypeName } from '../onnx/dtype.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
 import { concrete } from './concrete.js';
 import { liveRanges, peakOver } from './memory.js';
+import { planArena } from './arena.js';
 import { OfframpError } from '../errors.js';
 
 export interface TensorCost { name: string; shape: number[]; dtype: string; bytes: bigint; source: ShapeSource }
@@ -29,6 +30,8 @@ export interface StageCost {
   cut: string;
   macs: bigint; ops: bigint; macFraction: number; params: bigint; paramBytes: bigint;
   peakActivationBytes: bigint;
+  /** the arena a plan of offsets needs for the same values (planArena): at least the peak */
+  arenaBytes: bigint;
   inputs: { name: string; bytes: bigint }[];
   outputs: { name: string; bytes: bigint }[];
 }
@@ -36,6 +39,8 @@ export interface CostReport {
   model: {
     file?: string; irVersion: number; opsets: Record<string, number>; producer: string;
     macs: bigint; ops: bigint; params: bigint; paramBytes: bigint; peakActivationBytes: bigint;
+    /** the arena a plan of offsets needs over the whole order (planArena): at least the peak */
+    arenaBytes: bigint;
     peakAt: string; peakLive: string[];
     paramBytesByType: Record<string, bigint>;
     inputs: TensorCost[]; outputs: TensorCost[];
@@ -147,7 +152,7 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
     model: {
       file: model.file, irVersion: Number(model.irVersion), opsets: Object.fromEntries(model.opsets),
       producer: [model.proto.producerName, model.proto.producerVersion].filter(Boolean).join(' '),
-      macs, ops, params, paramBytes, peakActivationBytes: peak.bytes,
+      macs, ops, params, paramBytes, peakActivationBytes: peak.bytes, arenaBytes: planArena(ranges, { from: 0, to: last }).bytes,
       peakAt: peak.step >= 0 && last >= 0 ? nodeLabel(g.nodes[shapes.order[peak.step]], shapes.order[peak.step]) : '',
       peakLive: peak.live, paramBytesByType: byType, inputs, outputs,
     },
@@ -208,6 +213,7 @@ function stageCosts(
       macs, ops: sum((n) => n.ops), macFraction: total ? Number((macs * 1000000n) / total) / 1e6 : 0,
       params: w.reduce((a, x) => a + x.count, 0n), paramBytes: w.reduce((a, x) => a + x.bytes, 0n),
       peakActivationBytes: peakOver(ranges, first, last).bytes,
+      arenaBytes: planArena(ranges, { from: first, to: last }).bytes,
       inputs: first === 0 ? ranges.filter((v) => v.birth < 0).map((v) => ({ name: v.name, bytes: v.bytes })) : crossing(first - 1),
       outputs: k < steps.length ? crossing(last) : ranges.filter((v) => v.death === order.length - 1 && model.graph.outputs.some((o) => o.name === v.name)).map((v) => ({ name: v.name, bytes: v.bytes })),
     });

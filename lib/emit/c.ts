@@ -116,12 +116,17 @@ export function emitC(i: EmitCInput, file?: string): EmitCOutput {
     `#define OFFRAMP_EXITS ${t.exits}            /* early exits; index OFFRAMP_EXITS is the final output */`,
     `#define OFFRAMP_CLASSES ${t.classes}`,
     `#define OFFRAMP_TENSORS ${t.stages.reduce((a, s) => a + s.inputs.length + s.outputs.length, 0)}`,
+    `#define OFFRAMP_BUFFERS ${t.stages.reduce((a, s) => a + s.buffers.length, 0)}          /* arena buffers of all stages */`,
+    `#define OFFRAMP_ARENA_BYTES ${t.stages.reduce((a, s) => Math.max(a, s.arenaBytes), 0)}u    /* the largest stage arena: one block serves every stage in turn */`,
+    `#define OFFRAMP_ARENA_ALIGN ${t.arenaAlign}u     /* every arena offset is a multiple of this; align the block itself so (0: no arena plan) */`,
+    `#define OFFRAMP_NO_OFFSET UINT32_C(0xffffffff)`,
     `#define OFFRAMP_POLICY_STREAM ${stream ? 1 : 0}`,
     `#define OFFRAMP_POLICY_KIND ${KIND_C[policy.kind]}`,
     '', C_DECLARATIONS,
     '/* The chain, in execution order. */',
     'extern const offramp_tensor_t offramp_tensors[OFFRAMP_TENSORS];',
     'extern const offramp_stage_t offramp_stages[OFFRAMP_STAGES];',
+    'extern const offramp_buffer_t offramp_buffers[OFFRAMP_BUFFERS + 1];   /* the last entry is an empty end mark */',
     'extern const char *const offramp_exit_names[OFFRAMP_EXITS + 1];',
     'extern const int32_t offramp_exit_stage[OFFRAMP_EXITS + 1];   /* stage that makes exit k */',
     'extern const uint64_t offramp_reach[OFFRAMP_EXITS + 1];       /* MACs to have exit k */',
@@ -133,21 +138,27 @@ export function emitC(i: EmitCInput, file?: string): EmitCOutput {
 
   const tensors: string[] = [];
   const stages: string[] = [];
+  const buffers: string[] = [];
   const sum = (l: TableTensor[], f: (x: TableTensor) => number) => l.reduce((a, x) => a + f(x), 0);
   for (const [si, s] of t.stages.entries()) {
     const first = tensors.length;
-    for (const x of [...s.inputs, ...s.outputs]) tensors.push(`  { ${cString(x.name)}, ${cString(x.dtype)}, ${x.elements}u, ${x.bytes}u },`);
+    for (const x of [...s.inputs, ...s.outputs]) tensors.push(`  { ${cString(x.name)}, ${cString(x.dtype)}, ${x.elements}u, ${x.bytes}u, ${x.offset === undefined ? 'OFFRAMP_NO_OFFSET' : `${x.offset}u`} },`);
+    const firstBuffer = buffers.length;
+    for (const b of s.buffers) buffers.push(`  { ${cString(b.name)}, ${b.offset}u, ${b.bytes}u, ${b.first}u, ${b.last}u },`);
     const inE = sum(s.inputs, (x) => x.elements), inB = sum(s.inputs, (x) => x.bytes), outE = sum(s.outputs, (x) => x.elements), outB = sum(s.outputs, (x) => x.bytes);
     if ([inE, inB, outE, outB].some((v) => v > 0xffffffff)) throw new OfframpError('data', 'tensors over 4 GiB', file, `stages[${si}]`);
     stages.push(`  { ${cString(s.file)}, ${u64(s.macs)}, ${first}u, ${s.inputs.length}u, ${first + s.inputs.length}u, ${s.outputs.length}u, ` +
-      `${inE}u, ${inB}u, ${outE}u, ${outB}u, ${s.weightBytes}u, ${s.peakActivationBytes}u, ${s.exits.length ? s.exits[0] : -1}, ${s.exits.length} },`);
+      `${inE}u, ${inB}u, ${outE}u, ${outB}u, ${s.weightBytes}u, ${s.peakActivationBytes}u, ${s.arenaBytes}u, ${firstBuffer}u, ${s.buffers.length}u, ` +
+      `${s.exits.length ? s.exits[0] : -1}, ${s.exits.length} },`);
   }
   const source = [
     banner(C_SOURCE, i),
     `#include "${C_HEADER}"`, '#include <math.h>', '',
     'const offramp_tensor_t offramp_tensors[OFFRAMP_TENSORS] = {', ...tensors, '};', '',
-    '/* file, MACs, inputs (first, count), outputs (first, count), input elements, bytes, output elements, bytes, weight bytes, peak activation bytes, exits (first, count) */',
+    '/* file, MACs, inputs (first, count), outputs (first, count), input elements, bytes, output elements, bytes, weight bytes, peak activation bytes, arena bytes, buffers (first, count), exits (first, count) */',
     'const offramp_stage_t offramp_stages[OFFRAMP_STAGES] = {', ...stages, '};', '',
+    '/* name, arena offset, bytes, first and last node of the stage file that need it */',
+    'const offramp_buffer_t offramp_buffers[OFFRAMP_BUFFERS + 1] = {', ...buffers, '  { 0, 0u, 0u, 0u, 0u }', '};', '',
     `const char *const offramp_exit_names[OFFRAMP_EXITS + 1] = { ${[...t.exitNames, t.finalOutput].map(cString).join(', ')} };`,
     `const int32_t offramp_exit_stage[OFFRAMP_EXITS + 1] = { ${t.exitStage.join(', ')} };`,
     `const uint64_t offramp_reach[OFFRAMP_EXITS + 1] = { ${t.reach.map(u64).join(', ')} };`, '',

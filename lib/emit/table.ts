@@ -4,7 +4,9 @@
 import { OfframpError } from '../errors.js';
 import type { Manifest, ManifestTensor } from '../split/manifest.js';
 
-export interface TableTensor { name: string; dtype: string; elements: number; bytes: number }
+/** `offset`: the tensor's place in its stage's arena (undefined without an arena plan) */
+export interface TableTensor { name: string; dtype: string; elements: number; bytes: number; offset?: number }
+export interface TableBuffer { name: string; offset: number; bytes: number; first: number; last: number }
 export interface TableStage {
   file: string;
   macs: bigint;
@@ -12,6 +14,9 @@ export interface TableStage {
   outputs: TableTensor[];
   weightBytes: number;
   peakActivationBytes: number;
+  /** the arena plan of the stage file (0 and none where the manifest has no plan) */
+  arenaBytes: number;
+  buffers: TableBuffer[];
   /** exits this stage makes, ascending; the final output is index `exits` */
   exits: number[];
 }
@@ -25,6 +30,8 @@ export interface ChainTable {
   reach: bigint[];
   exitNames: string[];
   finalOutput: string;
+  /** alignment of every arena offset (the manifest's; 0 where no stage has an arena plan) */
+  arenaAlign: number;
 }
 
 const EXIT_NAME = /^exit-(\d+)$/;
@@ -68,10 +75,15 @@ export function chainTable(m: Manifest, file?: string): ChainTable {
   if (exitStage[exitStage.length - 1] === undefined) throw bad(`no stage makes the final output ${finalOutput}`);
   for (let k = 1; k < exitStage.length; k++) if (exitStage[k]! < exitStage[k - 1]!) throw bad(`exit ${k} comes from stage ${exitStage[k]}, before exit ${k - 1}'s stage ${exitStage[k - 1]}`);
 
-  const tensor = (t: ManifestTensor, where: string): TableTensor => {
+  const tensor = (t: ManifestTensor, where: string, offsets: Map<string, number>): TableTensor => {
     const elements = elementsOf(t);
     if (elements > U32 || t.bytes > U32) throw bad(`${t.name} is over 4 GiB`, where);
-    return { name: t.name, dtype: t.dtype, elements, bytes: t.bytes };
+    const offset = offsets.get(t.name);
+    return { name: t.name, dtype: t.dtype, elements, bytes: t.bytes, ...(offset !== undefined && { offset }) };
+  };
+  const u32 = (v: unknown, what: string, where: string): number => {
+    if (typeof v !== 'number' || !Number.isInteger(v) || v < 0 || v > U32) throw bad(`${what} must be a whole number below 4 GiB, not ${JSON.stringify(v)}`, where);
+    return v;
   };
   const macsOf = (v: number | string, where: string): bigint => {
     if (typeof v === 'string' ? !/^\d+$/.test(v) : !Number.isSafeInteger(v) || v < 0) throw bad(`MACs must be a whole number, not ${v}`, where);
@@ -80,14 +92,25 @@ export function chainTable(m: Manifest, file?: string): ChainTable {
   const stages: TableStage[] = m.stages.map((s, i) => {
     const where = `stages[${i}]`;
     if (s.index !== i) throw bad(`stage index ${s.index} out of order`, where);
+    // A manifest written before arena plans has none: the table says so (arena 0, no buffers).
+    const buffers: TableBuffer[] = (s.arena?.buffers ?? []).map((b, j) => {
+      const at = `${where}.arena.buffers[${j}]`;
+      return { name: String(b.name), offset: u32(b.offset, 'offset', at), bytes: u32(b.bytes, 'bytes', at), first: u32(b.first, 'first', at), last: u32(b.last, 'last', at) };
+    });
+    const offsets = new Map(buffers.map((b) => [b.name, b.offset]));
     return {
       file: s.file, macs: macsOf(s.macs as number | string, where),
-      inputs: s.inputs.map((t) => tensor(t, where)), outputs: s.outputs.map((t) => tensor(t, where)),
+      inputs: s.inputs.map((t) => tensor(t, where, offsets)), outputs: s.outputs.map((t) => tensor(t, where, offsets)),
       weightBytes: s.weightBytes, peakActivationBytes: s.peakActivationBytes,
+      arenaBytes: s.arena ? u32(s.arenaBytes, 'arenaBytes', where) : 0, buffers,
       exits: exitStage.flatMap((st, k) => (st === i ? [k] : [])),
     };
   });
+  const aligns = [...new Set(m.stages.filter((s) => s.arena).map((s) => s.arena!.align))];
+  if (aligns.length > 1) throw bad(`arena plans with different alignments (${aligns.join(', ')})`, 'stages');
+  const arenaAlign = aligns.length ? u32(aligns[0], 'arena.align', 'stages') : 0;
+  stages.forEach((s, i) => s.buffers.forEach((b, j) => { if (b.offset % (arenaAlign || 1)) throw bad(`offset ${b.offset} is not a multiple of ${arenaAlign}`, `stages[${i}].arena.buffers[${j}]`); }));
   const cumulative: bigint[] = [];
   stages.reduce((a, s) => { const v = a + s.macs; cumulative.push(v); return v; }, 0n);
-  return { stages, exits: exitNames.length, classes, exitStage: exitStage as number[], reach: exitStage.map((st) => cumulative[st!]), exitNames, finalOutput };
+  return { stages, exits: exitNames.length, classes, exitStage: exitStage as number[], reach: exitStage.map((st) => cumulative[st!]), exitNames, finalOutput, arenaAlign };
 }

@@ -27,7 +27,7 @@ const verdict = (c: { flash: Fit; ram: Fit }) => {
   return over.length ? `OVER ${over.join('+')}` : 'fits';
 };
 
-const HEAD = ['stage', 'ends at', 'as', 'MACs', 'weights', 'flash margin', 'peak act.', 'handover', 'RAM need', 'RAM margin', 'latency', 'to exit', 'verdict'];
+const HEAD = ['stage', 'ends at', 'as', 'MACs', 'weights', 'flash margin', 'peak act.', 'arena', 'handover', 'RAM need', 'RAM margin', 'latency', 'to exit', 'verdict'];
 function rows(b: Budget, label: string): string[][] {
   const name = (p: Precision) => (p === 'stored' ? label : 'int8') + (p === b.gate ? ' *' : '');
   const out: string[][] = [];
@@ -36,13 +36,13 @@ function rows(b: Budget, label: string): string[][] {
     const firstRow = p === 'stored';
     out.push([
       firstRow ? String(s.index) : '', firstRow ? s.cut || '(model outputs)' : '', name(p), firstRow ? si(s.macs) : '',
-      bytes(c.weightBytes), margin(c.flash), bytes(c.peakBytes), bytes(c.handoverBytes), bytes(c.ram.need), margin(c.ram),
+      bytes(c.weightBytes), margin(c.flash), bytes(c.peakBytes), bytes(c.arenaBytes), bytes(c.handoverBytes), bytes(c.ram.need), margin(c.ram),
       duration(c.latencyNs), duration(c.cumulativeNs), verdict(c),
     ]);
   }
   if (b.stages.length > 1) for (const p of ['stored', 'int8'] as const) {
     const a = b.all[p];
-    out.push([p === 'stored' ? 'all' : '', '', name(p), '', bytes(a.flash.need), margin(a.flash), '', '', bytes(a.ram.need), margin(a.ram),
+    out.push([p === 'stored' ? 'all' : '', '', name(p), '', bytes(a.flash.need), margin(a.flash), '', '', '', bytes(a.ram.need), margin(a.ram),
       duration(b.stages[b.stages.length - 1][p].cumulativeNs), '', verdict(a)]);
   }
   return out;

@@ -38,6 +38,8 @@ export function buildSummary(r: BuildResult) {
     stages: r.manifest.stages.map((s, k) => ({
       file: s.file, macs: s.macs, weightBytes: r.cost.stages[k]?.paramBytes ?? BigInt(s.weightBytes),
       peakActivationBytes: r.cost.stages[k]?.peakActivationBytes ?? BigInt(s.peakActivationBytes),
+      // Beside the peak, from the same view (the cost report's stages); the manifest keeps the stage files' own plans.
+      arenaBytes: r.cost.stages[k]?.arenaBytes ?? (s.arenaBytes === undefined ? null : BigInt(s.arenaBytes)),
       handoverBytes: s.handoverBytes, exits: s.exits,
     })),
     check: { samples: r.check.samples, ok: r.check.ok, maxAbs: Math.max(0, ...r.check.diffs.map((d) => d.maxAbs)) },
@@ -57,7 +59,7 @@ export function buildJson(r: BuildResult): string {
 export function buildText(r: BuildResult): string {
   const s = buildSummary(r), h = s.heldOut;
   const rows = s.stages.map((st, k) => [
-    st.file, si(st.macs), bytes(st.weightBytes), bytes(st.peakActivationBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-',
+    st.file, si(st.macs), bytes(st.weightBytes), bytes(st.peakActivationBytes), st.arenaBytes === null ? '-' : bytes(st.arenaBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-',
     st.exits.join(',') || '(final)', pct(h.exitShare[k] ?? 0),
   ]);
   const lines = [
@@ -68,7 +70,7 @@ export function buildText(r: BuildResult): string {
     `MACs       ${si(Math.round(h.meanMacs))} per sample on average vs ${si(h.fullMacs)}: ${pct(h.saving)} saved`,
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
     '',
-    table(['stage', 'MACs', 'weights', 'peak act.', 'hands over', 'exit', 'leave here'], rows),
+    table(['stage', 'MACs', 'weights', 'peak act.', 'arena', 'hands over', 'exit', 'leave here'], rows),
   ];
   if (r.budget) lines.push('', budgetText(r.budget, storedLabel(r.cost)).trimEnd());
   return lines.join('\n') + '\n';
@@ -90,7 +92,7 @@ export function buildHtml(r: BuildResult): string {
     const sb = b?.stages[k];
     const fit = sb ? (sb.fits ? 'fits' : '<b>over</b>') : '-';
     const lat = sb ? `${(Number(sb.stored.latencyNs) / 1e6).toFixed(2)} ms` : '-';
-    return `<tr><td>${esc(st.file)}</td><td>${si(st.macs)}</td><td>${bytes(st.weightBytes)}</td><td>${bytes(st.peakActivationBytes)}</td><td>${st.handoverBytes ? bytes(st.handoverBytes) : '-'}</td><td>${esc(st.exits.join(', ') || 'final')}</td><td>${pct(h.exitShare[k] ?? 0)}</td><td>${lat}</td><td>${fit}</td></tr>`;
+    return `<tr><td>${esc(st.file)}</td><td>${si(st.macs)}</td><td>${bytes(st.weightBytes)}</td><td>${bytes(st.peakActivationBytes)}</td><td>${st.arenaBytes === null ? '-' : bytes(st.arenaBytes)}</td><td>${st.handoverBytes ? bytes(st.handoverBytes) : '-'}</td><td>${esc(st.exits.join(', ') || 'final')}</td><td>${pct(h.exitShare[k] ?? 0)}</td><td>${lat}</td><td>${fit}</td></tr>`;
   }).join('');
   const candRows = s.placement.candidates.map((c) => `<tr><td><code>${esc(c.cut)}</code></td><td>${pct(c.macFraction)}</td><td>${c.accuracy === null ? '-' : pct(c.accuracy)}</td><td>${pct(c.agreement)}</td><td>${s.exits.some((e) => e.cut === c.cut) ? 'yes' : ''}</td></tr>`).join('');
   const target = b ? `${esc(b.target.name)}: flash ${bytes(b.target.flashBytes)}, RAM ${bytes(b.target.ramBytes)}, ${b.target.clockMhz} MHz, ${b.target.macsPerCycle} MAC/cycle${b.target.rough ? ' (rough figures, from memory)' : ''}` : 'none given';
@@ -108,7 +110,7 @@ export function buildHtml(r: BuildResult): string {
 <li>Target: ${target}.</li>
 </ul>
 <h2>Stages</h2>
-<table><tr><th>stage</th><th>MACs</th><th>weights</th><th>peak act.</th><th>hands over</th><th>exit</th><th>leave here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>
+<table><tr><th>stage</th><th>MACs</th><th>weights</th><th>peak act.</th><th>arena</th><th>hands over</th><th>exit</th><th>leave here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>
 ${lineChart('Accuracy vs mean MACs per policy (held-out part)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
 ${barChart('Exit histogram of the chosen policy (held-out)', exitNames, h.exitShare.map((x) => x * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
 ${barChart('MACs per stage', s.stages.map((st) => st.file.replace('.onnx', '')), s.stages.map((st) => st.macs), (v) => si(v), '#ff7f0e')}

@@ -1,6 +1,7 @@
 // The cost report for people (text, Markdown) and for scripts (JSON, schema offramp-cost/1).
 import type { CostReport } from '../cost/report.js';
 import { si, bytes, table, mdTable, toJson } from './units.js';
+import { ARENA_ALIGN } from '../cost/arena.js';
 
 export const COST_SCHEMA = 'offramp-cost/1';
 
@@ -18,13 +19,19 @@ function nodeRows(r: CostReport): string[][] {
   ]);
 }
 const NODE_HEAD = ['#', 'node', 'op', 'output', 'MACs', 'params', 'out bytes'];
-const STAGE_HEAD = ['stage', 'nodes', 'ends at', 'MACs', 'share', 'weights', 'peak act.', 'in', 'out'];
+const STAGE_HEAD = ['stage', 'nodes', 'ends at', 'MACs', 'share', 'weights', 'peak act.', 'arena', 'in', 'out'];
 function stageRows(r: CostReport): string[][] {
   return r.stages.map((s) => [
     String(s.index), `${s.first}–${s.last}`, s.cut || '(model outputs)', si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`,
-    bytes(s.paramBytes), bytes(s.peakActivationBytes),
+    bytes(s.paramBytes), bytes(s.peakActivationBytes), bytes(s.arenaBytes),
     bytes(s.inputs.reduce((a, x) => a + x.bytes, 0n)), bytes(s.outputs.reduce((a, x) => a + x.bytes, 0n)),
   ]);
+}
+
+/** How far a plan sits above the live-set bound: "+1.25% over" (hundredths, truncated, from exact integers), or "equal to". */
+export function overPeak(arena: bigint, peak: bigint): string {
+  if (arena === peak || !peak) return arena === peak ? 'equal to' : 'over';
+  return `+${(Number(((arena - peak) * 10000n) / peak) / 100).toFixed(2)}% over`;
 }
 
 function summary(r: CostReport): string[] {
@@ -35,6 +42,7 @@ function summary(r: CostReport): string[] {
     `MACs       ${si(m.macs)} (${m.macs})   other ops ${si(m.ops)}`,
     `weights    ${si(m.params)} params, ${bytes(m.paramBytes)}${Object.keys(m.paramBytesByType).length > 1 ? ` (${Object.entries(m.paramBytesByType).map(([k, v]) => `${k} ${bytes(v)}`).join(', ')})` : ''}`,
     `peak act.  ${bytes(m.peakActivationBytes)} (${m.peakActivationBytes} B) at ${m.peakAt}`,
+    `arena      ${bytes(m.arenaBytes)} (${m.arenaBytes} B) with ${ARENA_ALIGN}-byte offsets, ${overPeak(m.arenaBytes, m.peakActivationBytes)} the peak`,
   ];
   if (r.shapes.measured.length) lines.push(`measured   ${r.shapes.measured.length} value shape(s) measured with onnxruntime (marked *)`);
   for (const w of r.warnings) lines.push(`warning    ${w}`);

@@ -6,6 +6,9 @@ import fs from 'node:fs';
 import path from 'node:path';
 import type { Model, TensorType } from '../graph/ir.js';
 import { costModel } from '../cost/report.js';
+import { liveRanges } from '../cost/memory.js';
+import { planArena, type ArenaMethod } from '../cost/arena.js';
+import { readsOf } from '../graph/links.js';
 import { reorderModel } from '../cost/reorder.js';
 import { inferShapes } from '../shapes/infer.js';
 import { modelToProto } from '../graph/ir.js';
@@ -58,10 +61,27 @@ export interface ManifestStage {
   weightBytes: number;
   /** largest sum of live activations while the stage runs, its inputs and outputs included */
   peakActivationBytes: number;
+  /** the arena `arena` needs: at least `peakActivationBytes` (absent in manifests written before arena plans) */
+  arenaBytes?: number;
   /** bytes of `cut`: what the next stage receives from this one and its predecessors */
   handoverBytes: number;
+  /** where each activation of the stage file lives in one arena while the file runs in its node order */
+  arena?: ManifestArena;
   /** present after a split with reordering: the stage file's own peak in its first and in its memory-aware node order */
   reorder?: { before: number; after: number };
+}
+
+/**
+ * An arena plan for one stage file (lib/cost/arena.ts): every value the file reads, makes or hands out has
+ * an offset; two buffers share bytes only if no node of the file needs both. Inputs are copied in before
+ * the first node and outputs copied out after the last (the handover buffers stay apart from the arena).
+ */
+export interface ManifestArena {
+  /** offsets are multiples of this (bytes) */
+  align: number;
+  method: ArenaMethod;
+  /** in order of first use; `first`/`last`: positions in the stage file's node list while the buffer is needed (inputs from 0) */
+  buffers: { name: string; offset: number; bytes: number; first: number; last: number }[];
 }
 
 export interface Manifest {
@@ -139,6 +159,18 @@ function reorderStage(sm: Model): { model: Model; before: bigint; after: bigint;
   }
 }
 
+/** The arena plan of a stage file as written: its nodes in file order; copied Constant outputs are weights, not activations. */
+function stageArena(sm: Model, s: StagePlan, bytesOf: Map<string, bigint>): { bytes: number; plan: ManifestArena } {
+  const nodes = sm.graph.nodes;
+  const io = nodes.map((n) => ({ inputs: n.inputs, outputs: n.outputs, reads: readsOf(n) }));
+  const ranges = liveRanges(nodes.map((_, i) => i), io, bytesOf, s.inputs.map((i) => i.name), s.outputs.map((o) => o.name));
+  const p = planArena(ranges, { from: 0, to: nodes.length - 1 });
+  return {
+    bytes: Number(p.bytes),
+    plan: { align: p.align, method: p.method, buffers: p.slots.map((b) => ({ name: b.name, offset: Number(b.offset), bytes: Number(b.bytes), first: b.birth, last: b.death })) },
+  };
+}
+
 export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: string, opts: SplitOptions = {}): SplitResult {
   const m = plan.model;
   const g = m.graph;
@@ -164,6 +196,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
     };
   };
 
+  const bytesOf = new Map(plan.ranges.map((r) => [r.name, r.bytes]));
   const files: string[] = [];
   const written: StagePlan[] = [];
   const entries: ManifestStage[] = stages.map((s) => {
@@ -175,6 +208,7 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
     if (ro) sm = ro.model;
     // The stage file's node j is s.nodes[j]; callers get the plan in the order the file runs.
     written.push(ro ? { ...s, nodes: ro.order.map((j) => s.nodes[j]) } : s);
+    const arena = stageArena(sm, s, bytesOf);
     const bytes = encodeModel(modelToProto(sm));
     if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
     writeAtomic(target, bytes);
@@ -185,7 +219,8 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
       outputs: s.outputs.map((o) => ({ ...tensor(o.name), to: o.to, modelOutput: o.modelOutput })),
       exits: s.exits, cut: s.cut, macs: Number(s.macs),
       macFraction: plan.totalMacs ? Number((s.macs * 1000000n) / plan.totalMacs) / 1e6 : 0,
-      weightBytes: Number(s.weightBytes), peakActivationBytes: Number(s.peakActivationBytes), handoverBytes: Number(s.handoverBytes),
+      weightBytes: Number(s.weightBytes), peakActivationBytes: Number(s.peakActivationBytes), arenaBytes: arena.bytes, handoverBytes: Number(s.handoverBytes),
+      arena: arena.plan,
       ...(ro && { reorder: { before: Number(ro.before), after: Number(ro.after) } }),
     };
   });

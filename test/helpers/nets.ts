@@ -3,7 +3,7 @@
 // GlobalAveragePool → Flatten → Gemm at the end, logits out (no Softmax).
 // Initializer names follow the common PyTorch naming (conv1.weight, layer1.0.bn1.running_var).
 import { modelBuilder, type ModelBuilder } from '../../lib/graph/build.js';
-import { FLOAT } from '../../lib/onnx/dtype.js';
+import { FLOAT, INT64 } from '../../lib/onnx/dtype.js';
 import type { Dim, Model } from '../../lib/graph/ir.js';
 
 export interface NetOptions {
@@ -17,7 +17,7 @@ export interface NetOptions {
   opset?: number;
 }
 
-interface Ctx { b: ModelBuilder; o: NetOptions; zeros: boolean }
+interface Ctx { b: ModelBuilder; o: NetOptions; zeros: boolean; clip?: [string, string] }
 
 function start(name: string, o: NetOptions): Ctx & { x: string } {
   const zeros = o.weights === 'zeros';
@@ -25,8 +25,22 @@ function start(name: string, o: NetOptions): Ctx & { x: string } {
   return { b, o, zeros, x: b.input('input', FLOAT, [o.batch ?? 1, 3, 224, 224]) };
 }
 
-/** Conv (+BN) (+Relu). `p` is the parameter prefix, e.g. 'layer1.0.conv1' with its BN at 'layer1.0.bn1'. */
-function conv(c: Ctx, x: string, p: string, bnName: string, cin: number, cout: number, k: number, stride: number, opts: { group?: number; relu?: boolean } = {}): string {
+/** Activations as exporters write them: Relu; ReLU6 as Clip(0, 6); SiLU (swish) as Sigmoid then Mul. */
+type Act = 'relu' | 'relu6' | 'silu' | 'none';
+
+function activate(c: Ctx, x: string, act: Act, name: string): string {
+  const { b } = c;
+  if (act === 'none') return x;
+  if (act === 'relu') return b.node('Relu', [x], {}, { name: `${name}.relu` });
+  if (act === 'relu6') {
+    c.clip ??= [b.init('relu6.min', FLOAT, [], [0]), b.init('relu6.max', FLOAT, [], [6])];
+    return b.node('Clip', [x, ...c.clip], {}, { name: `${name}.relu6` });
+  }
+  return b.node('Mul', [x, b.node('Sigmoid', [x], {}, { name: `${name}.sigmoid` })], {}, { name: `${name}.silu` });
+}
+
+/** Conv (+BN) (+activation, Relu by default). `p` is the parameter prefix, e.g. 'layer1.0.conv1' with its BN at 'layer1.0.bn1'. */
+function conv(c: Ctx, x: string, p: string, bnName: string, cin: number, cout: number, k: number, stride: number, opts: { group?: number; relu?: boolean; act?: Act } = {}): string {
   const { b } = c, group = opts.group ?? 1, pad = (k - 1) >> 1, bn = c.o.bn ?? true;
   const w = b.init(`${p}.weight`, FLOAT, [cout, cin / group, k, k]);
   const ins = bn ? [x, w] : [x, w, b.init(`${p}.bias`, FLOAT, [cout], c.zeros ? 'zeros' : { uniform: [-0.1, 0.1] })];
@@ -38,7 +52,7 @@ function conv(c: Ctx, x: string, p: string, bnName: string, cin: number, cout: n
     const v = b.init(`${bnName}.running_var`, FLOAT, [cout], c.zeros ? { fill: 1 } : { uniform: [0.5, 1.5] });
     y = b.node('BatchNormalization', [y, scale, bias, mean, v], { epsilon: b.float(1e-5), momentum: b.float(0.9) }, { name: bnName });
   }
-  return opts.relu === false ? y : c.b.node('Relu', [y], {}, { name: `${bnName}.relu` });
+  return activate(c, y, opts.act ?? (opts.relu === false ? 'none' : 'relu'), bnName);
 }
 
 function head(c: Ctx, x: string, cin: number): Model {
@@ -106,3 +120,101 @@ function resnet(name: string, spec: ResNetSpec, o: NetOptions & { strideOn?: '1x
 
 export const resnet18 = (o: NetOptions = {}): Model => resnet('resnet18', { blocks: [2, 2, 2, 2], bottleneck: false }, o);
 export const resnet50 = (o: NetOptions & { strideOn?: '1x1' | '3x3' } = {}): Model => resnet('resnet50', { blocks: [3, 4, 6, 3], bottleneck: true }, o);
+
+/** A 1×1 conv with a bias and no BN (the squeeze-and-excitation layers). */
+function conv1x1Bias(c: Ctx, x: string, p: string, cin: number, cout: number): string {
+  const { b } = c;
+  const w = b.init(`${p}.weight`, FLOAT, [cout, cin, 1, 1]), bias = b.init(`${p}.bias`, FLOAT, [cout], c.zeros ? 'zeros' : { uniform: [-0.1, 0.1] });
+  return b.node('Conv', [x, w, bias], { kernel_shape: [1, 1], strides: [1, 1], pads: [0, 0, 0, 0], group: 1, dilations: [1, 1] }, { name: p });
+}
+
+/**
+ * MobileNet v2 (Sandler et al. 2018, Table 2): inverted residual bottlenecks (expansion t, channels c,
+ * repeats n, first stride s), ReLU6 as Clip, linear projections, a residual add where shape allows.
+ */
+export function mobilenetV2(o: NetOptions = {}): Model {
+  const c = start('mobilenet_v2', o), { b } = c;
+  let x = conv(c, c.x, 'features.0.0', 'features.0.1', 3, 32, 3, 2, { act: 'relu6' });
+  let cin = 32, i = 1;
+  const rows: [number, number, number, number][] = [[1, 16, 1, 1], [6, 24, 2, 2], [6, 32, 3, 2], [6, 64, 4, 2], [6, 96, 3, 1], [6, 160, 3, 2], [6, 320, 1, 1]];
+  for (const [t, cout, n, s] of rows) {
+    for (let r = 0; r < n; r++, i++) {
+      const p = `features.${i}.conv`, stride = r === 0 ? s : 1, hidden = cin * t;
+      let y = x, k = 0;
+      if (t !== 1) y = conv(c, y, `${p}.${k}.0`, `${p}.${k++}.1`, cin, hidden, 1, 1, { act: 'relu6' });
+      y = conv(c, y, `${p}.${k}.0`, `${p}.${k++}.1`, hidden, hidden, 3, stride, { group: hidden, act: 'relu6' });
+      y = conv(c, y, `${p}.${k}`, `${p}.${k + 1}`, hidden, cout, 1, 1, { act: 'none' });
+      x = stride === 1 && cin === cout ? b.node('Add', [x, y], {}, { name: `features.${i}.add` }) : y;
+      cin = cout;
+    }
+  }
+  x = conv(c, x, `features.${i}.0`, `features.${i}.1`, cin, 1280, 1, 1, { act: 'relu6' });
+  return head(c, x, 1280);
+}
+
+/**
+ * EfficientNet-B0 (Tan & Le 2019, Table 1): MBConv blocks with squeeze-and-excitation (a quarter of the
+ * block's input channels) and SiLU; stage rows (expansion, kernel, stride, channels, layers).
+ */
+export function efficientnetB0(o: NetOptions = {}): Model {
+  const c = start('efficientnet_b0', o), { b } = c;
+  let x = conv(c, c.x, 'features.0.0', 'features.0.1', 3, 32, 3, 2, { act: 'silu' });
+  let cin = 32;
+  const rows: [number, number, number, number, number][] = [[1, 3, 1, 16, 1], [6, 3, 2, 24, 2], [6, 5, 2, 40, 2], [6, 3, 2, 80, 3], [6, 5, 1, 112, 3], [6, 5, 2, 192, 4], [6, 3, 1, 320, 1]];
+  rows.forEach(([t, k, s, cout, n], st) => {
+    for (let r = 0; r < n; r++) {
+      const p = `features.${st + 1}.${r}.block`, stride = r === 0 ? s : 1, hidden = cin * t;
+      let y = x, j = 0;
+      if (t !== 1) y = conv(c, y, `${p}.${j}.0`, `${p}.${j++}.1`, cin, hidden, 1, 1, { act: 'silu' });
+      y = conv(c, y, `${p}.${j}.0`, `${p}.${j++}.1`, hidden, hidden, k, stride, { group: hidden, act: 'silu' });
+      const sq = Math.max(1, Math.floor(cin / 4));
+      const pooled = b.node('GlobalAveragePool', [y], {}, { name: `${p}.${j}.avgpool` });
+      const f1 = activate(c, conv1x1Bias(c, pooled, `${p}.${j}.fc1`, hidden, sq), 'silu', `${p}.${j}.fc1`);
+      const scale = b.node('Sigmoid', [conv1x1Bias(c, f1, `${p}.${j}.fc2`, sq, hidden)], {}, { name: `${p}.${j}.scale` });
+      y = b.node('Mul', [y, scale], {}, { name: `${p}.${j++}.excite` });
+      y = conv(c, y, `${p}.${j}.0`, `${p}.${j}.1`, hidden, cout, 1, 1, { act: 'none' });
+      x = stride === 1 && cin === cout ? b.node('Add', [x, y], {}, { name: `features.${st + 1}.${r}.add` }) : y;
+      cin = cout;
+    }
+  });
+  x = conv(c, x, 'features.8.0', 'features.8.1', cin, 1280, 1, 1, { act: 'silu' });
+  return head(c, x, 1280);
+}
+
+/**
+ * ShuffleNet v2 1.0× (Ma et al. 2018, Table 5): stages of 4, 8, 4 units at 116, 232, 464 channels.
+ * A stride-2 unit runs two branches on the whole input; the others split the channels in halves
+ * (Split), transform one half, Concat, then shuffle two groups (Reshape, Transpose, Reshape; batch 1).
+ */
+export function shufflenetV2(o: NetOptions = {}): Model {
+  const c = start('shufflenet_v2_x1_0', o), { b } = c;
+  let x = conv(c, c.x, 'conv1.0', 'conv1.1', 3, 24, 3, 2);
+  x = b.node('MaxPool', [x], { kernel_shape: [3, 3], strides: [2, 2], pads: [1, 1, 1, 1] }, { name: 'maxpool' });
+  let cin = 24, hw = 56;
+  [[116, 4], [232, 8], [464, 4]].forEach(([cout, n], st) => {
+    for (let r = 0; r < n; r++) {
+      const p = `stage${st + 2}.${r}`, half = cout / 2;
+      let left: string, right: string;
+      if (r === 0) {
+        hw /= 2;
+        left = conv(c, x, `${p}.branch1.0`, `${p}.branch1.1`, cin, cin, 3, 2, { group: cin, act: 'none' });
+        left = conv(c, left, `${p}.branch1.2`, `${p}.branch1.3`, cin, half, 1, 1);
+        right = x;
+      } else {
+        const sizes = b.init(`${p}.split`, INT64, [2], [half, half]);
+        [left, right] = b.node('Split', [x, sizes], { axis: 1 }, { name: `${p}.chunk`, outputs: 2 });
+      }
+      const rin = r === 0 ? cin : half;
+      right = conv(c, right, `${p}.branch2.0`, `${p}.branch2.1`, rin, half, 1, 1);
+      right = conv(c, right, `${p}.branch2.3`, `${p}.branch2.4`, half, half, 3, r === 0 ? 2 : 1, { group: half, act: 'none' });
+      right = conv(c, right, `${p}.branch2.5`, `${p}.branch2.6`, half, half, 1, 1);
+      const cat = b.node('Concat', [left, right], { axis: 1 }, { name: `${p}.concat` });
+      const g = b.node('Reshape', [cat, b.init(`${p}.groups`, INT64, [5], [1, 2, half, hw, hw])], {}, { name: `${p}.view` });
+      const tr = b.node('Transpose', [g], { perm: [0, 2, 1, 3, 4] }, { name: `${p}.transpose` });
+      x = b.node('Reshape', [tr, b.init(`${p}.shape`, INT64, [4], [1, cout, hw, hw])], {}, { name: `${p}.shuffle` });
+      cin = cout;
+    }
+  });
+  x = conv(c, x, 'conv5.0', 'conv5.1', cin, 1024, 1, 1);
+  return head(c, x, 1024);
+}
