@@ -172,8 +172,8 @@ export function toQdq(model: Model, spec: QdqSpec): QdqResult {
       const [bi, bs, bdq] = [fresh(`${bName}/int32`), fresh(`${bName}/scale`), fresh(`${bName}/dq`)];
       inits.delete(bName);
       inits.set(bi, typed(bi, INT32, [b.length], bytesOf(bq.q)));
-      inits.set(bs, floatTensor(bs, [b.length], bq.params.scale));
-      head.push(node('DequantizeLinear', [bi, bs], [bdq], { axis: 0 }));
+      // The bias scale is not stored: the graph says it is s_x·s_w (a float32 Mul, as quantizeBias computes it).
+      head.push(node('Mul', [paramsOf(x)[0], ws], [bs]), node('DequantizeLinear', [bi, bs], [bdq], { axis: 0 }));
       ins[2] = bdq;
       biases++;
     }
