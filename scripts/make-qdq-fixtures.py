@@ -56,8 +56,16 @@ cases.append(case('conv weight per output channel, symmetric', w, wscale, [0, 0,
 # An int32 bias at scale s_x * s_w per channel.
 cases.append(case('int32 bias per channel', rng.normal(0, 0.5, 4), (np.float32(0.02) * wscale).astype(np.float32), [0, 0, 0, 0], 0, -2**31, 2**31 - 1))
 
+# Calibration: the tails NumPy's percentile cuts from a skewed sample (a Relu-like activation: half zeros, a long right tail).
+sample = np.maximum(rng.standard_t(3, 3000), 0).astype(np.float32) * np.float32(0.7)
+percentile = {
+    'p': 99.9, 'x': [float(v) for v in sample],
+    'lo': float(np.percentile(sample.astype(np.float64), 0.1)), 'hi': float(np.percentile(sample.astype(np.float64), 99.9)),
+    'min': float(sample.min()), 'max': float(sample.max()),
+}
+
 os.makedirs(os.path.dirname(OUT), exist_ok=True)
 with open(OUT, 'w') as f:
-    json.dump({'source': 'scripts/make-qdq-fixtures.py (NumPy %s), ONNX QuantizeLinear/DequantizeLinear definitions' % np.__version__, 'cases': cases}, f, indent=1)
+    json.dump({'source': 'scripts/make-qdq-fixtures.py (NumPy %s), ONNX QuantizeLinear/DequantizeLinear definitions' % np.__version__, 'cases': cases, 'percentile': percentile}, f, indent=1)
     f.write('\n')
 print(OUT, len(cases), 'cases')

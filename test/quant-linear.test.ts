@@ -4,6 +4,7 @@
 import { describe, expect, it } from 'vitest';
 import fs from 'node:fs';
 import { activationParams, dequantize, quantize, roundHalfEven, type QuantParams } from '../lib/quant/linear.js';
+import { chooseRange, Histogram, HISTOGRAM_BINS, RangeObserver } from '../lib/quant/calibrate.js';
 import { modelBuilder } from '../lib/graph/build.js';
 import { modelToProto } from '../lib/graph/ir.js';
 import { encodeModel } from '../lib/onnx/codec.js';
@@ -73,5 +74,31 @@ describe('activation parameters', () => {
       expect(z).toBe(zeroPoint);
       expect(dequantize([z], [1], p)[0]).toBe(0);
     }
+  });
+});
+
+describe('calibration ranges', () => {
+  const { percentile: pc } = JSON.parse(fs.readFileSync('test/fixtures/qdq/cases.json', 'utf8')) as { percentile: { p: number; x: number[]; lo: number; hi: number; min: number; max: number } };
+  const r = new RangeObserver(); r.add(pc.x);
+  const h = new Histogram(r.min, r.max); h.add(pc.x);
+  const bin = (r.max - r.min) / HISTOGRAM_BINS;
+  it('min/max and the percentile tails as NumPy cuts them (np.percentile, within one histogram bin)', () => {
+    expect([r.min, r.max]).toEqual([pc.min, pc.max]);
+    const [lo, hi] = chooseRange('percentile', r, h, pc.p);
+    expect(Math.abs(lo - pc.lo)).toBeLessThanOrEqual(bin);
+    expect(Math.abs(hi - pc.hi)).toBeLessThanOrEqual(bin);
+    expect(hi).toBeLessThan(pc.max);
+  });
+  it('mse: the range it picks from the histogram is within 1 % of the best of its grid on the sample itself', () => {
+    // The expected squared error of quantize-dequantize, over the exact sample (not the histogram's bin centres).
+    const err = ([lo, hi]: [number, number]) => {
+      const { scale, zeroPoint } = activationParams(lo, hi);
+      const p: QuantParams = { scale: Float32Array.of(scale), zeroPoint: Int32Array.of(zeroPoint), lo: -128, hi: 127 };
+      const d = dequantize(quantize(pc.x, [pc.x.length], p), [pc.x.length], p);
+      return pc.x.reduce((a, x, i) => a + (d[i] - x) ** 2, 0);
+    };
+    const grid = Array.from({ length: 57 }, (_, k) => err([0, r.max * (1 - k / 64)]));
+    expect(err(chooseRange('mse', r, h))).toBeLessThanOrEqual(Math.min(...grid) * 1.01);
+    expect(Math.min(...grid)).toBeLessThan(err([r.min, r.max]) * 1.01);
   });
 });

@@ -78,7 +78,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const src = JSON.parse(fs.readFileSync(f('split/manifest.json'), 'utf8')) as Manifest;
     expect(m.quantization!.from.file).toBe('../split/manifest.json');
     expect(m.quantization!.from.sha256).toMatch(/^[0-9a-f]{64}$/);
-    expect(m.quantization!.calibration).toMatchObject({ method: 'percentile', samples: 500, data: { file: '../calib.npy' } });
+    expect(m.quantization!.calibration).toMatchObject({ method: 'mse', samples: 500, data: { file: '../calib.npy' } });
     expect(m.source.sha256).toBe(src.source.sha256);
     expect(m.policy).toBeUndefined();
     for (const k of [0, 1]) {

@@ -34,16 +34,19 @@ export class Histogram {
   centre(b: number): number { return this.lo + (b + 0.5) * ((this.hi - this.lo) / this.counts.length); }
 }
 
-/** Lower and upper edges holding all but (100 − p)% of the values at each end. */
+/**
+ * The p-th and (100 − p)-th percentiles, to within a bin: the edges of the bins holding the order
+ * statistics at ranks (1 − p/100)·(n − 1) and p/100·(n − 1) (NumPy's percentile interpolates between
+ * neighbours of those ranks).
+ */
 export function percentileRange(h: Histogram, p: number): [number, number] {
   const total = h.counts.reduce((a, b) => a + b, 0);
-  const tail = total * (1 - p / 100);
   const n = h.counts.length, w = (h.hi - h.lo) / n;
-  let acc = 0, lo = h.lo, hi = h.hi;
-  for (let b = 0; b < n; b++) { acc += h.counts[b]; if (acc > tail) { lo = h.lo + b * w; break; } }
-  acc = 0;
-  for (let b = n - 1; b >= 0; b--) { acc += h.counts[b]; if (acc > tail) { hi = h.lo + (b + 1) * w; break; } }
-  return [Math.min(lo, h.hi), Math.max(hi, h.lo)];
+  const binOf = (rank: number) => { let acc = 0; for (let b = 0; b < n; b++) { acc += h.counts[b]; if (acc > rank) return b; } return n - 1; };
+  // Ranks rounded towards the middle, with slack for the rounding of p/100.
+  const lo = h.lo + binOf(Math.ceil((1 - p / 100) * (total - 1) - 1e-9)) * w;
+  const hi = h.lo + (binOf(Math.floor((p / 100) * (total - 1) + 1e-9)) + 1) * w;
+  return [Math.min(lo, h.hi), Math.max(Math.min(hi, h.hi), h.lo)];
 }
 
 /** Expected squared error of int8 quantize-dequantize of the histogram's values over a range. */

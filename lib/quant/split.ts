@@ -28,13 +28,14 @@ import { chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type Calibra
 import { activationParams } from './linear.js';
 
 /**
- * Default calibration. `percentile` (99.99 % at each end): a few extreme activations of the
- * calibration rows do not stretch the int8 step of a whole tensor (what `minmax` suffers from),
- * while the tail kept is small enough that clipping rarely touches a value that decides a class.
- * On the Fashion-MNIST CNN (test/quantize-fmnist.test.ts) it agrees with the float chain at least as
- * well as the other two (the figures are printed there and in the closing note).
+ * Default calibration: `mse`, the range with the least expected quantization error on the calibration
+ * histogram. `minmax` lets one extreme value widen a whole tensor's int8 step; `percentile` cuts a fixed
+ * tail, which on a small tensor (an exit head's pooled features: a few dozen values per row) clips the
+ * rare large values that decide the class. Measured on the Fashion-MNIST CNN with two exits (500
+ * calibration rows, 10k test rows; see the closing note): top-1 agreement with float at the second exit
+ * mse 97.7 %, minmax 97.4 %, percentile 93.2 %; at the final output 99.6 % for all three.
  */
-export const DEFAULT_CALIBRATION: CalibrationMethod = 'percentile';
+export const DEFAULT_CALIBRATION: CalibrationMethod = 'mse';
 
 export interface QuantizeOptions {
   data: string;
