@@ -7,6 +7,7 @@ import { modelToProto, type Model } from '../lib/graph/ir.js';
 import { encodeModel } from '../lib/onnx/codec.js';
 import { FLOAT } from '../lib/onnx/dtype.js';
 import { inferShapes } from '../lib/shapes/infer.js';
+import { costModel } from '../lib/cost/report.js';
 import { openSession, runSession, tensorFromData } from '../lib/runtime/ort.js';
 import { floatValues, foldBatchNorm } from '../lib/quant/fold-bn.js';
 import { activationPlan, toQdq, type ActParams } from '../lib/quant/qdq.js';
@@ -96,5 +97,17 @@ describe('QDQ rewrite', () => {
     }));
     console.log(`built CNN, int8 QDQ vs float: largest logit error ${worst.toFixed(2)} int8 steps`);
     expect(worst).toBeLessThan(6);
+
+    // cost of the QDQ file as an integer interpreter runs it. MACs: Conv 8·12·12 · 3·3·3 = 31104, Gemm 8·5 = 40,
+    // both between DequantizeLinear and QuantizeLinear: all int8. Peak: at the input's QuantizeLinear, the float
+    // input 3·144·4 = 1728 B and its int8 copy 432 B = 2160 B; the conv step holds 432 + 8·144 = 1584 B (the
+    // float tensors around the kernel are the int8 buffers; dequantized weights are weights).
+    const c = costModel(q.model);
+    expect([c.model.macs, c.model.int8Macs]).toEqual([31144n, 31144n]);
+    expect(c.model.peakActivationBytes).toBe(2160n);
+    expect(c.nodes.filter((n) => n.int8).map((n) => n.op)).toEqual(['Conv', 'Gemm']);
+    // Weights as stored: int8 216 + 40 weights, 8 + 5 weight zero points, 4 activation zero points (x, relu = pool,
+    // gap = flatten, logits); int32 biases 8·4 + 5·4; float32 scales 8·4 + 5·4 per channel and 4 per tensor.
+    expect(c.model.paramBytesByType).toEqual({ int8: 273n, int32: 52n, float32: 68n });
   });
 });
