@@ -124,6 +124,12 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(t.code, t.stderr).toBe(0);
     const e = offramp(['emit-c', f('q'), '-o', f('fw')]);
     expect(e.code, e.stderr).toBe(0);
+    // the exits' int8 parameters reach the firmware for the _q8 decision functions, exactly (float32 scales)
+    const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
+    const c99 = fs.readFileSync(f('fw/offramp_policy.c'), 'utf8');
+    const row = /offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = \{ (.*) \};/.exec(c99)![1];
+    const got = [...row.matchAll(/\{ (\S+)f \/\* [^*]+ \*\/, (-?\d+) \}/g)].map((x) => ({ scale: Number(x[1].replace(/^(-?)0x1\.?([0-9a-f]*)p(-?\d+)$/, (_, s, h, e) => String((s ? -1 : 1) * (1 + (h ? parseInt(h, 16) / 16 ** h.length : 0)) * 2 ** Number(e)))), zeroPoint: Number(x[2]) }));
+    expect(got).toEqual(['exit-0', 'exit-1', 'logits'].map((n) => m.outputs.find((o) => o.name === n)!.quant));
   });
 
   it('bad input: one line naming the file, exit 1, the output folder untouched', () => {
