@@ -7,6 +7,7 @@ import { readsOf } from '../graph/links.js';
 import type { CostReport, NodeCost } from '../cost/report.js';
 import { liveRanges, peakOver } from '../cost/memory.js';
 import { ARENA_ALIGN, planArena } from '../cost/arena.js';
+import { ioView, qdqView } from '../cost/qdq.js';
 import { numel } from '../ops/rule.js';
 import { dtypeByName, dtypeInfo } from '../onnx/dtype.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
@@ -20,6 +21,7 @@ export const CONVENTIONS = [
   `RAM: the stage's arena (an offset for every value of the stage on its own: what it reads from earlier stages, makes and hands on; greedy by size, by breadth, or squeaky-wheel rounds over them, ${ARENA_ALIGN}-byte offsets; at least its peak activation), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena`,
   'int8 activations: 1 byte per floating-point element; integer tensors stay as stored',
   'latency: cycles = ceil(MACs / macs-per-cycle), time = cycles / clock; other arithmetic, data movement and interpreter overhead are not counted',
+  'QDQ files as stored: a Conv/Gemm/MatMul between DequantizeLinear and QuantizeLinear runs int8 MACs (int8 rate) and its float tensors are held as int8; dequantized weights are weights, not activations',
   'flash holds weights only: code, interpreter and constants of the firmware come on top',
 ];
 
@@ -33,6 +35,8 @@ export interface Footprint {
 }
 export interface StageFootprint {
   index: number; cut: string; macs: bigint;
+  /** of `macs`, those a QDQ stage runs as int8 (timed at the int8 rate as stored) */
+  int8Macs?: bigint;
   stored: Footprint; int8: Footprint;
 }
 
@@ -83,11 +87,12 @@ function int8WeightBytes(dtype: number, dims: number[], use: { op: string; input
 export function stageFootprints(model: Model, report: CostReport): StageFootprint[] {
   const g = model.graph;
   const order = report.nodes.map((n) => n.index);
-  const ioNodes = g.nodes.map((n) => ({ inputs: n.inputs, outputs: n.outputs, reads: readsOf(n) }));
+  // A QDQ model's float values inside int8 kernels share the int8 buffers (lib/cost/qdq.ts).
+  const ioNodes = ioView(g, order, qdqView(g, order));
   const stored = new Map<string, bigint>(), int8 = new Map<string, bigint>();
-  const add = (t: { name: string; dtype: string; shape: number[]; bytes: bigint }) => {
+  const add = (t: { name: string; dtype: string; shape: number[]; bytes: bigint; stored?: 'int8' | 'weight' }) => {
     stored.set(t.name, t.bytes);
-    int8.set(t.name, isFloat(t.dtype) ? numel(t.shape) : t.bytes);
+    int8.set(t.name, t.stored === 'weight' ? 0n : isFloat(t.dtype) ? numel(t.shape) : t.bytes);
   };
   report.model.inputs.forEach(add);
   for (const n of report.nodes) if (n.op !== 'Constant') n.outputs.forEach(add);
@@ -139,7 +144,7 @@ export function stageFootprints(model: Model, report: CostReport): StageFootprin
         handoverInBytes: sum(handIn), handoverOutBytes: sum(handOut),
       };
     };
-    return { index: s.index, cut: s.cut, macs: s.macs, stored: fp('stored'), int8: fp('int8') };
+    return { index: s.index, cut: s.cut, macs: s.macs, ...(s.int8Macs && { int8Macs: s.int8Macs }), stored: fp('stored'), int8: fp('int8') };
   });
 }
 
@@ -161,7 +166,9 @@ export function checkBudget(stages: StageFootprint[], t: Target, gate: Precision
     const f = s[p];
     const handoverBytes = f.handoverInBytes + f.handoverOutBytes;
     const flash = fit(f.weightBytes, t.flashBytes), ram = fit(f.arenaBytes + handoverBytes, t.ramBytes);
-    const cycles = cyclesFor(s.macs, p === 'stored' ? t.macsPerCycle : t.int8MacsPerCycle);
+    // As stored, a QDQ stage's int8 MACs run at the int8 rate and the rest at the float rate.
+    const i8 = s.int8Macs ?? 0n;
+    const cycles = p === 'stored' ? cyclesFor(s.macs - i8, t.macsPerCycle) + (i8 ? cyclesFor(i8, t.int8MacsPerCycle) : 0n) : cyclesFor(s.macs, t.int8MacsPerCycle);
     const latencyNs = nanosFor(cycles, t.clockMhz);
     return { weightBytes: f.weightBytes, peakBytes: f.peakBytes, arenaBytes: f.arenaBytes, handoverBytes, flash, ram, cycles, latencyNs, cumulativeNs: before + latencyNs, fits: flash.fits && ram.fits };
   };

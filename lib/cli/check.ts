@@ -2,7 +2,7 @@
 import fs from 'node:fs';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
-import { checkChain, npySamples, randomSamples } from '../run/check.js';
+import { checkAgreement, checkChain, npySamples, randomSamples } from '../run/check.js';
 import { table, toJson } from '../report/units.js';
 import { OfframpError, usageError } from '../errors.js';
 import { collect, emit } from './common.js';
@@ -18,9 +18,11 @@ export function checkCommand(program: Command): void {
     .option('--samples <n>', 'samples to run', '4')
     .option('--seed <n>', 'seed of the random inputs', '1')
     .option('--rtol <x>', 'relative tolerance for float outputs (integers must be exact)', '1e-5')
+    .option('--min-agreement <share>', 'quantized chains: least share of samples whose top-1 class matches the model (0 reports only)', '0')
     .option('--json', 'machine-readable result')
-    .action(async (dir: string, o: { against: string; data: string[]; samples: string; seed: string; rtol: string; json?: boolean }) => {
-      const n = Number(o.samples), rtol = Number(o.rtol), seed = Number(o.seed);
+    .action(async (dir: string, o: { against: string; data: string[]; samples: string; seed: string; rtol: string; minAgreement: string; json?: boolean }) => {
+      const n = Number(o.samples), rtol = Number(o.rtol), seed = Number(o.seed), minAgreement = Number(o.minAgreement);
+      if (!(minAgreement >= 0 && minAgreement <= 1)) throw usageError(`--min-agreement takes a share between 0 and 1, not '${o.minAgreement}'`);
       if (!(Number.isInteger(n) && n > 0)) throw usageError(`--samples takes a positive whole number, not '${o.samples}'`);
       if (!(rtol >= 0)) throw usageError(`--rtol takes a number ≥ 0, not '${o.rtol}'`);
       if (!Number.isInteger(seed)) throw usageError(`--seed takes a whole number, not '${o.seed}'`);
@@ -39,8 +41,21 @@ export function checkCommand(program: Command): void {
           samples = npySamples(inputs, files, n);
           if (!samples.length) throw new OfframpError('data', 'no samples in the data', o.data[0]);
         } else samples = randomSamples(inputs, n, seed);
+        const source = o.data.length ? 'data' : `random seed ${seed}`;
+        if (chain.manifest.quantization) {
+          // An int8 chain is judged as a classifier: top-1 agreement and the largest logit error, not float tolerance.
+          const q = await checkAgreement(chain, o.against, samples, minAgreement);
+          if (o.json) emit(toJson({ schema: 'offramp-check/1', quantized: true, ...q, source }) + '\n');
+          else {
+            const rows = q.outputs.map((a) => [a.name, `${a.agree}/${a.samples}`, `${(a.agreement * 100).toFixed(2)} %`, num(a.maxAbs), a.maxSteps === undefined ? '-' : a.maxSteps.toFixed(1), a.ok ? 'ok' : `FAIL${a.note ? ` (${a.note})` : ''}`]);
+            emit(`${q.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), int8 chain: top-1 agreement with the model${minAgreement ? `, at least ${(minAgreement * 100).toFixed(2)} %` : ''}\n\n` +
+              `${table(['output', 'same top-1', 'agreement', 'max abs', 'int8 steps', 'result'], rows)}\n`);
+          }
+          if (!q.ok) throw new OfframpError('runtime', `the int8 chain agrees with ${o.against} on less than ${(minAgreement * 100).toFixed(2)} % of samples, or an output is missing`, dir);
+          return;
+        }
         const r = await checkChain(chain, o.against, samples, { rtol });
-        if (o.json) emit(toJson({ schema: 'offramp-check/1', ...r, rtol, source: o.data.length ? 'data' : `random seed ${seed}` }) + '\n');
+        if (o.json) emit(toJson({ schema: 'offramp-check/1', ...r, rtol, source }) + '\n');
         else {
           const rows = r.diffs.map((d) => [d.name, d.dtype, String(d.elements), num(d.maxAbs), num(d.maxRel), String(d.mismatched), d.ok ? 'ok' : `FAIL${d.note ? ` (${d.note})` : ''}`]);
           emit(`${r.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), float rtol ${o.rtol}, integers exact\n\n` +

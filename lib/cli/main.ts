@@ -9,6 +9,7 @@ import { emitCCommand } from './emit-c.js';
 import { buildCommand } from './build.js';
 import { tuneCommand } from './tune.js';
 import { replayCommand } from './replay.js';
+import { quantizeCommand } from './quantize.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -29,6 +30,7 @@ export async function main(argv: string[]): Promise<number> {
   buildCommand(program);
   tuneCommand(program);
   replayCommand(program);
+  quantizeCommand(program);
   for (const c of program.commands) c.exitOverride();
   try {
     await program.parseAsync(argv, { from: 'user' });

@@ -7,20 +7,30 @@ import { findRule } from '../ops/registry.js';
 import { attrsOf } from '../ops/attrs.js';
 import type { CostCtx } from '../ops/rule.js';
 import { numel } from '../ops/rule.js';
-import { bytesFor, dtypeName } from '../onnx/dtype.js';
+import { bytesFor, dtypeName, INT8 } from '../onnx/dtype.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
 import { concrete } from './concrete.js';
 import { liveRanges, peakOver } from './memory.js';
 import { planArena } from './arena.js';
+import { ioView, qdqView } from './qdq.js';
 import { OfframpError } from '../errors.js';
 
-export interface TensorCost { name: string; shape: number[]; dtype: string; bytes: bigint; source: ShapeSource }
+export interface TensorCost {
+  name: string; shape: number[]; dtype: string;
+  /** bytes as the value is held when the model runs (see `stored`) */
+  bytes: bigint;
+  source: ShapeSource;
+  /** in a QDQ model: a float value held as 'int8' (inside a quantized kernel) or computed from weights alone ('weight', no activation bytes) */
+  stored?: 'int8' | 'weight';
+}
 export interface NodeCost {
   index: number; name: string; op: string; domain: string;
   macs: bigint; ops: bigint; params: bigint; paramBytes: bigint;
   outputs: TensorCost[];
   /** no rule knows this op's arithmetic: its MACs are counted as 0 */
   uncosted?: boolean;
+  /** its MACs run as int8 (a matrix op between DequantizeLinear and QuantizeLinear, or an integer kernel) */
+  int8?: true;
 }
 export interface StageCost {
   index: number;
@@ -29,6 +39,8 @@ export interface StageCost {
   /** value the stage ends at ('' for the last stage) */
   cut: string;
   macs: bigint; ops: bigint; macFraction: number; params: bigint; paramBytes: bigint;
+  /** of `macs`, those running as int8 (QDQ models) */
+  int8Macs: bigint;
   peakActivationBytes: bigint;
   /** the arena a plan of offsets needs for the same values (planArena): at least the peak */
   arenaBytes: bigint;
@@ -41,6 +53,8 @@ export interface CostReport {
     macs: bigint; ops: bigint; params: bigint; paramBytes: bigint; peakActivationBytes: bigint;
     /** the arena a plan of offsets needs over the whole order (planArena): at least the peak */
     arenaBytes: bigint;
+    /** of `macs`, those running as int8 (QDQ models) */
+    int8Macs: bigint;
     peakAt: string; peakLive: string[];
     paramBytesByType: Record<string, bigint>;
     inputs: TensorCost[]; outputs: TensorCost[];
@@ -67,11 +81,15 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
   const shapes = opts.shapes ?? inferShapes(model, opts);
   const warnings: string[] = [];
   const where = (n: Node, i: number) => `node #${i} ${n.op}${n.name ? ` '${n.name}'` : ''}`;
+  const qdq = qdqView(g, shapes.order);
   const tensorCost = (name: string, at: string): TensorCost => {
     const v = shapes.values.get(name);
     if (!v) throw new OfframpError('cost', `type of '${name}' is unknown`, model.file, at);
     const shape = concrete(v.type.shape, name, at);
-    return { name, shape, dtype: dtypeName(v.type.dtype), bytes: bytesFor(v.type.dtype, numel(shape)), source: v.source };
+    // In a QDQ model a float value inside an int8 kernel is held as int8; one computed from weights is a weight.
+    const st = qdq?.weights.has(name) ? 'weight' : qdq?.alias.has(name) ? 'int8' : undefined;
+    const bytes = st === 'weight' ? 0n : bytesFor(st === 'int8' ? INT8 : v.type.dtype, numel(shape));
+    return { name, shape, dtype: dtypeName(v.type.dtype), bytes, source: v.source, ...(st && { stored: st }) };
   };
 
   // Weights: initializers and Constant outputs; a tensor shared by several nodes counts once (for its first reader).
@@ -84,7 +102,7 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
   const seen = new Set<string>();
   const nodes: NodeCost[] = [];
   const sizes = new Map<string, bigint>();
-  let macs = 0n, ops = 0n, params = 0n, paramBytes = 0n;
+  let macs = 0n, ops = 0n, params = 0n, paramBytes = 0n, int8Macs = 0n;
   const byType: Record<string, bigint> = {};
   const addWeight = (name: string, w: { count: bigint; bytes: bigint; dtype: number }) => {
     const k = dtypeName(w.dtype);
@@ -127,7 +145,9 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
       uncosted = true;
     }
     macs += c.macs; ops += c.ops; params += np; paramBytes += npb;
-    nodes.push({ index: i, name: n.name, op: n.op, domain: n.domain, macs: c.macs, ops: c.ops, params: np, paramBytes: npb, outputs, ...(uncosted && { uncosted }) });
+    const int8 = !!qdq?.int8Nodes.has(i);
+    if (int8) int8Macs += c.macs;
+    nodes.push({ index: i, name: n.name, op: n.op, domain: n.domain, macs: c.macs, ops: c.ops, params: np, paramBytes: npb, outputs, ...(uncosted && { uncosted }), ...(int8 && { int8: true as const }) });
   }
   const uncostedOps = [...new Set(nodes.filter((n) => n.uncosted).map((n) => n.op))];
   if (uncostedOps.length) warnings.push(`no cost rule for ${uncostedOps.join(', ')}: counted as 0 MACs`);
@@ -135,7 +155,7 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
   const inputs = g.inputs.filter((v) => !g.initializers.has(v.name)).map((v) => tensorCost(v.name, `graph input '${v.name}'`));
   for (const t of inputs) sizes.set(t.name, t.bytes);
   const outputs = g.outputs.map((v) => tensorCost(v.name, `graph output '${v.name}'`));
-  const ioNodes = g.nodes.map((n) => ({ inputs: n.inputs, outputs: n.outputs, reads: readsOf(n) }));
+  const ioNodes = ioView(g, shapes.order, qdq);
   const ranges = liveRanges(shapes.order, ioNodes, sizes, inputs.map((t) => t.name), outputs.map((t) => t.name));
   const last = shapes.order.length - 1;
   const peak = peakOver(ranges, 0, last);
@@ -152,7 +172,7 @@ export function costModel(model: Model & { file?: string }, opts: CostOptions = 
     model: {
       file: model.file, irVersion: Number(model.irVersion), opsets: Object.fromEntries(model.opsets),
       producer: [model.proto.producerName, model.proto.producerVersion].filter(Boolean).join(' '),
-      macs, ops, params, paramBytes, peakActivationBytes: peak.bytes, arenaBytes: planArena(ranges, { from: 0, to: last }).bytes,
+      macs, ops, params, paramBytes, peakActivationBytes: peak.bytes, arenaBytes: planArena(ranges, { from: 0, to: last }).bytes, int8Macs,
       peakAt: peak.step >= 0 && last >= 0 ? nodeLabel(g.nodes[shapes.order[peak.step]], shapes.order[peak.step]) : '',
       peakLive: peak.live, paramBytesByType: byType, inputs, outputs,
     },
@@ -212,6 +232,7 @@ function stageCosts(
       index: k, first, last, cut: k < steps.length ? steps[k].name : '',
       macs, ops: sum((n) => n.ops), macFraction: total ? Number((macs * 1000000n) / total) / 1e6 : 0,
       params: w.reduce((a, x) => a + x.count, 0n), paramBytes: w.reduce((a, x) => a + x.bytes, 0n),
+      int8Macs: sum((n) => (n.int8 ? n.macs : 0n)),
       peakActivationBytes: peakOver(ranges, first, last).bytes,
       arenaBytes: planArena(ranges, { from: first, to: last }).bytes,
       inputs: first === 0 ? ranges.filter((v) => v.birth < 0).map((v) => ({ name: v.name, bytes: v.bytes })) : crossing(first - 1),

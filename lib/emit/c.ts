@@ -130,6 +130,7 @@ export function emitC(i: EmitCInput, file?: string): EmitCOutput {
     'extern const char *const offramp_exit_names[OFFRAMP_EXITS + 1];',
     'extern const int32_t offramp_exit_stage[OFFRAMP_EXITS + 1];   /* stage that makes exit k */',
     'extern const uint64_t offramp_reach[OFFRAMP_EXITS + 1];       /* MACs to have exit k */',
+    ...(t.exitQ8 ? ['#define OFFRAMP_INT8_LOGITS 1', 'extern const offramp_q8_t offramp_exit_q8[OFFRAMP_EXITS + 1];   /* int8 logits of exit k: scale, zero point (for the _q8 functions) */'] : []),
     '',
     '/* The chosen policy. */',
     `extern const ${stream ? 'offramp_stream_policy_t' : 'offramp_frame_policy_t'} offramp_policy;`,
@@ -161,7 +162,10 @@ export function emitC(i: EmitCInput, file?: string): EmitCOutput {
     'const offramp_buffer_t offramp_buffers[OFFRAMP_BUFFERS + 1] = {', ...buffers, '  { 0, 0u, 0u, 0u, 0u }', '};', '',
     `const char *const offramp_exit_names[OFFRAMP_EXITS + 1] = { ${[...t.exitNames, t.finalOutput].map(cString).join(', ')} };`,
     `const int32_t offramp_exit_stage[OFFRAMP_EXITS + 1] = { ${t.exitStage.join(', ')} };`,
-    `const uint64_t offramp_reach[OFFRAMP_EXITS + 1] = { ${t.reach.map(u64).join(', ')} };`, '',
+    `const uint64_t offramp_reach[OFFRAMP_EXITS + 1] = { ${t.reach.map(u64).join(', ')} };`,
+    // The scales are float32 values (the manifest's, as the QDQ files store them): the hex constant is exact.
+    ...(t.exitQ8 ? [`const offramp_q8_t offramp_exit_q8[OFFRAMP_EXITS + 1] = { ${t.exitQ8.map((q) => `{ ${hexDouble(q.scale)}f /* ${q.scale} */, ${q.zeroPoint} }`).join(', ')} };`] : []),
+    '',
     policyDefinition(policy, t),
     C_DEFINITIONS,
   ].join('\n');

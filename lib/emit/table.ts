@@ -32,6 +32,8 @@ export interface ChainTable {
   finalOutput: string;
   /** alignment of every arena offset (the manifest's; 0 where no stage has an arena plan) */
   arenaAlign: number;
+  /** int8 parameters of each exit's logits (final last), where the manifest has them for all (a quantized split) */
+  exitQ8?: { scale: number; zeroPoint: number }[];
 }
 
 const EXIT_NAME = /^exit-(\d+)$/;
@@ -112,5 +114,8 @@ export function chainTable(m: Manifest, file?: string): ChainTable {
   stages.forEach((s, i) => s.buffers.forEach((b, j) => { if (b.offset % (arenaAlign || 1)) throw bad(`offset ${b.offset} is not a multiple of ${arenaAlign}`, `stages[${i}].arena.buffers[${j}]`); }));
   const cumulative: bigint[] = [];
   stages.reduce((a, s) => { const v = a + s.macs; cumulative.push(v); return v; }, 0n);
-  return { stages, exits: exitNames.length, classes, exitStage: exitStage as number[], reach: exitStage.map((st) => cumulative[st!]), exitNames, finalOutput, arenaAlign };
+  const q8 = [...exitNames, finalOutput].map((n) => tensorOf(n)?.quant);
+  for (const q of q8) if (q && !(q.scale > 0 && Number.isFinite(q.scale) && Number.isInteger(q.zeroPoint) && q.zeroPoint >= -128 && q.zeroPoint <= 127)) throw bad(`int8 parameters out of range: scale ${q.scale}, zero point ${q.zeroPoint}`, 'outputs');
+  const exitQ8 = q8.every(Boolean) ? q8.map((q) => ({ scale: q!.scale, zeroPoint: q!.zeroPoint })) : undefined;
+  return { stages, exits: exitNames.length, classes, exitStage: exitStage as number[], reach: exitStage.map((st) => cumulative[st!]), exitNames, finalOutput, arenaAlign, ...(exitQ8 && { exitQ8 }) };
 }

@@ -39,7 +39,7 @@ function summary(r: CostReport): string[] {
   const lines = [
     `model      ${m.file ?? '(in memory)'}${m.producer ? `  (from ${m.producer})` : ''}`,
     `opsets     ${Object.entries(m.opsets).map(([d, v]) => `${d || 'ai.onnx'} ${v}`).join(', ')}; IR ${m.irVersion}`,
-    `MACs       ${si(m.macs)} (${m.macs})   other ops ${si(m.ops)}`,
+    `MACs       ${si(m.macs)} (${m.macs})${m.int8Macs ? `, ${si(m.int8Macs)} of them int8 (QDQ)` : ''}   other ops ${si(m.ops)}`,
     `weights    ${si(m.params)} params, ${bytes(m.paramBytes)}${Object.keys(m.paramBytesByType).length > 1 ? ` (${Object.entries(m.paramBytesByType).map(([k, v]) => `${k} ${bytes(v)}`).join(', ')})` : ''}`,
     `peak act.  ${bytes(m.peakActivationBytes)} (${m.peakActivationBytes} B) at ${m.peakAt}`,
     `arena      ${bytes(m.arenaBytes)} (${m.arenaBytes} B) with ${ARENA_ALIGN}-byte offsets, ${overPeak(m.arenaBytes, m.peakActivationBytes)} the peak`,

@@ -91,24 +91,73 @@ export function npySamples(inputs: ManifestTensor[], files: Record<string, strin
 
 export interface CheckResult { samples: number; diffs: Diff[]; ok: boolean }
 
-/** Run the source model and the chain on each sample; compare every source output. */
-export async function checkChain(chain: Chain, modelFile: string, samples: Sample[], tol: Tolerance = {}): Promise<CheckResult> {
+/** Run the source model and the chain on each sample; `see` gets each source output the chain also made. */
+async function runBoth(chain: Chain, modelFile: string, samples: Sample[], see: (name: string, got: OrtTensor | undefined, want: OrtTensor) => void): Promise<void> {
   let bytes: Buffer;
   try { bytes = fs.readFileSync(modelFile); } catch { throw new OfframpError('io', 'no such file', modelFile); }
   // the runner's own session kind: same options and kernels as the awaited API, without its per-call hop
   const session = openSyncSession(bytes, modelFile);
-  const rows = new Map<string, Diff[]>();
   try {
     for (const s of samples) {
       const want = session.run(s);
       const got = await chain.run(s);
-      for (const o of chain.manifest.outputs) {
-        if (!want[o.name]) continue;
-        let l = rows.get(o.name); if (!l) rows.set(o.name, (l = []));
-        l.push(diffTensors(o.name, got.outputs[o.name], want[o.name], tol));
-      }
+      for (const o of chain.manifest.outputs) if (want[o.name]) see(o.name, got.outputs[o.name], want[o.name]);
     }
   } finally { session.release(); }
+}
+
+/** Run the source model and the chain on each sample; compare every source output. */
+export async function checkChain(chain: Chain, modelFile: string, samples: Sample[], tol: Tolerance = {}): Promise<CheckResult> {
+  const rows = new Map<string, Diff[]>();
+  await runBoth(chain, modelFile, samples, (name, got, want) => {
+    let l = rows.get(name); if (!l) rows.set(name, (l = []));
+    l.push(diffTensors(name, got, want, tol));
+  });
   const diffs = [...rows.values()].map(mergeDiffs);
   return { samples: samples.length, diffs, ok: diffs.every((d) => d.ok) };
+}
+
+/** One output of a quantized chain against the float model: same top-1 class, and how far the logits moved. */
+export interface Agreement {
+  name: string; samples: number;
+  /** samples whose top-1 class (first maximum, per row) is the model's */
+  agree: number; agreement: number;
+  maxAbs: number;
+  /** the largest error in units of the output's int8 step, where the manifest gives it */
+  maxSteps?: number;
+  ok: boolean; note?: string;
+}
+export interface AgreementResult { samples: number; outputs: Agreement[]; minAgreement: number; ok: boolean }
+
+const argmax = (d: ArrayLike<number>, from: number, n: number) => {
+  let best = from;
+  for (let i = from + 1; i < from + n; i++) if (d[i] > d[best]) best = i;
+  return best - from;
+};
+
+/**
+ * A quantized chain is not bit-exact, so it is judged as classifiers are: per output, the share of samples
+ * whose top-1 class matches the float model's (the last dim is the classes), and the largest logit error.
+ * Fails where an output is missing or misshapen, or agrees on less than `minAgreement` of the samples.
+ */
+export async function checkAgreement(chain: Chain, modelFile: string, samples: Sample[], minAgreement = 0): Promise<AgreementResult> {
+  const rows = new Map<string, Agreement>();
+  await runBoth(chain, modelFile, samples, (name, got, want) => {
+    let a = rows.get(name);
+    if (!a) rows.set(name, (a = { name, samples: 0, agree: 0, agreement: 0, maxAbs: 0, ok: true }));
+    if (!got || got.type !== want.type || got.dims.join() !== want.dims.join() || want.type !== 'float32') {
+      a.ok = false; a.note ??= got ? `got ${got.type}[${got.dims.join(',')}], want ${want.type}[${want.dims.join(',')}]` : 'missing';
+      a.samples++;
+      return;
+    }
+    const g = got.data as Float32Array, w = want.data as Float32Array, c = Number(want.dims.at(-1) ?? 1) || 1;
+    for (let r = 0; r < w.length / c; r++) { a.samples++; if (argmax(g, r * c, c) === argmax(w, r * c, c)) a.agree++; }
+    for (let i = 0; i < w.length; i++) { const d = Math.abs(g[i] - w[i]); if (!(d <= a.maxAbs)) a.maxAbs = d; }
+  });
+  const outputs = [...rows.values()].map((a) => {
+    const q = chain.manifest.outputs.find((o) => o.name === a.name)?.quant;
+    const agreement = a.samples ? a.agree / a.samples : 0;
+    return { ...a, agreement, ...(q && { maxSteps: a.maxAbs / q.scale }), ok: a.ok && agreement >= minAgreement };
+  });
+  return { samples: samples.length, outputs, minAgreement, ok: outputs.every((a) => a.ok) };
 }

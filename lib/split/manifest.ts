@@ -36,6 +36,12 @@ export interface ManifestTensor {
   bytes: number;
   /** present (true) where the shape was measured on one run: it may depend on input values, and stage files declare the rank only */
   measured?: true;
+  /**
+   * After `offramp quantize`: int8 parameters, real = (q − zeroPoint) · scale. On an int8 handover
+   * tensor, its own; on a float model output (an exit's logits), those of the int8 values the stage
+   * dequantized it from (what firmware's `_q8` decision functions read).
+   */
+  quant?: { scale: number; zeroPoint: number };
 }
 
 export interface ManifestStage {
@@ -102,6 +108,25 @@ export interface Manifest {
   totals: { macs: number; weightBytes: number; stageWeightBytes: number };
   /** the exit policy chosen by tuning; absent until tuned */
   policy?: ManifestPolicy;
+  /** present in a folder written by `offramp quantize`: where its float split came from and how it was calibrated */
+  quantization?: ManifestQuantization;
+}
+
+export interface ManifestQuantization {
+  scheme: 'qdq-int8';
+  /** the float split's manifest, relative to this manifest's folder, and its SHA-256 */
+  from: { file: string; sha256: string };
+  calibration: {
+    method: 'minmax' | 'percentile' | 'mse';
+    /** for percentile: the share kept at each end, in percent */
+    percentile?: number;
+    /** rows run through the float chain */
+    samples: number;
+    data: { file: string; sha256: string };
+  };
+  weights: string; biases: string; activations: string;
+  /** BatchNormalization nodes folded into the Conv before them */
+  foldedBatchNorms: number;
 }
 
 /** A tuned exit policy as the manifest keeps it: the rule, and the evidence it was chosen on. */

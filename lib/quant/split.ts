@@ -1,0 +1,235 @@
+// `offramp quantize`: a float split folder → a split folder of the same form whose
+// stage files are int8 QDQ models. BatchNormalization is folded, activation
+// ranges are calibrated by running the rows of the data through the float chain
+// (every stage with its activations exposed), and handover tensors between stages
+// become int8. Everything is written into a scratch folder beside the target and
+// moved in at the end (the manifest last), so the target is never half written.
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
+import type { Model } from '../graph/ir.js';
+import { modelToProto } from '../graph/ir.js';
+import { parseModel } from '../graph/io.js';
+import { encodeModel } from '../onnx/codec.js';
+import { dtypeName, INT8 } from '../onnx/dtype.js';
+import { tensorByteSize } from '../onnx/tensor.js';
+import { inferShapes } from '../shapes/infer.js';
+import { costModel } from '../cost/report.js';
+import { openSession, runSession, tensorFromData, type OrtTensor, type Session } from '../runtime/ort.js';
+import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
+import { readManifest } from '../run/chain.js';
+import { MANIFEST_FILE, type Manifest, type ManifestStage, type ManifestTensor } from '../split/manifest.js';
+import { toJson } from '../util/json.js';
+import { writeAtomic } from '../util/atomic.js';
+import { OfframpError } from '../errors.js';
+import { foldBatchNorm } from './fold-bn.js';
+import { activationPlan, QDQ_OPS, toQdq, type ActivationPlan, type ActParams } from './qdq.js';
+import { chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type CalibrationMethod } from './calibrate.js';
+import { activationParams } from './linear.js';
+
+/**
+ * Default calibration: `mse`, the range with the least expected quantization error on the calibration
+ * histogram. `minmax` lets one extreme value widen a whole tensor's int8 step; `percentile` cuts a fixed
+ * tail, which on a small tensor (an exit head's pooled features: a few dozen values per row) clips the
+ * rare large values that decide the class. Measured on the Fashion-MNIST CNN with two exits (500
+ * calibration rows, 10k test rows; see the closing note): top-1 agreement with float at the second exit
+ * mse 97.7 %, minmax 97.4 %, percentile 93.2 %; at the final output 99.6 % for all three.
+ */
+export const DEFAULT_CALIBRATION: CalibrationMethod = 'mse';
+
+export interface QuantizeOptions {
+  data: string;
+  out: string;
+  calibration?: CalibrationMethod;
+  /** for `percentile`: share kept at each end, in percent */
+  percentile?: number;
+  /** calibration rows used (the first ones); default all */
+  samples?: number;
+  onProgress?: (done: number, total: number) => void;
+}
+
+export interface QuantizeResult { dir: string; manifest: Manifest; files: string[]; folded: number; weights: number; biases: number; samples: number }
+
+const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
+const rel = (from: string, to: string) => path.relative(path.resolve(from), path.resolve(to)).split(path.sep).join('/');
+
+interface Stage { entry: ManifestStage; file: string; model: Model; plan: ActivationPlan }
+
+/** The stages of a float split, BatchNormalization folded; refuses a folder that is already quantized. */
+function readStages(dir: string, manifest: Manifest, manifestFile: string): { stages: Stage[]; folded: number } {
+  if (manifest.quantization) throw new OfframpError('data', `already quantized (from ${manifest.quantization.from.file}): quantize the float split instead`, manifestFile);
+  let folded = 0;
+  const stages = manifest.stages.map((entry) => {
+    const file = path.join(dir, entry.file);
+    let bytes: Buffer;
+    try { bytes = fs.readFileSync(file); } catch { throw new OfframpError('io', 'stage file is missing', file); }
+    if (sha256(bytes) !== entry.sha256) throw new OfframpError('io', 'stage file changed since the split (SHA-256 differs from the manifest)', file);
+    const loaded = parseModel(bytes, file);
+    const q = loaded.graph.nodes.find((n) => QDQ_OPS.has(n.op));
+    if (q || [...entry.inputs, ...entry.outputs].some((t) => t.dtype === 'int8' || t.dtype === 'uint8'))
+      throw new OfframpError('data', `already quantized (${q ? `it holds ${q.op}` : 'int8 handover tensors'}): quantize the float split instead`, file);
+    const f = foldBatchNorm(loaded);
+    folded += f.folded;
+    const shapes = inferShapes(f.model, { batch: 1 });
+    return { entry, file, model: f.model, plan: activationPlan(f.model, shapes) };
+  });
+  return { stages, folded };
+}
+
+/** Calibration rows as batch-1 float32 tensors, checked against the chain input. */
+function* rows(data: string, input: ManifestTensor, limit: number): Generator<OrtTensor> {
+  const h = readNpyHeader(data);
+  if (h.rows === 0) throw new OfframpError('data', 'the calibration data has no rows', data);
+  const shape = [1, ...sampleShape(h, input.shape, data)];
+  let n = 0;
+  for (const b of npyBatches(data, 256)) {
+    const x = toFloat32(b.data), per = x.length / b.rows;
+    for (let r = 0; r < b.rows && n < limit; r++, n++) {
+      const row = x.slice(r * per, (r + 1) * per);
+      for (let i = 0; i < row.length; i++) if (!Number.isFinite(row[i])) throw new OfframpError('data', `row ${b.start + r} holds a non-finite value (${row[i]}): calibration needs finite data`, data);
+      yield tensorFromData(1, shape, row);
+    }
+  }
+}
+
+/** A stage with every planned activation exposed as an output, for calibration. */
+async function instrument(s: Stage): Promise<Session> {
+  const proto = modelToProto(s.model);
+  const g = proto.graph!;
+  const have = new Set((g.output ?? []).map((o) => o.name));
+  g.output = [...(g.output ?? []), ...s.plan.values.filter((v) => !have.has(v)).map((name) => ({ name }))];
+  return openSession(encodeModel(proto), s.file);
+}
+
+/** One pass of the rows through the float chain; `see` gets every planned value of every stage. */
+async function pass(sessions: Session[], stages: Stage[], data: string, input: ManifestTensor, limit: number,
+  see: (name: string, x: Float32Array) => void, onRow?: (n: number) => void): Promise<number> {
+  let n = 0;
+  for (const x of rows(data, input, limit)) {
+    const env = new Map<string, OrtTensor>([[input.name, x]]);
+    for (let k = 0; k < stages.length; k++) {
+      const feeds: Record<string, OrtTensor> = {};
+      for (const i of stages[k].entry.inputs) feeds[i.name] = env.get(i.name)!;
+      const out = await runSession(sessions[k], feeds, stages[k].file);
+      for (const [name, t] of Object.entries(out)) env.set(name, t);
+      for (const v of stages[k].plan.values) {
+        const t = env.get(v);
+        if (!t || t.type !== 'float32') throw new OfframpError('runtime', `calibration: '${v}' came out as ${t?.type ?? 'nothing'}`, stages[k].file);
+        const d = t.data as Float32Array;
+        for (let i = 0; i < d.length; i++) if (!Number.isFinite(d[i])) throw new OfframpError('data', `row ${n} makes '${v}' non-finite in ${stages[k].entry.file}`, data);
+        see(v, d);
+      }
+    }
+    onRow?.(++n);
+  }
+  return n;
+}
+
+export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<QuantizeResult> {
+  const { manifest: src, file: srcFile } = readManifest(dir);
+  const srcDir = path.dirname(srcFile);
+  const final = path.resolve(o.out);
+  if (final === path.resolve(srcDir)) throw new OfframpError('usage', 'the output folder is the input split: give another -o');
+  const method = o.calibration ?? DEFAULT_CALIBRATION, pct = o.percentile ?? DEFAULT_PERCENTILE;
+  if (src.inputs.length !== 1 || src.inputs[0].dtype !== 'float32') throw new OfframpError('data', 'quantize calibrates a chain with one float32 input', srcFile);
+  const input = src.inputs[0];
+  const { stages, folded } = readStages(srcDir, src, srcFile);
+  const limit = o.samples ?? Infinity;
+  const total = Math.min(readNpyHeader(o.data).rows, limit);
+
+  // Calibration: min/max in one pass; percentile and mse histogram over that range in a second.
+  const sessions: Session[] = [];
+  const ranges = new Map<string, RangeObserver>(), hists = new Map<string, Histogram>();
+  let samples = 0;
+  try {
+    for (const s of stages) sessions.push(await instrument(s));
+    samples = await pass(sessions, stages, o.data, input, limit, (v, d) => {
+      let r = ranges.get(v); if (!r) ranges.set(v, (r = new RangeObserver())); r.add(d);
+    }, (n) => o.onProgress?.(n, method === 'minmax' ? total : 2 * total));
+    if (method !== 'minmax') {
+      for (const [v, r] of ranges) hists.set(v, new Histogram(r.min, r.max));
+      await pass(sessions, stages, o.data, input, limit, (v, d) => hists.get(v)!.add(d), (n) => o.onProgress?.(total + n, 2 * total));
+    }
+  } finally { await Promise.all(sessions.map((s) => s.release())); }
+
+  // Logits are never clipped: an exit's top score is what its decision reads, so outputs take min/max.
+  const modelOutputs = new Set(src.outputs.map((t) => t.name));
+  const params = new Map<string, ActParams>();
+  for (const [v, r] of ranges) {
+    const [lo, hi] = modelOutputs.has(v) ? [r.min, r.max] : chooseRange(method, r, hists.get(v), pct);
+    params.set(v, activationParams(lo, hi));
+  }
+  const paramsOf = (v: string, plan: ActivationPlan) => params.get(plan.root.get(v) ?? v);
+
+  // Handover: every float value a later stage reads crosses as int8, unless it is also a model output.
+  const handover = new Set<string>();
+  for (const s of stages) for (const t of s.entry.outputs) if (t.to.length && !modelOutputs.has(t.name) && t.dtype === 'float32' && s.plan.values.includes(t.name)) handover.add(t.name);
+  const handParams = new Map<string, ActParams>();
+  for (const s of stages) for (const v of s.plan.values) if (handover.has(v)) handParams.set(v, paramsOf(v, s.plan)!);
+
+  const work = `${final}.partial-${process.pid}`;
+  fs.rmSync(work, { recursive: true, force: true });
+  fs.mkdirSync(work, { recursive: true });
+  try {
+    let weights = 0, biases = 0;
+    const floatBytes = new Map(src.stages.flatMap((x) => x.outputs).map((t) => [t.name, t.bytes]));
+    const holders = new Map<string, { bytes: number; stages: number[] }>();
+    const entries: ManifestStage[] = stages.map((s) => {
+      const stageParams = new Map<string, ActParams>();
+      for (const v of s.plan.values) stageParams.set(v, handParams.get(v) ?? paramsOf(v, s.plan)!);
+      const int8Inputs = new Set(s.entry.inputs.filter((t) => handover.has(t.name)).map((t) => t.name));
+      const int8Outputs = new Set(s.entry.outputs.filter((t) => handover.has(t.name)).map((t) => t.name));
+      const q = toQdq(s.model, { params: stageParams, plan: s.plan, int8Inputs, int8Outputs });
+      weights += q.weights; biases += q.biases;
+      const bytes = encodeModel(modelToProto(q.model));
+      writeAtomic(path.join(work, s.entry.file), bytes);
+      const sm = parseModel(bytes, s.file);
+      const cost = costModel(sm, { shapes: inferShapes(sm, { batch: 1 }) });
+      for (const [name, t] of q.model.graph.initializers) {
+        let h = holders.get(name); if (!h) holders.set(name, (h = { bytes: Number(tensorByteSize(t)), stages: [] })); h.stages.push(s.entry.index);
+      }
+      const retype = <T extends ManifestTensor>(t: T): T => {
+        const p = handParams.get(t.name) ?? (modelOutputs.has(t.name) ? params.get(t.name) : undefined);
+        const int8 = handover.has(t.name);
+        return {
+          ...t, ...(int8 && { dtype: dtypeName(INT8), bytes: t.bytes / 4 }),
+          ...(p && { quant: { scale: p.scale, zeroPoint: p.zeroPoint } }),
+        };
+      };
+      return {
+        ...s.entry, sha256: sha256(bytes), nodes: q.model.graph.nodes.length,
+        inputs: s.entry.inputs.map(retype), outputs: s.entry.outputs.map(retype),
+        weightBytes: Number([...q.model.graph.initializers.values()].reduce((a, t) => a + tensorByteSize(t), 0n)),
+        peakActivationBytes: Number(cost.model.peakActivationBytes),
+        handoverBytes: s.entry.cut.reduce((a, n) => a + (handover.has(n) ? (floatBytes.get(n) ?? 0) / 4 : floatBytes.get(n) ?? 0), 0),
+      };
+    });
+    const srcBytes = fs.readFileSync(srcFile);
+    const dataBytes = fs.readFileSync(o.data);
+    const manifest: Manifest = {
+      ...src,
+      source: { file: rel(final, path.resolve(srcDir, src.source.file)), sha256: src.source.sha256 },
+      outputs: src.outputs.map((t) => { const p = params.get(t.name); return p ? { ...t, quant: { scale: p.scale, zeroPoint: p.zeroPoint } } : t; }),
+      stages: entries,
+      sharedWeights: [...holders].filter(([, h]) => h.stages.length > 1).sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0)).map(([name, h]) => ({ name, ...h })),
+      totals: { ...src.totals, stageWeightBytes: entries.reduce((a, e) => a + e.weightBytes, 0) },
+      policy: undefined,
+      quantization: {
+        scheme: 'qdq-int8',
+        from: { file: rel(final, srcFile), sha256: sha256(srcBytes) },
+        calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, data: { file: rel(final, o.data), sha256: sha256(dataBytes) } },
+        weights: 'int8 symmetric per output channel (Conv, Gemm, MatMul)', biases: 'int32, scale s_x·s_w', activations: 'int8 asymmetric per tensor',
+        foldedBatchNorms: folded,
+      },
+    };
+    delete manifest.policy;
+    writeAtomic(path.join(work, MANIFEST_FILE), toJson(manifest) + '\n');
+    fs.mkdirSync(final, { recursive: true });
+    const files = [...entries.map((e) => e.file), MANIFEST_FILE];
+    for (const f of files) fs.renameSync(path.join(work, f), path.join(final, f));
+    for (let k = entries.length; fs.existsSync(path.join(final, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(final, `stage-${k}.onnx`));
+    return { dir: o.out, manifest, files: files.map((f) => path.join(o.out, f)), folded, weights, biases, samples };
+  } finally {
+    fs.rmSync(work, { recursive: true, force: true });
+  }
+}

@@ -1,0 +1,160 @@
+// offramp quantize on the Fashion-MNIST CNN fixture (scripts/train-fmnist.py) with Debian's
+// dataset-fashion-mnist: exit heads grafted on training rows, split, quantized to int8 QDQ stage files
+// calibrated on other training rows, then the int8 chain against the float chain on test rows.
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { writeNpy } from '../lib/data/npy.js';
+import { loadChain, type Chain } from '../lib/run/chain.js';
+import { loadModel } from '../lib/graph/io.js';
+import { costModel } from '../lib/cost/report.js';
+import { stageFootprints } from '../lib/chip/budget.js';
+import { tensorFromData } from '../lib/runtime/ort.js';
+import type { Manifest } from '../lib/split/manifest.js';
+import { offramp } from './helpers/cli.js';
+import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
+
+const MODEL = 'test/fixtures/fmnist/cnn.onnx';
+const have = requireFmnist();
+const per = 28 * 28;
+const CUTS = ['/b1/b1.2/MaxPool_output_0', '/b2/b2.2/MaxPool_output_0'];
+
+/** Top-1 of the final output for the first `n` rows, through a chain. */
+async function predict(chain: Chain, x: Float32Array, n: number, out: string): Promise<Int32Array> {
+  const pred = new Int32Array(n);
+  for (let i = 0; i < n; i++) {
+    const r = await chain.run({ input: tensorFromData(1, [1, 1, 28, 28], x.subarray(i * per, (i + 1) * per)) });
+    const z = r.outputs[out].data as Float32Array;
+    let best = 0;
+    for (let k = 1; k < z.length; k++) if (z[k] > z[best]) best = k;
+    pred[i] = best;
+  }
+  return pred;
+}
+
+describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
+  const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-quant-'));
+  const f = (n: string) => path.join(tmp, n);
+  const N_TEST = 2000;
+  let test: { images: Float32Array; labels: Int32Array };
+  afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
+  beforeAll(() => {
+    const train = loadFmnist('train', 2500);
+    test = loadFmnist('test', N_TEST);
+    writeNpy(f('fit.npy'), train.images.slice(0, 2000 * per), [2000, 1, 28, 28]);
+    writeNpy(f('fit_y.npy'), Int32Array.from(train.labels.subarray(0, 2000)), [2000]);
+    // Calibration rows apart from the fitting rows and from the test rows (common practice: a few hundred).
+    writeNpy(f('calib.npy'), train.images.slice(2000 * per, 2500 * per), [500, 1, 28, 28]);
+    writeNpy(f('test.npy'), test.images, [N_TEST, 1, 28, 28]);
+    writeNpy(f('test_y.npy'), Int32Array.from(test.labels), [N_TEST]);
+    for (const args of [
+      ['graft', MODEL, '--cuts', CUTS.join(','), '--data', f('fit.npy'), '--labels', f('fit_y.npy'), '-o', f('grafted.onnx')],
+      ['split', f('grafted.onnx'), '-o', f('split')],
+      ['quantize', f('split'), '--data', f('calib.npy'), '-o', f('q')],
+    ]) {
+      const r = offramp(args);
+      if (r.code !== 0) throw new Error(`${args[0]}: ${r.stderr}`);
+    }
+  });
+
+  it('int8 top-1 accuracy within 1 point of float, agreement ≥ 97 %', async () => {
+    // Krishnamoorthi 2018 ("Quantizing deep convolutional networks for efficient inference: A whitepaper"),
+    // table of post-training results with per-channel int8 weights and per-tensor int8 activations: CNN top-1
+    // within about a point of float (from memory: fractions of a point to ~1 point). Same order of magnitude here.
+    const float = await loadChain(f('split')), q = await loadChain(f('q'));
+    try {
+      const a = await predict(float, test.images, N_TEST, 'logits'), b = await predict(q, test.images, N_TEST, 'logits');
+      let fc = 0, qc = 0, same = 0;
+      for (let i = 0; i < N_TEST; i++) { fc += +(a[i] === test.labels[i]); qc += +(b[i] === test.labels[i]); same += +(a[i] === b[i]); }
+      console.log(`Fashion-MNIST int8 (${q.manifest.quantization!.calibration.method}, ${q.manifest.quantization!.calibration.samples} rows): top-1 ${(qc / N_TEST * 100).toFixed(2)} % vs float ${(fc / N_TEST * 100).toFixed(2)} % on ${N_TEST} test rows; agreement ${(same / N_TEST * 100).toFixed(2)} %`);
+      expect(Math.abs(fc - qc) / N_TEST * 100).toBeLessThanOrEqual(1);
+      expect(same / N_TEST).toBeGreaterThanOrEqual(0.97);
+    } finally { await float.release(); await q.release(); }
+  });
+
+  it('the manifest: source split and calibration recorded, int8 handover with parameters, exits with theirs', () => {
+    const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
+    const src = JSON.parse(fs.readFileSync(f('split/manifest.json'), 'utf8')) as Manifest;
+    expect(m.quantization!.from.file).toBe('../split/manifest.json');
+    expect(m.quantization!.from.sha256).toMatch(/^[0-9a-f]{64}$/);
+    expect(m.quantization!.calibration).toMatchObject({ method: 'mse', samples: 500, data: { file: '../calib.npy' } });
+    expect(m.source.sha256).toBe(src.source.sha256);
+    expect(m.policy).toBeUndefined();
+    for (const k of [0, 1]) {
+      const h = m.stages[k].outputs.find((t) => t.name === CUTS[k])!;
+      expect(h.dtype).toBe('int8');
+      expect(h.bytes).toBe(src.stages[k].outputs.find((t) => t.name === CUTS[k])!.bytes / 4);
+      expect(m.stages[k + 1].inputs.find((t) => t.name === CUTS[k])).toMatchObject({ dtype: 'int8', quant: h.quant });
+      expect(m.stages[k].handoverBytes).toBe(src.stages[k].handoverBytes / 4);
+    }
+    for (const o of m.outputs) {
+      expect(o.quant!.scale).toBeGreaterThan(0);
+      expect(o.quant!.zeroPoint).toBeGreaterThanOrEqual(-128);
+      expect(o.quant!.zeroPoint).toBeLessThanOrEqual(127);
+    }
+    // every stage file is a QDQ model that the codec's structure check and onnxruntime (loadChain above) accept
+    for (const s of m.stages) {
+      const sm = loadModel(f(`q/${s.file}`));
+      expect(sm.graph.nodes.some((n) => n.op === 'DequantizeLinear')).toBe(true);
+      expect([...sm.graph.initializers.values()].some((t) => t.dataType === 3)).toBe(true);
+    }
+  });
+
+  it('stage weight bytes within 10 % of the int8 projection of the float stage files (lib/chip/budget.ts)', () => {
+    const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
+    const rows = m.stages.map((s) => {
+      const fm = loadModel(f(`split/${s.file}`));
+      return [s.weightBytes, Number(stageFootprints(fm, costModel(fm, { batch: 1 }))[0].int8.weightBytes)];
+    });
+    console.log(`int8 stage weights as stored vs projected: ${rows.map(([a, b]) => `${a} B / ${b} B`).join(', ')}`);
+    for (const [stored, projected] of rows) expect(Math.abs(stored - projected) / projected).toBeLessThanOrEqual(0.1);
+  });
+
+  it('check reports agreement instead of float tolerance; tune and emit-c work on the int8 folder unchanged', () => {
+    const c = offramp(['check', f('q'), '--against', f('grafted.onnx'), '--data', f('test.npy'), '--samples', '300', '--min-agreement', '0.9', '--json']);
+    expect(c.code, c.stderr).toBe(0);
+    const r = JSON.parse(c.stdout);
+    expect(r.quantized).toBe(true);
+    const logits = r.outputs.find((o: { name: string }) => o.name === 'logits');
+    expect(logits.samples).toBe(300);
+    expect(logits.agreement).toBeGreaterThanOrEqual(0.97);
+    expect(logits.maxAbs).toBeGreaterThan(0);
+    const t = offramp(['tune', f('q'), '--data', f('test.npy'), '--labels', f('test_y.npy'), '--json']);
+    expect(t.code, t.stderr).toBe(0);
+    const e = offramp(['emit-c', f('q'), '-o', f('fw')]);
+    expect(e.code, e.stderr).toBe(0);
+    // the exits' int8 parameters reach the firmware for the _q8 decision functions, exactly (float32 scales)
+    const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
+    const c99 = fs.readFileSync(f('fw/offramp_policy.c'), 'utf8');
+    const row = /offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = \{ (.*) \};/.exec(c99)![1];
+    const got = [...row.matchAll(/\{ (\S+)f \/\* [^*]+ \*\/, (-?\d+) \}/g)].map((x) => ({ scale: Number(x[1].replace(/^(-?)0x1\.?([0-9a-f]*)p(-?\d+)$/, (_, s, h, e) => String((s ? -1 : 1) * (1 + (h ? parseInt(h, 16) / 16 ** h.length : 0)) * 2 ** Number(e)))), zeroPoint: Number(x[2]) }));
+    expect(got).toEqual(['exit-0', 'exit-1', 'logits'].map((n) => m.outputs.find((o) => o.name === n)!.quant));
+  });
+
+  it('bad input: one line naming the file, exit 1, the output folder untouched', () => {
+    const out = f('out');
+    fs.mkdirSync(out);
+    fs.writeFileSync(path.join(out, 'keep.txt'), 'mine');
+    const snapshot = () => fs.readdirSync(out).sort().join(',') + fs.readFileSync(path.join(out, 'keep.txt'), 'utf8');
+    const before = snapshot();
+    writeNpy(f('wrong.npy'), new Float32Array(4 * 27 * 27), [4, 1, 27, 27]);
+    writeNpy(f('empty.npy'), new Float32Array(0), [0, 1, 28, 28]);
+    const nan = new Float32Array(3 * per); nan[per + 5] = NaN;
+    writeNpy(f('nan.npy'), nan, [3, 1, 28, 28]);
+    const cases: [string[], RegExp][] = [
+      [[f('split'), '--data', f('wrong.npy')], /wrong\.npy: data shape \[4, 1, 27, 27\] does not match/],
+      [[f('split'), '--data', f('empty.npy')], /empty\.npy: .*no rows/],
+      [[f('split'), '--data', f('nan.npy')], /nan\.npy: row 1 holds a non-finite value/],
+      [[f('q'), '--data', f('calib.npy')], /q\/manifest\.json: already quantized/],
+    ];
+    for (const [args, msg] of cases) {
+      const r = offramp(['quantize', ...args, '-o', out]);
+      expect(r.code, r.stderr).toBe(1);
+      expect(r.stderr.trim().split('\n')).toHaveLength(1);
+      expect(r.stderr).toMatch(msg);
+      expect(snapshot()).toBe(before);
+    }
+    expect(fs.readdirSync(tmp).filter((n) => n.includes('.partial-'))).toEqual([]);
+  });
+});
