@@ -6,6 +6,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import { OfframpError } from '../errors.js';
 import { writeAtomic } from '../util/atomic.js';
+import { openRegular } from '../util/fsx.js';
 import { FLOAT, DOUBLE, INT64, INT32, UINT8, INT8, FLOAT16, BOOL } from '../onnx/dtype.js';
 
 export interface NpyHeader {
@@ -34,8 +35,7 @@ function readFully(fd: number, buf: Uint8Array, pos: number): number {
 }
 
 function withFd<T>(file: string, f: (fd: number) => T): T {
-  let fd: number;
-  try { fd = fs.openSync(file, 'r'); } catch (e) { throw err(`cannot open: ${(e as Error).message}`, file); }
+  const fd = openRegular(file, 'data');
   try { return f(fd); } finally { fs.closeSync(fd); }
 }
 
@@ -49,6 +49,9 @@ function parseHeader(fd: number, file: string): NpyHeader {
   const start = major === 1 ? 10 : 12;
   if (got < start) throw err('truncated .npy header', file);
   const hlen = major === 1 ? dv.getUint16(8, true) : dv.getUint32(8, true);
+  const size = fs.fstatSync(fd).size;
+  // A header length from a corrupt file could ask for gigabytes: the file must hold it first.
+  if (start + hlen > size) throw err(`truncated .npy header: it claims ${hlen} bytes, the file has ${size - start} after the preamble`, file);
   const hb = new Uint8Array(hlen);
   if (readFully(fd, hb, start) < hlen) throw err('truncated .npy header', file);
   // 1.0/2.0 headers are latin1; 3.0 allows UTF-8 (structured field names).
@@ -81,7 +84,6 @@ function parseHeader(fd: number, file: string): NpyHeader {
   if (fortran && shape.filter((d) => d !== 1).length > 1) throw err('Fortran-order arrays are not supported; save with np.ascontiguousarray', file);
   const h: NpyHeader = { version: [major, minor], descr, dtype: k[0], shape, fortran, dataOffset: start + hlen, itemBytes: k[1], rows: shape.length ? shape[0] : 1 };
   const need = h.dataOffset + count(shape) * h.itemBytes;
-  const size = fs.fstatSync(fd).size;
   if (size < need) throw err(`truncated: header promises ${need} bytes (shape (${shape.join(', ')}) ${descr}), file has ${size}`, file);
   return h;
 }
@@ -100,8 +102,7 @@ export function readNpyHeader(file: string): NpyHeader {
 export function* npyBatches(file: string, batchRows: number): Generator<{ start: number; rows: number; shape: number[]; data: NpyArray }> {
   hostLE();
   if (!(Number.isInteger(batchRows) && batchRows > 0)) throw new OfframpError('usage', `batch rows must be a positive integer, got ${batchRows}`);
-  let fd: number;
-  try { fd = fs.openSync(file, 'r'); } catch (e) { throw err(`cannot open: ${(e as Error).message}`, file); }
+  const fd = openRegular(file, 'data');
   try {
     const h = parseHeader(fd, file);
     const rest = h.shape.slice(1), per = count(rest), Ctor = KINDS[h.descr.slice(1)][2];
