@@ -5,7 +5,7 @@ import { loadChain } from '../run/chain.js';
 import { checkChain, npySamples, randomSamples } from '../run/check.js';
 import { table, toJson } from '../report/units.js';
 import { OfframpError, usageError } from '../errors.js';
-import { collect, emit } from './common.js';
+import { collect, emit, parseNumber } from './common.js';
 
 const num = (x: number) => (x === 0 ? '0' : x.toExponential(2));
 
@@ -20,10 +20,8 @@ export function checkCommand(program: Command): void {
     .option('--rtol <x>', 'relative tolerance for float outputs (integers must be exact)', '1e-5')
     .option('--json', 'machine-readable result')
     .action(async (dir: string, o: { against: string; data: string[]; samples: string; seed: string; rtol: string; json?: boolean }) => {
-      const n = Number(o.samples), rtol = Number(o.rtol), seed = Number(o.seed);
-      if (!(Number.isInteger(n) && n > 0)) throw usageError(`--samples takes a positive whole number, not '${o.samples}'`);
-      if (!(rtol >= 0)) throw usageError(`--rtol takes a number ≥ 0, not '${o.rtol}'`);
-      if (!Number.isInteger(seed)) throw usageError(`--seed takes a whole number, not '${o.seed}'`);
+      const n = parseNumber(o.samples, '--samples', { int: true, min: 1, max: 1_000_000 });
+      const rtol = parseNumber(o.rtol, '--rtol', { min: 0 }), seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
       const chain = await loadChain(dir);
       try {
         const inputs = chain.manifest.inputs;

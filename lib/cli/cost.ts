@@ -11,8 +11,9 @@ import { budgetMarkdown, budgetText, overLine, reorderMarkdown, reorderText, sto
 import { resolveTarget } from '../chip/target.js';
 import { budgetOf, type Budget } from '../chip/budget.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims, splitList, OverBudget } from './common.js';
-import { targetOptions } from './target-options.js';
+import { collect, emit, nameList, parseBatch, parseDims, OverBudget } from './common.js';
+import { modelReads, refuseInputsAsOutputs } from './guard.js';
+import { targetFile, targetOptions } from './target-options.js';
 
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
@@ -37,8 +38,9 @@ export function costCommand(program: Command): void {
       // Target options are checked before the model is read, so a typo fails fast.
       const target = resolveTarget(o);
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
+      const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const model = loadModel(file);
-      const opts = { cuts: splitList(o.cuts), dims: parseDims(o.dim), batch: Number(o.batch) };
+      refuseInputsAsOutputs([...modelReads(model, file), { file: targetFile(o.target), role: 'target profile' }], [o.out, o.saveReordered]);
       const shapes = await completeShapes(model, opts);
       let report = costModel(model, { ...opts, shapes });
       let costed = model, reorder: MemoryOrder | undefined;

@@ -98,6 +98,28 @@ export function readNpyHeader(file: string): NpyHeader {
   return withFd(file, (fd) => parseHeader(fd, file));
 }
 
+/** The header of a file of samples: at least one row, and values in each. */
+export function readDataHeader(file: string): NpyHeader {
+  const h = readNpyHeader(file);
+  if (!h.shape.length) throw err('holds a single value (a 0-d array), not rows of samples [N, …]', file);
+  if (h.rows === 0) throw err('holds no samples (0 rows)', file);
+  if (count(h.shape) === 0) throw err(`samples of shape [${h.shape.slice(1).join(', ')}] hold no values`, file);
+  return h;
+}
+
+/**
+ * The first non-finite value of a batch of float data (NaN or ±Infinity would be fitted and tuned as if
+ * they were measurements), as an error naming the file's row; integers are always finite.
+ */
+export function checkFinite(a: NpyArray | Float32Array, rows: number, startRow: number, file: string): void {
+  if (!(a instanceof Float32Array || a instanceof Float64Array || a instanceof Uint16Array)) return;
+  const half = a instanceof Uint16Array, per = a.length / rows;
+  for (let i = 0; i < a.length; i++) {
+    const v = half ? halfToNumber(a[i]) : a[i];
+    if (!Number.isFinite(v)) throw new OfframpError('data', `value ${v} (element ${i % per} of the row): data must be finite`, file, `row ${startRow + Math.floor(i / per)}`);
+  }
+}
+
 /** Consecutive batches of up to batchRows rows (along axis 0); each batch is a fresh buffer. */
 export function* npyBatches(file: string, batchRows: number): Generator<{ start: number; rows: number; shape: number[]; data: NpyArray }> {
   hostLE();
@@ -110,7 +132,9 @@ export function* npyBatches(file: string, batchRows: number): Generator<{ start:
       const rows = Math.min(batchRows, h.rows - start);
       const buf = new Uint8Array(rows * per * h.itemBytes);
       if (readFully(fd, buf, h.dataOffset + start * per * h.itemBytes) < buf.length) throw err('truncated while reading', file);
-      yield { start, rows, shape: h.shape.length ? [rows, ...rest] : [], data: new Ctor(buf.buffer, 0, rows * per) };
+      const data = new Ctor(buf.buffer, 0, rows * per);
+      checkFinite(data, rows, start, file);
+      yield { start, rows, shape: h.shape.length ? [rows, ...rest] : [], data };
     }
   } finally { fs.closeSync(fd); }
 }

@@ -1,11 +1,11 @@
 // emit-c on disk: read the manifest once (its bytes are what the banner's
 // sha256 names), take its policy unless one is given, write both files.
 import crypto from 'node:crypto';
+import fs from 'node:fs';
 import path from 'node:path';
 import { OfframpError } from '../errors.js';
 import type { Policy } from '../policy/index.js';
 import { writeAtomic } from '../util/atomic.js';
-import { ensureDir } from '../util/fsx.js';
 import { readManifestFile } from '../split/read.js';
 import { emitC, type EmitCOutput } from './c.js';
 
@@ -20,7 +20,7 @@ export function writeC(where: string, outDir: string, o: WriteCOptions = {}): Em
   const chosen = o.policy ?? (manifest.policy?.rule !== undefined ? { value: manifest.policy.rule, from: 'the manifest' } : undefined);
   if (!chosen) throw new OfframpError('usage', 'the manifest holds no policy yet (run offramp tune, or give --policy)', file);
 
-  ensureDir(outDir);
+  fs.mkdirSync(outDir, { recursive: true });
   const manifestName = path.relative(path.resolve(outDir), path.resolve(file)).split(path.sep).join('/');
   const out = emitC({
     manifest, manifestName, manifestSha256: crypto.createHash('sha256').update(bytes).digest('hex'),

@@ -2,6 +2,7 @@
 // code becomes words. Inputs must be regular files: a FIFO or a device would block
 // a read forever or never end, so it is refused before it is opened.
 import fs from 'node:fs';
+import path from 'node:path';
 import { OfframpError } from '../errors.js';
 
 const WORDS: Record<string, string> = {
@@ -66,9 +67,16 @@ export function openRegular(file: string, what = 'input'): number {
   try { return fs.openSync(file, 'r'); } catch (e) { throw fsError(e, file); }
 }
 
-/** A folder to write into: created when missing; an existing non-folder is refused. */
-export function ensureDir(dir: string): void {
-  const st = fs.statSync(dir, { throwIfNoEntry: false });
+/**
+ * A folder a command will write into, checked before any work (nothing is created here): an existing
+ * non-folder is refused, and so is a path whose nearest existing ancestor is not a writable folder.
+ */
+export function checkOutDir(dir: string): void {
+  const stat = (p: string) => { try { return fs.statSync(p, { throwIfNoEntry: false }); } catch (e) { throw fsError(e, dir); } };
+  const st = stat(dir);
   if (st && !st.isDirectory()) throw new OfframpError('usage', `is ${st.isFile() ? 'a file' : kindOf(st)}, not a folder to write into`, dir);
-  try { fs.mkdirSync(dir, { recursive: true }); } catch (e) { throw fsError(e, dir, 'cannot create the folder'); }
+  let at = path.resolve(dir), up = st;
+  while (!up) { at = path.dirname(at); up = stat(at); }
+  if (!up.isDirectory()) throw new OfframpError('usage', `cannot create a folder here: ${at} is a file`, dir);
+  try { fs.accessSync(at, fs.constants.W_OK); } catch (e) { throw fsError(e, dir, `cannot write into ${at}`); }
 }
