@@ -8,7 +8,7 @@ import { buildHtml, buildJson, buildText } from '../report/build.js';
 import { overLine, storedLabel } from '../report/budget.js';
 import { writeAtomic } from '../util/atomic.js';
 import { usageError } from '../errors.js';
-import { emit, OverBudget, parseNumber } from './common.js';
+import { emit, OverBudget, parseNumber, modelAction } from './common.js';
 import { targetFile, targetOptions } from './target-options.js';
 import { modelReads, refuseInputsAsOutputs } from './guard.js';
 import { loadModel } from '../graph/io.js';
@@ -43,7 +43,7 @@ export function buildCommand(program: Command): void {
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
     .option('--json', 'print the report as JSON (schema offramp-build/1)')
-    .action(async (file: string, o: BuildFlags) => {
+    .action(modelAction(async (file: string, o: BuildFlags) => {
       const target = resolveTarget(o);
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
@@ -69,5 +69,5 @@ export function buildCommand(program: Command): void {
       writeAtomic(path.join(o.out, 'report.html'), buildHtml(r));
       emit(o.json ? json : buildText(r) + `\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
-    });
+    }));
 }

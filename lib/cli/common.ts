@@ -70,14 +70,18 @@ export function parseFractions(v: string): number[] {
 export const collect = (v: string, prev: string[] = []) => [...prev, v];
 export const splitList = (v?: string): string[] => (v ? v.split(',').map((s) => s.trim()).filter(Boolean) : []);
 
-/** Run `f`; an OfframpError from it that names no file gets `file` (a library error about the data a command read). */
+/** Run `f`; an OfframpError from it that names no file (usage errors aside) gets `file`: the input it is about. */
 export function inFile<T>(file: string, f: () => T): T {
-  const fix = (e: unknown) => (e instanceof OfframpError && !e.file ? Object.assign(new OfframpError(e.kind, e.message, file, e.where), { stack: e.stack }) : e);
+  const fix = (e: unknown) => (e instanceof OfframpError && !e.file && e.kind !== 'usage' ? Object.assign(new OfframpError(e.kind, e.message, file, e.where), { stack: e.stack }) : e);
   let r: T;
   try { r = f(); } catch (e) { throw fix(e); }
   if (r instanceof Promise) return r.catch((e) => { throw fix(e); }) as T;
   return r;
 }
+
+/** A command action whose first argument is a model: errors of the analysis (a node, a dim) name that file. */
+export const modelAction = <A extends unknown[]>(f: (file: string, ...rest: A) => Promise<void> | void) =>
+  (file: string, ...rest: A) => inFile(file, () => f(file, ...rest));
 
 /** Print to stdout, or write atomically to a file. */
 export function emit(text: string, file?: string): void {

@@ -9,7 +9,7 @@ import { parseHead, parseLayout } from '../heads/spec.js';
 import { dataSource, readLabels } from '../heads/sources.js';
 import { si, table, toJson } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, nameList, parseDims, parseFractions, parseNumber } from './common.js';
+import { collect, emit, nameList, parseDims, parseFractions, parseNumber, modelAction } from './common.js';
 import { modelReads, refuseInputsAsOutputs } from './guard.js';
 import { progressBar } from './progress.js';
 
@@ -55,7 +55,7 @@ export function graftCommand(program: Command): void {
     .option('--held-out <share>', 'share of rows held out for early stopping and scoring', '0.1')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--json', `machine-readable report (schema ${GRAFT_SCHEMA})`)
-    .action(async (file: string, o: GraftCliOptions) => {
+    .action(modelAction(async (file: string, o: GraftCliOptions) => {
       if (!o.cuts === !o.at) throw usageError('give exactly one of --cuts and --at');
       const head = parseHead(o.head), layout = o.layout ? parseLayout(o.layout) : undefined;
       const seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
@@ -75,5 +75,5 @@ export function graftCommand(program: Command): void {
       });
       saveModel(r.model, o.out);
       emit(o.json ? graftJson(r, o.out) : graftText(r, o.out));
-    });
+    }));
 }

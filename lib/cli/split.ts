@@ -6,7 +6,7 @@ import { writeSplit } from '../split/manifest.js';
 import { exitCuts } from '../cuts/exits.js';
 import { bytes, si, table } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, nameList, parseBatch, parseDims, parseFractions } from './common.js';
+import { collect, emit, nameList, parseBatch, parseDims, parseFractions, modelAction } from './common.js';
 import { modelReads, refuseInputsAsOutputs } from './guard.js';
 import { checkOutDir } from '../util/fsx.js';
 
@@ -21,7 +21,7 @@ export function splitCommand(program: Command): void {
     .option('--reorder', 'reorder each stage file\'s nodes to lower its peak activation memory (the order an interpreter runs)')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
-    .action(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; reorder?: boolean; dim: string[]; batch: string }) => {
+    .action(modelAction(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; reorder?: boolean; dim: string[]; batch: string }) => {
       if (o.cuts !== undefined && o.at !== undefined) throw usageError('give one of --cuts and --at, not both');
       const named = o.cuts === undefined ? undefined : nameList(o.cuts, '--cuts'), fractions = o.at === undefined ? undefined : parseFractions(o.at);
       const opts = { dims: parseDims(o.dim), batch: parseBatch(o.batch) };
@@ -53,5 +53,5 @@ export function splitCommand(program: Command): void {
         for (const w of manifest.sharedWeights) lines.push(`  ${w.name} (${bytes(w.bytes)}) in stages ${w.stages.join(', ')}`);
       }
       emit(lines.join('\n') + '\n');
-    });
+    }));
 }

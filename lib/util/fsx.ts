@@ -51,7 +51,7 @@ function kindOf(st: fs.Stats): string {
 export function regularFile(file: string, what = 'input'): number {
   let st: fs.Stats;
   try { st = fs.statSync(file); } catch (e) { throw fsError(e, file); }
-  if (!st.isFile()) throw new OfframpError('io', `is ${kindOf(st)}, not a regular file; offramp reads ${what}s from regular files only`, file);
+  if (!st.isFile()) throw new OfframpError('io', `is ${kindOf(st)}, not a regular file (the ${what} must be a regular file)`, file);
   return st.size;
 }
 
