@@ -53,7 +53,7 @@ export function parseDims(list: string[] = []): Record<string, number> {
 /** A comma-separated list of names given to `option`: at least one, and no empty entries (`a,,b`, `,`). */
 export function nameList(v: string, option: string): string[] {
   const items = v.split(',').map((s) => s.trim());
-  if (!items.length || items.some((s) => !s)) throw usageError(`${option} takes a comma-separated list of names with no empty entries, not '${v}'`);
+  if (!items.length || items.some((s) => !s)) throw usageError(`${option} takes a comma-separated list with no empty entries, not '${v}'`);
   return items;
 }
 

@@ -30,7 +30,7 @@ const isCount = (x: unknown) => typeof x === 'number' && Number.isFinite(x) && x
 
 /** The fields the commands index into, checked for shape; returns the value typed. */
 export function checkManifest(m: unknown, file: string): Manifest {
-  const bad = (msg: string, where?: string) => new OfframpError('decode', `manifest ${msg}`, file, where);
+  const bad = (msg: string, where?: string) => new OfframpError('decode', where ? msg : `manifest ${msg}`, file, where);
   if (!isObj(m)) throw bad('is not a JSON object');
   if (m.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${String(m.schema)}', expected '${MANIFEST_SCHEMA}'`, file);
   const tensors = (v: unknown, what: string) => {
