@@ -72,7 +72,12 @@ export function openRegular(file: string, what = 'input'): number {
  * non-folder is refused, and so is a path whose nearest existing ancestor is not a writable folder.
  */
 export function checkOutDir(dir: string): void {
-  const stat = (p: string) => { try { return fs.statSync(p, { throwIfNoEntry: false }); } catch (e) { throw fsError(e, dir); } };
+  const stat = (p: string) => {
+    try { return fs.statSync(p, { throwIfNoEntry: false }); } catch (e) {
+      if ((e as NodeJS.ErrnoException).code === 'ENOTDIR') return undefined; // a file further up: found below
+      throw fsError(e, dir);
+    }
+  };
   const st = stat(dir);
   if (st && !st.isDirectory()) throw new OfframpError('usage', `is ${st.isFile() ? 'a file' : kindOf(st)}, not a folder to write into`, dir);
   let at = path.resolve(dir), up = st;
