@@ -39,7 +39,7 @@ describe('target profiles', () => {
     });
   });
   it.each([
-    ['missing.json', null, /no such target profile file/],
+    ['missing.json', null, /no such file/],
     ['notjson.json', '{ flashBytes: 1 ', /not valid JSON/],
     ['array.json', '[1,2]', /a target profile is a JSON object/],
     ['nofield.json', JSON.stringify({ flashBytes: 1024, ramBytes: 1024, clockMhz: 48 }), /field 'macsPerCycle' is missing/],

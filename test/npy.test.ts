@@ -126,7 +126,7 @@ describe('npy reader against numpy-written files', () => {
     fs.writeFileSync(bad, Buffer.concat([Buffer.from([0x93]), Buffer.from('NUMPY'), Buffer.from([4, 0, 0, 0])]));
     expectRefusal(bad, () => readNpy(bad), /format version 4\.0/);
     const none = path.join(d, 'none.npy');
-    expectRefusal(none, () => readNpy(none), /cannot open/);
+    expectRefusal(none, () => readNpy(none), /no such file/);
     fs.rmSync(d, { recursive: true });
   });
 });

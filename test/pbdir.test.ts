@@ -66,7 +66,7 @@ describe('TensorProto folders', () => {
   it('refuses with one line naming the file', () => {
     const d = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-pb-'));
     refusal(() => listDataSets(d), d, /no test_data_set_\* folders/);
-    refusal(() => listDataSets(path.join(d, 'nope')), path.join(d, 'nope'), /cannot read folder/);
+    refusal(() => listDataSets(path.join(d, 'nope')), path.join(d, 'nope'), /cannot read the folder: no such file/);
     const f = path.join(d, 'input_0.pb');
     write(f, { name: 'x', dataType: 1, dims: dims(3), rawData: new Uint8Array(8) });
     refusal(() => readTensorFile(f), f, /tensor x: raw_data has 8 bytes, dims \[3\] need 12/);

@@ -2,6 +2,8 @@
 // command-line options, a JSON profile file or a built-in profile by core class.
 import fs from 'node:fs';
 import { OfframpError } from '../errors.js';
+import { readRegular } from '../util/fsx.js';
+import { parseJsonText } from '../util/json.js';
 
 /** A decimal number held exactly: value = num / den. */
 export interface Ratio { num: bigint; den: bigint }
@@ -103,13 +105,9 @@ const FIELDS = ['name', 'flashBytes', 'ramBytes', 'clockMhz', 'macsPerCycle', 'i
 
 /** A profile file: a JSON object with flashBytes, ramBytes (numbers or size strings), clockMhz, macsPerCycle. */
 export function readTargetFile(file: string): Target {
-  let text: string;
-  try { text = fs.readFileSync(file, 'utf8'); } catch (e) {
-    throw new OfframpError('io', (e as NodeJS.ErrnoException).code === 'ENOENT' ? 'no such target profile file' : `cannot read: ${(e as Error).message}`, file);
-  }
-  let j: unknown;
-  try { j = JSON.parse(text); } catch (e) { throw new OfframpError('data', `not valid JSON: ${(e as Error).message}`, file); }
-  return targetFromJson(j, file);
+  const j = parseJsonText(readRegular(file, 'target profile').toString('utf8'), 'a target profile object');
+  if (!j.ok) throw new OfframpError('data', j.message, file);
+  return targetFromJson(j.value, file);
 }
 
 export function targetFromJson(j: unknown, file?: string): Target {

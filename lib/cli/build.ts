@@ -8,8 +8,11 @@ import { buildHtml, buildJson, buildText } from '../report/build.js';
 import { overLine, storedLabel } from '../report/budget.js';
 import { writeAtomic } from '../util/atomic.js';
 import { usageError } from '../errors.js';
-import { emit, OverBudget } from './common.js';
-import { targetOptions } from './target-options.js';
+import { emit, OverBudget, parseNumber, modelAction } from './common.js';
+import { targetFile, targetOptions } from './target-options.js';
+import { modelReads, refuseInputsAsOutputs } from './guard.js';
+import { loadModel } from '../graph/io.js';
+import { checkOutDir } from '../util/fsx.js';
 
 interface BuildFlags {
   data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head: string;
@@ -17,11 +20,14 @@ interface BuildFlags {
   int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean;
 }
 
-const whole = (v: string, what: string, min: number) => {
-  const x = Number(v);
-  if (!Number.isInteger(x) || x < min) throw usageError(`${what} takes a whole number ≥ ${min}, not '${v}'`);
-  return x;
+/** Sets of up to `exits` exits out of `candidates` cuts: what build tunes one by one. */
+const setCount = (candidates: number, exits: number) => {
+  let sets = 0, c = 1;
+  for (let k = 1; k <= Math.min(exits, candidates); k++) { c = (c * (candidates - k + 1)) / k; sets += c; }
+  return sets;
 };
+/** Build tunes every set of exits; past this many the run takes hours, not minutes. */
+const MAX_SETS = 5000;
 
 export function buildCommand(program: Command): void {
   targetOptions(program.command('build'))
@@ -37,17 +43,25 @@ export function buildCommand(program: Command): void {
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
     .option('--json', 'print the report as JSON (schema offramp-build/1)')
-    .action(async (file: string, o: BuildFlags) => {
+    .action(modelAction(async (file: string, o: BuildFlags) => {
       const target = resolveTarget(o);
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
-      const maxDrop = Number(o.maxDrop);
-      if (!(maxDrop >= 0)) throw usageError(`--max-drop takes percentage points ≥ 0, not '${o.maxDrop}'`);
+      const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
+      const maxExits = parseNumber(o.maxExits, '--max-exits', { int: true, min: 1, max: 16 });
+      const candidates = parseNumber(o.candidates, '--candidates', { int: true, min: 1, max: 64 });
+      const seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
+      if (setCount(candidates, maxExits) > MAX_SETS) throw usageError(`--candidates ${candidates} with --max-exits ${maxExits} makes ${setCount(candidates, maxExits)} sets of exits to tune; keep it under ${MAX_SETS}`);
+      const model = loadModel(file);
+      refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }, { file: targetFile(o.target), role: 'target profile' }], [], [
+        { dir: o.out, names: /^(model\.onnx|stage-\d+\.onnx|manifest\.json|report\.(json|html)|firmware)$/ },
+        { dir: path.join(o.out, 'firmware'), names: /^offramp_policy\.[ch]$/ },
+      ]);
+      checkOutDir(o.out);
       const tty = process.stderr.isTTY && !o.json;
       const started = Date.now();
       const r = await buildExits(file, {
         data: o.data, labels: o.labels, out: o.out, target, int8: o.int8, maxDrop,
-        maxExits: whole(o.maxExits, '--max-exits', 1), candidates: whole(o.candidates, '--candidates', 1),
-        head: parseHead(o.head), seed: whole(o.seed, '--seed', 0), reorder: o.reorder,
+        maxExits, candidates, head: parseHead(o.head), seed, reorder: o.reorder,
         progress: tty ? (step, detail) => process.stderr.write(`${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s  ${step.padEnd(8)} ${detail}\n`) : undefined,
       });
       const json = buildJson(r);
@@ -55,5 +69,5 @@ export function buildCommand(program: Command): void {
       writeAtomic(path.join(o.out, 'report.html'), buildHtml(r));
       emit(o.json ? json : buildText(r) + `\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
-    });
+    }));
 }

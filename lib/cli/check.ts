@@ -5,7 +5,7 @@ import { loadChain } from '../run/chain.js';
 import { checkAgreement, checkChain, npySamples, randomSamples } from '../run/check.js';
 import { table, toJson } from '../report/units.js';
 import { OfframpError, usageError } from '../errors.js';
-import { collect, emit } from './common.js';
+import { collect, emit, parseNumber } from './common.js';
 
 const num = (x: number) => (x === 0 ? '0' : x.toExponential(2));
 
@@ -21,11 +21,9 @@ export function checkCommand(program: Command): void {
     .option('--min-agreement <share>', 'quantized chains: least share of samples whose top-1 class matches the model (0 reports only)', '0')
     .option('--json', 'machine-readable result')
     .action(async (dir: string, o: { against: string; data: string[]; samples: string; seed: string; rtol: string; minAgreement: string; json?: boolean }) => {
-      const n = Number(o.samples), rtol = Number(o.rtol), seed = Number(o.seed), minAgreement = Number(o.minAgreement);
-      if (!(minAgreement >= 0 && minAgreement <= 1)) throw usageError(`--min-agreement takes a share between 0 and 1, not '${o.minAgreement}'`);
-      if (!(Number.isInteger(n) && n > 0)) throw usageError(`--samples takes a positive whole number, not '${o.samples}'`);
-      if (!(rtol >= 0)) throw usageError(`--rtol takes a number ≥ 0, not '${o.rtol}'`);
-      if (!Number.isInteger(seed)) throw usageError(`--seed takes a whole number, not '${o.seed}'`);
+      const n = parseNumber(o.samples, '--samples', { int: true, min: 1, max: 1_000_000 });
+      const rtol = parseNumber(o.rtol, '--rtol', { min: 0 }), seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
+      const minAgreement = parseNumber(o.minAgreement, '--min-agreement', { min: 0, max: 1 });
       const chain = await loadChain(dir);
       try {
         const inputs = chain.manifest.inputs;

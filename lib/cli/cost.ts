@@ -11,8 +11,9 @@ import { budgetMarkdown, budgetText, overLine, reorderMarkdown, reorderText, sto
 import { resolveTarget } from '../chip/target.js';
 import { budgetOf, type Budget } from '../chip/budget.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims, splitList, OverBudget } from './common.js';
-import { targetOptions } from './target-options.js';
+import { collect, emit, nameList, parseBatch, parseDims, OverBudget, modelAction } from './common.js';
+import { modelReads, refuseInputsAsOutputs } from './guard.js';
+import { targetFile, targetOptions } from './target-options.js';
 
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
@@ -33,12 +34,13 @@ export function costCommand(program: Command): void {
     .option('-o, --out <file>', 'write the report to a file instead of stdout')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
-    .action(async (file: string, o: CostFlags) => {
+    .action(modelAction(async (file: string, o: CostFlags) => {
       // Target options are checked before the model is read, so a typo fails fast.
       const target = resolveTarget(o);
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
+      const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const model = loadModel(file);
-      const opts = { cuts: splitList(o.cuts), dims: parseDims(o.dim), batch: Number(o.batch) };
+      refuseInputsAsOutputs([...modelReads(model, file), { file: targetFile(o.target), role: 'target profile' }], [o.out, o.saveReordered]);
       const shapes = await completeShapes(model, opts);
       let report = costModel(model, { ...opts, shapes });
       let costed = model, reorder: MemoryOrder | undefined;
@@ -65,5 +67,5 @@ export function costCommand(program: Command): void {
         const more = budget.over.length > 1 ? ` (and ${budget.over.length - 1} more)` : '';
         throw new OverBudget(`over budget: ${overLine(budget.over[0], label)}${more}`);
       }
-    });
+    }));
 }

@@ -9,7 +9,8 @@ import { parseHead, parseLayout } from '../heads/spec.js';
 import { dataSource, readLabels } from '../heads/sources.js';
 import { si, table, toJson } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims, parseFractions, splitList } from './common.js';
+import { collect, emit, nameList, parseDims, parseFractions, parseNumber, modelAction } from './common.js';
+import { modelReads, refuseInputsAsOutputs } from './guard.js';
 import { progressBar } from './progress.js';
 
 export const GRAFT_SCHEMA = 'offramp-graft/1';
@@ -19,11 +20,6 @@ interface GraftCliOptions {
   seed: string; l2: string; temperature: string; layout?: string; heldOut: string; dim: string[]; json?: boolean;
 }
 
-const num = (v: string, what: string, ok: (x: number) => boolean) => {
-  const x = Number(v);
-  if (!Number.isFinite(x) || !ok(x)) throw usageError(`${what} takes a number${what === '--seed' ? ' (a whole number ≥ 0)' : ''}, not '${v}'`);
-  return x;
-};
 
 
 const pct = (x: number | undefined) => (x === undefined || Number.isNaN(x) ? '-' : `${(100 * x).toFixed(1)}%`);
@@ -59,23 +55,25 @@ export function graftCommand(program: Command): void {
     .option('--held-out <share>', 'share of rows held out for early stopping and scoring', '0.1')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--json', `machine-readable report (schema ${GRAFT_SCHEMA})`)
-    .action(async (file: string, o: GraftCliOptions) => {
+    .action(modelAction(async (file: string, o: GraftCliOptions) => {
       if (!o.cuts === !o.at) throw usageError('give exactly one of --cuts and --at');
       const head = parseHead(o.head), layout = o.layout ? parseLayout(o.layout) : undefined;
-      const seed = num(o.seed, '--seed', (x) => Number.isInteger(x) && x >= 0 && x < 2 ** 32);
-      const l2 = num(o.l2, '--l2', (x) => x >= 0), temperature = num(o.temperature, '--temperature', (x) => x > 0);
-      const heldOut = num(o.heldOut, '--held-out', (x) => x >= 0 && x < 1);
+      const seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
+      const l2 = parseNumber(o.l2, '--l2', { min: 0 }), temperature = parseNumber(o.temperature, '--temperature', { min: 0, above: true });
+      const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, below: true });
+      const dims = parseDims(o.dim), fractions = o.at === undefined ? [] : parseFractions(o.at), named = o.cuts === undefined ? [] : nameList(o.cuts, '--cuts');
       const model = loadModel(file);
-      const shapes = await completeShapes(model, { dims: parseDims(o.dim), batch: 1 });
-      const cuts = o.cuts ? splitList(o.cuts) : cutsAtFractions(planCuts(model, shapes), parseFractions(o.at!)).map((c) => c.tensors[0].name);
+      refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.out]);
+      const shapes = await completeShapes(model, { dims, batch: 1 });
+      const cuts = o.cuts ? named : cutsAtFractions(planCuts(model, shapes), fractions).map((c) => c.tensors[0].name);
       const io = classifierIO(model, shapes);
       const data = dataSource(o.data, io.declared, io.sample);
-      const labels = o.labels ? readLabels(o.labels) : undefined;
+      const labels = o.labels ? readLabels(o.labels, { rows: data.rows, of: o.data, classes: io.classes }) : undefined;
       const r = await graftExits(model, data, {
         cuts, head, layout, labels, l2, temperature, seed, heldOut, shapes,
         progress: progressBar(!!process.stderr.isTTY && !o.json),
       });
       saveModel(r.model, o.out);
       emit(o.json ? graftJson(r, o.out) : graftText(r, o.out));
-    });
+    }));
 }

@@ -1,22 +1,26 @@
 // `offramp replay DIR --data X.npy`: the chain frame by frame under the tuned
 // (or a given) policy, with per-frame exits, MACs, results and scenes.
-import fs from 'node:fs';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { chainLayout, readLabels } from '../tune/chain-capture.js';
 import { replay, type ReplayResult } from '../tune/replay.js';
 import { checkPolicy, type Policy } from '../policy/policy.js';
 import { si, table, toJson } from '../report/units.js';
-import { OfframpError, usageError } from '../errors.js';
+import { OfframpError } from '../errors.js';
 import { emit } from './common.js';
+import { refuseInputsAsOutputs, splitReads } from './guard.js';
+import { readDataHeader } from '../data/npy.js';
+import { readRegular } from '../util/fsx.js';
+import { parseJsonText } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 
 /** --policy: inline JSON, or a JSON file. */
 function readPolicy(v: string): unknown {
-  const text = v.trim().startsWith('{') ? v : (() => {
-    try { return fs.readFileSync(v, 'utf8'); } catch { throw usageError(`--policy takes a policy as JSON or a JSON file; cannot read '${v}'`); }
-  })();
-  try { return JSON.parse(text); } catch (e) { throw usageError(`--policy is not valid JSON: ${(e as Error).message}`); }
+  const inline = v.trim().startsWith('{');
+  const text = inline ? v : readRegular(v, 'policy').toString('utf8');
+  const j = parseJsonText(text, 'a policy object');
+  if (!j.ok) throw new OfframpError(inline ? 'usage' : 'data', j.message, inline ? '--policy' : v);
+  return j.value;
 }
 
 export const replayCsv = (r: ReplayResult): string => {
@@ -48,11 +52,15 @@ export function replayCommand(program: Command): void {
     .option('--csv <file>', 'write one CSV row per frame')
     .option('--json', 'machine-readable result (schema offramp-replay/1)')
     .action(async (dir: string, o: { data: string; labels?: string; segments?: string; policy?: string; csv?: string; json?: boolean }) => {
-      const labels = o.labels ? readLabels(o.labels) : undefined;
-      const segments = o.segments ? readLabels(o.segments) : undefined;
       const chain = await loadChain(dir);
       try {
+        const policyFile = o.policy !== undefined && !o.policy.trim().startsWith('{') ? o.policy : undefined;
+        refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' },
+          { file: o.segments, role: 'segments' }, { file: policyFile, role: 'policy' }], [o.csv]);
         const layout = chainLayout(chain.manifest, chain.dir);
+        const rows = readDataHeader(o.data).rows;
+        const labels = o.labels ? readLabels(o.labels, { rows, of: o.data, classes: layout.classes }) : undefined;
+        const segments = o.segments ? readLabels(o.segments, { rows, of: o.data, what: 'segment id' }) : undefined;
         const raw = o.policy ? readPolicy(o.policy) : chain.manifest.policy?.rule;
         if (!raw) throw new OfframpError('usage', 'no policy in the manifest: run offramp tune first, or give --policy', chain.dir);
         const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');

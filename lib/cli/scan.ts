@@ -4,7 +4,8 @@ import { loadModel } from '../graph/io.js';
 import { rankCuts, scanModel, type Cut, type CutPlan } from '../cuts/scan.js';
 import { bytes, si, table, toJson } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims } from './common.js';
+import { collect, emit, parseBatch, parseDims, parseNumber, modelAction } from './common.js';
+import { modelReads, refuseInputsAsOutputs } from './guard.js';
 
 export const SCAN_SCHEMA = 'offramp-scan/1';
 
@@ -57,12 +58,15 @@ export function scanCommand(program: Command): void {
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
     .option('-o, --out <file>', 'write to a file instead of stdout')
-    .action(async (file: string, o: { top?: string; json?: boolean; dim: string[]; batch: string; out?: string }) => {
-      const top = o.top === undefined ? undefined : Number(o.top);
-      if (top !== undefined && !(Number.isInteger(top) && top > 0)) throw usageError(`--top takes a positive whole number, not '${o.top}'`);
-      const plan = await scanModel(loadModel(file), { dims: parseDims(o.dim), batch: Number(o.batch) });
+    .action(modelAction(async (file: string, o: { top?: string; json?: boolean; dim: string[]; batch: string; out?: string }) => {
+      // Ranking spreads N shares over the MACs: past a thousand rows a table says nothing more.
+      const top = o.top === undefined ? undefined : parseNumber(o.top, '--top', { int: true, min: 1, max: 1000 });
+      const opts = { dims: parseDims(o.dim), batch: parseBatch(o.batch) };
+      const model = loadModel(file);
+      refuseInputsAsOutputs(modelReads(model, file), [o.out]);
+      const plan = await scanModel(model, opts);
       const ranked = rankCuts(plan.candidates, top ?? Math.min(3, plan.candidates.length));
       const shown = top ? ranked.slice(0, top) : ranked;
       emit(o.json ? scanJson(plan, shown) : scanText(plan, shown), o.out);
-    });
+    }));
 }

@@ -6,7 +6,9 @@ import { writeSplit } from '../split/manifest.js';
 import { exitCuts } from '../cuts/exits.js';
 import { bytes, si, table } from '../report/units.js';
 import { usageError } from '../errors.js';
-import { collect, emit, parseDims, parseFractions, splitList } from './common.js';
+import { collect, emit, nameList, parseBatch, parseDims, parseFractions, modelAction } from './common.js';
+import { modelReads, refuseInputsAsOutputs } from './guard.js';
+import { checkOutDir } from '../util/fsx.js';
 
 export function splitCommand(program: Command): void {
   program.command('split')
@@ -19,14 +21,18 @@ export function splitCommand(program: Command): void {
     .option('--reorder', 'reorder each stage file\'s nodes to lower its peak activation memory (the order an interpreter runs)')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
-    .action(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; reorder?: boolean; dim: string[]; batch: string }) => {
-      if (o.cuts && o.at) throw usageError('give one of --cuts and --at, not both');
+    .action(modelAction(async (file: string, o: { cuts?: string; at?: string; out: string; json?: boolean; reorder?: boolean; dim: string[]; batch: string }) => {
+      if (o.cuts !== undefined && o.at !== undefined) throw usageError('give one of --cuts and --at, not both');
+      const named = o.cuts === undefined ? undefined : nameList(o.cuts, '--cuts'), fractions = o.at === undefined ? undefined : parseFractions(o.at);
+      const opts = { dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const model = loadModel(file);
+      refuseInputsAsOutputs(modelReads(model, file), [], [{ dir: o.out, names: /^(stage-\d+\.onnx|manifest\.json)$/ }]);
+      checkOutDir(o.out);
       // A grafted model already says where its stages end: one exit per stage.
-      const atExits = !o.cuts && !o.at ? exitCuts(model) : [];
-      if (!o.cuts && !o.at && !atExits.length) throw usageError('give --cuts or --at (the model has no exit heads to cut at)');
-      const plan = await scanModel(model, { dims: parseDims(o.dim), batch: Number(o.batch) });
-      const cuts = o.cuts || atExits.length ? [...(o.cuts ? splitList(o.cuts) : atExits)].map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, parseFractions(o.at!));
+      const atExits = !named && !fractions ? exitCuts(model) : [];
+      if (!named && !fractions && !atExits.length) throw usageError('give --cuts or --at (the model has no exit heads to cut at)');
+      const plan = await scanModel(model, opts);
+      const cuts = named || atExits.length ? (named ?? atExits).map((c) => resolveCut(plan, c)) : cutsAtFractions(plan, fractions!);
       const { manifest } = writeSplit(plan, cuts, o.out, file, { reorder: o.reorder });
       if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
       const rows = manifest.stages.map((s) => [
@@ -47,5 +53,5 @@ export function splitCommand(program: Command): void {
         for (const w of manifest.sharedWeights) lines.push(`  ${w.name} (${bytes(w.bytes)}) in stages ${w.stages.join(', ')}`);
       }
       emit(lines.join('\n') + '\n');
-    });
+    }));
 }

@@ -1,5 +1,6 @@
 // The chip a report is judged against: the same options on every command that budgets.
 import type { Command } from 'commander';
+import fs from 'node:fs';
 import { BUILTIN_TARGETS } from '../chip/target.js';
 
 export function targetOptions(c: Command): Command {
@@ -12,3 +13,6 @@ export function targetOptions(c: Command): Command {
     .option('--int8-macs-per-cycle <r>', 'sustained MACs per cycle for the int8 projection (default: --macs-per-cycle)')
     .option('--int8', 'judge the budget (and the exit code) on the int8 projection instead of the model as stored');
 }
+
+/** The profile file --target reads, if it names one rather than a built-in core class. */
+export const targetFile = (t?: string): string | undefined => (t && !Object.hasOwn(BUILTIN_TARGETS, t) && fs.existsSync(t) ? t : undefined);

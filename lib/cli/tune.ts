@@ -3,8 +3,9 @@
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
-import { captureCache, readLabels } from '../tune/chain-capture.js';
-import { readNpyHeader } from '../data/npy.js';
+import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
+import { readDataHeader } from '../data/npy.js';
+import { refuseInputsAsOutputs, splitReads } from './guard.js';
 import { progressBar } from './progress.js';
 import { tune, TUNE_KINDS, type FrameKind } from '../tune/search.js';
 import { tuneStream } from '../tune/stream.js';
@@ -12,14 +13,11 @@ import { STREAM_KINDS, type FramePolicy, type Policy, type StreamPolicy } from '
 import { tuneHtml, tuneJson, tuneText, type TuneReport } from '../report/tune.js';
 import type { TuneResult } from '../tune/search.js';
 import { usageError } from '../errors.js';
-import { emit, splitList } from './common.js';
+import { emit, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
 
-export const share = (v: string, what: string, lo: number, hi: number, open = false): number => {
-  const x = Number(v);
-  if (!(open ? x > lo && x < hi : x >= lo && x <= hi)) throw usageError(`${what} takes a number ${open ? 'strictly ' : ''}between ${lo} and ${hi}, not '${v}'`);
-  return x;
-};
+/** Threshold candidates per exit: the search grows with its square on two exits, so it is bounded. */
+export const MAX_GRID = 1024;
 
 export function tuneCommand(program: Command): void {
   program.command('tune')
@@ -36,29 +34,30 @@ export function tuneCommand(program: Command): void {
     .option('--json', 'machine-readable result (schema offramp-tune/1)')
     .option('--no-write', 'leave the manifest as it is')
     .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean }) => {
-      const maxDrop = share(o.maxDrop, '--max-drop', 0, 100);
-      const heldOut = share(o.heldOut, '--held-out', 0, 1, true);
-      const grid = Number(o.grid);
-      if (!(Number.isInteger(grid) && grid >= 2)) throw usageError(`--grid takes a whole number ≥ 2, not '${o.grid}'`);
-      const kinds = splitList(o.policy);
+      const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
+      const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
+      const grid = parseNumber(o.grid, '--grid', { int: true, min: 2, max: MAX_GRID });
+      const kinds = o.policy === undefined ? [] : nameList(o.policy, '--policy');
       for (const k of kinds) if (![...TUNE_KINDS, ...STREAM_KINDS].includes(k as never)) throw usageError(`unknown policy kind '${k}' (one of ${[...TUNE_KINDS, ...STREAM_KINDS].join(', ')})`);
       const frameKinds = kinds.filter((k) => TUNE_KINDS.includes(k as FrameKind)) as FrameKind[];
       const streamKinds = kinds.filter((k) => STREAM_KINDS.includes(k as StreamPolicy['kind'])) as StreamPolicy['kind'][];
       if (streamKinds.length && !o.stream) throw usageError(`${streamKinds.join(', ')} ${streamKinds.length > 1 ? 'are stream policies' : 'is a stream policy'}: add --stream`);
-      const labels = o.labels ? readLabels(o.labels) : undefined;
       const chain = await loadChain(dir);
       try {
+        refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.report]);
+        const layout0 = chainLayout(chain.manifest, chain.dir);
+        const total = readDataHeader(o.data).rows;
+        const labels = o.labels ? readLabels(o.labels, { rows: total, of: o.data, classes: layout0.classes }) : undefined;
         const bar = progressBar(!!process.stderr.isTTY && !o.json);
-        const total = readNpyHeader(o.data).rows;
         const { cache, layout } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
-        let result: TuneResult<Policy>;
-        if (!o.stream) result = tune(cache, layout.costs, { maxDrop, heldOut, grid, kinds: frameKinds.length ? frameKinds : undefined });
-        else {
+        // The tuner's own complaints (too few samples in a part) are about the data file.
+        const result: TuneResult<Policy> = inFile(o.data, () => {
+          if (!o.stream) return tune(cache, layout.costs, { maxDrop, heldOut, grid, kinds: frameKinds.length ? frameKinds : undefined });
           // the per-frame policy a scene change runs on: tuned on the same frames
           const frame = tune(cache, layout.costs, { maxDrop, heldOut, grid, kinds: frameKinds.length ? frameKinds : ['confidence'] });
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
-          result = tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined });
-        }
+          return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined });
+        });
         let written: string | undefined;
         if (o.write) {
           const c = result.chosen, f = result.full;

@@ -2,9 +2,9 @@
 // rank, big-endian u32 dims, then big-endian values (format as published with
 // the MNIST data; common practice). Gzipped files are inflated whole: the
 // largest of the family is ~47 MB unpacked.
-import fs from 'node:fs';
 import zlib from 'node:zlib';
 import { OfframpError } from '../errors.js';
+import { readRegular } from '../util/fsx.js';
 
 export type IdxData = Uint8Array | Int8Array | Int16Array | Int32Array | Float32Array | Float64Array;
 export interface Idx { type: number; dims: number[]; data: IdxData }
@@ -17,8 +17,7 @@ const TYPES: Record<number, [number, (v: DataView, o: number) => number, new (n:
 const err = (msg: string, file: string) => new OfframpError('data', msg, file);
 
 export function readIdx(file: string): Idx {
-  let buf: Uint8Array;
-  try { buf = fs.readFileSync(file); } catch (e) { throw err(`cannot read: ${(e as Error).message}`, file); }
+  let buf: Uint8Array = readRegular(file, 'data');
   if (buf[0] === 0x1f && buf[1] === 0x8b) {
     try { buf = zlib.gunzipSync(buf); } catch (e) { throw err(`bad gzip data: ${(e as Error).message}`, file); }
   }

@@ -6,6 +6,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import { OfframpError } from '../errors.js';
 import { writeAtomic } from '../util/atomic.js';
+import { openRegular } from '../util/fsx.js';
 import { FLOAT, DOUBLE, INT64, INT32, UINT8, INT8, FLOAT16, BOOL } from '../onnx/dtype.js';
 
 export interface NpyHeader {
@@ -34,8 +35,7 @@ function readFully(fd: number, buf: Uint8Array, pos: number): number {
 }
 
 function withFd<T>(file: string, f: (fd: number) => T): T {
-  let fd: number;
-  try { fd = fs.openSync(file, 'r'); } catch (e) { throw err(`cannot open: ${(e as Error).message}`, file); }
+  const fd = openRegular(file, 'data');
   try { return f(fd); } finally { fs.closeSync(fd); }
 }
 
@@ -49,6 +49,9 @@ function parseHeader(fd: number, file: string): NpyHeader {
   const start = major === 1 ? 10 : 12;
   if (got < start) throw err('truncated .npy header', file);
   const hlen = major === 1 ? dv.getUint16(8, true) : dv.getUint32(8, true);
+  const size = fs.fstatSync(fd).size;
+  // A header length from a corrupt file could ask for gigabytes: the file must hold it first.
+  if (start + hlen > size) throw err(`truncated .npy header: it claims ${hlen} bytes, the file has ${size - start} after the preamble`, file);
   const hb = new Uint8Array(hlen);
   if (readFully(fd, hb, start) < hlen) throw err('truncated .npy header', file);
   // 1.0/2.0 headers are latin1; 3.0 allows UTF-8 (structured field names).
@@ -81,7 +84,6 @@ function parseHeader(fd: number, file: string): NpyHeader {
   if (fortran && shape.filter((d) => d !== 1).length > 1) throw err('Fortran-order arrays are not supported; save with np.ascontiguousarray', file);
   const h: NpyHeader = { version: [major, minor], descr, dtype: k[0], shape, fortran, dataOffset: start + hlen, itemBytes: k[1], rows: shape.length ? shape[0] : 1 };
   const need = h.dataOffset + count(shape) * h.itemBytes;
-  const size = fs.fstatSync(fd).size;
   if (size < need) throw err(`truncated: header promises ${need} bytes (shape (${shape.join(', ')}) ${descr}), file has ${size}`, file);
   return h;
 }
@@ -96,12 +98,33 @@ export function readNpyHeader(file: string): NpyHeader {
   return withFd(file, (fd) => parseHeader(fd, file));
 }
 
+/** The header of a file of samples: at least one row, and values in each. */
+export function readDataHeader(file: string): NpyHeader {
+  const h = readNpyHeader(file);
+  if (!h.shape.length) throw err('holds a single value (a 0-d array), not rows of samples [N, …]', file);
+  if (h.rows === 0) throw err('holds no samples (0 rows)', file);
+  if (count(h.shape) === 0) throw err(`samples of shape [${h.shape.slice(1).join(', ')}] hold no values`, file);
+  return h;
+}
+
+/**
+ * The first non-finite value of a batch of float data (NaN or ±Infinity would be fitted and tuned as if
+ * they were measurements), as an error naming the file's row; integers are always finite.
+ */
+export function checkFinite(a: NpyArray | Float32Array, rows: number, startRow: number, file: string): void {
+  if (!(a instanceof Float32Array || a instanceof Float64Array || a instanceof Uint16Array)) return;
+  const half = a instanceof Uint16Array, per = a.length / rows;
+  for (let i = 0; i < a.length; i++) {
+    const v = half ? halfToNumber(a[i]) : a[i];
+    if (!Number.isFinite(v)) throw new OfframpError('data', `value ${v} (element ${i % per} of the row): data must be finite`, file, `row ${startRow + Math.floor(i / per)}`);
+  }
+}
+
 /** Consecutive batches of up to batchRows rows (along axis 0); each batch is a fresh buffer. */
 export function* npyBatches(file: string, batchRows: number): Generator<{ start: number; rows: number; shape: number[]; data: NpyArray }> {
   hostLE();
   if (!(Number.isInteger(batchRows) && batchRows > 0)) throw new OfframpError('usage', `batch rows must be a positive integer, got ${batchRows}`);
-  let fd: number;
-  try { fd = fs.openSync(file, 'r'); } catch (e) { throw err(`cannot open: ${(e as Error).message}`, file); }
+  const fd = openRegular(file, 'data');
   try {
     const h = parseHeader(fd, file);
     const rest = h.shape.slice(1), per = count(rest), Ctor = KINDS[h.descr.slice(1)][2];
@@ -109,7 +132,9 @@ export function* npyBatches(file: string, batchRows: number): Generator<{ start:
       const rows = Math.min(batchRows, h.rows - start);
       const buf = new Uint8Array(rows * per * h.itemBytes);
       if (readFully(fd, buf, h.dataOffset + start * per * h.itemBytes) < buf.length) throw err('truncated while reading', file);
-      yield { start, rows, shape: h.shape.length ? [rows, ...rest] : [], data: new Ctor(buf.buffer, 0, rows * per) };
+      const data = new Ctor(buf.buffer, 0, rows * per);
+      checkFinite(data, rows, start, file);
+      yield { start, rows, shape: h.shape.length ? [rows, ...rest] : [], data };
     }
   } finally { fs.closeSync(fd); }
 }

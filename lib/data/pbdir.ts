@@ -3,6 +3,7 @@
 import fs from 'node:fs';
 import path from 'node:path';
 import { OfframpError } from '../errors.js';
+import { fsError, readRegular } from '../util/fsx.js';
 import { decodeTensor } from '../onnx/codec.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
 import { dtypeInfo, dtypeName } from '../onnx/dtype.js';
@@ -19,9 +20,9 @@ const byIndex = (re: RegExp) => (a: string, b: string) => Number(re.exec(a)![1])
 /** The set folders of DIR in numeric order; DIR itself if it holds input_*.pb directly. */
 export function listDataSets(dir: string): string[] {
   let names: string[];
-  try { names = fs.readdirSync(dir); } catch (e) { throw err(`cannot read folder: ${(e as Error).message}`, dir); }
+  try { names = fs.readdirSync(dir); } catch (e) { throw fsError(e, dir, 'cannot read the folder'); }
   if (names.some((n) => /^input_\d+\.pb$/.test(n))) return [dir];
-  const sets = names.filter((n) => SET.test(n) && fs.statSync(path.join(dir, n)).isDirectory()).sort(byIndex(SET));
+  const sets = names.filter((n) => SET.test(n) && fs.statSync(path.join(dir, n), { throwIfNoEntry: false })?.isDirectory()).sort(byIndex(SET));
   if (!sets.length) throw err('no test_data_set_* folders and no input_*.pb files', dir);
   return sets.map((n) => path.join(dir, n));
 }
@@ -29,7 +30,9 @@ export function listDataSets(dir: string): string[] {
 /** input_0.pb, input_1.pb, … (or output_*) of one set, in index order. */
 export function setFiles(setDir: string, kind: 'input' | 'output' = 'input'): string[] {
   const re = new RegExp(`^${kind}_(\\d+)\\.pb$`);
-  return fs.readdirSync(setDir).filter((n) => re.test(n)).sort(byIndex(re)).map((n) => path.join(setDir, n));
+  let names: string[];
+  try { names = fs.readdirSync(setDir); } catch (e) { throw fsError(e, setDir, 'cannot read the folder'); }
+  return names.filter((n) => re.test(n)).sort(byIndex(re)).map((n) => path.join(setDir, n));
 }
 
 type Ctor = { new (buf: ArrayBuffer): PbData; BYTES_PER_ELEMENT: number };
@@ -68,8 +71,7 @@ export function tensorData(t: TensorProto, file: string): PbTensor {
 }
 
 export function readTensorFile(file: string): PbTensor {
-  let buf: Uint8Array;
-  try { buf = fs.readFileSync(file); } catch (e) { throw err(`cannot read: ${(e as Error).message}`, file); }
+  const buf: Uint8Array = readRegular(file, 'data');
   let t: TensorProto;
   try { t = decodeTensor(buf); } catch (e) { throw err(`not a TensorProto: ${(e as Error).message}`, file); }
   return tensorData(t, file);

@@ -4,9 +4,9 @@ import crypto from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
 import { OfframpError } from '../errors.js';
-import { MANIFEST_FILE, MANIFEST_SCHEMA, type Manifest } from '../split/manifest.js';
 import type { Policy } from '../policy/index.js';
 import { writeAtomic } from '../util/atomic.js';
+import { readManifestFile } from '../split/read.js';
 import { emitC, type EmitCOutput } from './c.js';
 
 export interface WriteCOptions {
@@ -16,15 +16,7 @@ export interface WriteCOptions {
 
 /** `where`: a split folder or its manifest.json. Returns what was written. */
 export function writeC(where: string, outDir: string, o: WriteCOptions = {}): EmitCOutput & { written: string[]; policyFrom: string } {
-  const file = fs.existsSync(where) && fs.statSync(where).isDirectory() ? path.join(where, MANIFEST_FILE) : where;
-  let bytes: Buffer;
-  try { bytes = fs.readFileSync(file); } catch (e) {
-    const code = (e as NodeJS.ErrnoException).code;
-    throw new OfframpError('io', code === 'ENOENT' ? 'no manifest here (run offramp split first)' : `cannot read: ${(e as Error).message}`, file);
-  }
-  let manifest: Manifest;
-  try { manifest = JSON.parse(bytes.toString('utf8')); } catch (e) { throw new OfframpError('decode', `not JSON: ${(e as Error).message}`, file); }
-  if (manifest?.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${manifest?.schema}', expected '${MANIFEST_SCHEMA}'`, file);
+  const { manifest, file, bytes } = readManifestFile(where);
   const chosen = o.policy ?? (manifest.policy?.rule !== undefined ? { value: manifest.policy.rule, from: 'the manifest' } : undefined);
   if (!chosen) throw new OfframpError('usage', 'the manifest holds no policy yet (run offramp tune, or give --policy)', file);
 

@@ -9,17 +9,14 @@ import { modelFromProto, modelToProto, type Model } from './ir.js';
 import { topoOrder } from './links.js';
 import { OfframpError } from '../errors.js';
 import { writeAtomic } from '../util/atomic.js';
+import { readRegular } from '../util/fsx.js';
 
 export interface LoadedModel extends Model { file?: string }
 
 export interface LoadOptions { /** skip the structure check (cycles, dangling inputs) */ unchecked?: boolean }
 
 export function loadModel(file: string, opts: LoadOptions = {}): LoadedModel {
-  let buf: Buffer;
-  try { buf = fs.readFileSync(file); } catch (e) {
-    throw new OfframpError('io', (e as NodeJS.ErrnoException).code === 'ENOENT' ? 'no such file' : `cannot read: ${(e as Error).message}`, file);
-  }
-  return parseModel(buf, file, opts);
+  return parseModel(readRegular(file, 'model'), file, opts);
 }
 
 export function parseModel(buf: Uint8Array, file?: string, opts: LoadOptions = {}): LoadedModel {

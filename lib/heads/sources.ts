@@ -2,14 +2,15 @@
 // of TensorProto files (test_data_set_*/input_0.pb), one set at a time.
 import fs from 'node:fs';
 import type { Dim } from '../graph/ir.js';
-import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
+import { checkFinite, npyBatches, readDataHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { listDataSets, readTensorFile, setFiles, type PbTensor } from '../data/pbdir.js';
 import { OfframpError } from '../errors.js';
+import { fsError } from '../util/fsx.js';
 import type { Batch } from './capture.js';
 import type { DataSource } from './fit-heads.js';
 
 export function npySource(file: string, modelInput: readonly Dim[]): DataSource {
-  const h = readNpyHeader(file);
+  const h = readDataHeader(file);
   sampleShape(h, modelInput, file);
   return {
     rows: h.rows,
@@ -30,12 +31,14 @@ export function pbSource(dir: string, sample: readonly number[]): DataSource {
   };
   const first = (set: string) => { const f = setFiles(set)[0]; if (!f) throw new OfframpError('data', 'no input_0.pb', set); return f; };
   const rows = sets.reduce((a, s) => { const f = first(s); return a + rowsOf(readTensorFile(f), f); }, 0);
+  if (!rows) throw new OfframpError('data', 'holds no samples (0 rows)', dir);
   return {
     rows,
     *batches(b): Generator<Batch> {
       let buf: Float32Array[] = [], n = 0;
       for (const s of sets) {
         const f = first(s), t = readTensorFile(f), r = rowsOf(t, f), x = pbFloat(t);
+        checkFinite(x, r, 0, f);
         for (let at = 0; at < r; at++) {
           buf.push(x.subarray(at * per, (at + 1) * per)); n++;
           if (n === b) { yield join(buf, n, per); buf = []; n = 0; }
@@ -55,5 +58,8 @@ function join(parts: Float32Array[], rows: number, per: number): Batch {
 /** Integer labels [N] from a .npy file. */
 export { readLabels } from '../data/labels.js';
 
-export const dataSource = (path: string, modelInput: readonly Dim[], sample: readonly number[]): DataSource =>
-  fs.statSync(path, { throwIfNoEntry: false })?.isDirectory() ? pbSource(path, sample) : npySource(path, modelInput);
+export function dataSource(path: string, modelInput: readonly Dim[], sample: readonly number[]): DataSource {
+  let st: fs.Stats | undefined;
+  try { st = fs.statSync(path, { throwIfNoEntry: false }); } catch (e) { throw fsError(e, path); }
+  return st?.isDirectory() ? pbSource(path, sample) : npySource(path, modelInput);
+}

@@ -4,6 +4,7 @@ import fs from 'node:fs';
 import path from 'node:path';
 import type { ModelProto, TensorProto, GraphProto } from './types.js';
 import { OfframpError } from '../errors.js';
+import { readRegular } from '../util/fsx.js';
 import { tensorByteSize } from './tensor.js';
 
 export const EXTERNAL = 1;
@@ -56,7 +57,7 @@ export function loadExternalData(m: ModelProto, modelFile: string): number {
     const where = `tensor '${t.name ?? ''}'`;
     const file = confinedPath(modelFile, loc);
     let buf = files.get(file);
-    if (!buf) { buf = fs.readFileSync(file); files.set(file, buf); }
+    if (!buf) { buf = readRegular(file, 'external data'); files.set(file, buf); }
     const offset = Number(entry(t, 'offset') ?? '0');
     const want = Number(tensorByteSize(t));
     const length = entry(t, 'length') !== undefined ? Number(entry(t, 'length')) : want;

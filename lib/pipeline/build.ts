@@ -132,8 +132,7 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const shapes = await completeShapes(model, { batch: 1 });
   const io = classifierIO(model, shapes);
   const all = dataSource(o.data, io.declared, io.sample);
-  const labels = o.labels ? readLabels(o.labels) : undefined;
-  if (labels && labels.length !== all.rows) throw new OfframpError('data', `${labels.length} labels for ${all.rows} rows of ${o.data}`, o.labels);
+  const labels = o.labels ? readLabels(o.labels, { rows: all.rows, of: o.data, classes: io.classes }) : undefined;
   if (all.rows < 8) throw new OfframpError('data', `${all.rows} rows: building needs at least 8 (half fit the heads, half tune the policy)`, o.data);
   const fitData: DataSource = rowsOfParity(all, io.sample, 0), tuneData: DataSource = rowsOfParity(all, io.sample, 1);
   const fitLabels = labels && labelsOfParity(labels, 0), tuneLabels = labels && labelsOfParity(labels, 1);

@@ -6,7 +6,9 @@ import fs from 'node:fs';
 import path from 'node:path';
 import crypto from 'node:crypto';
 import { openSyncSession, type OrtTensor, type SyncSession } from '../runtime/ort.js';
-import { MANIFEST_FILE, MANIFEST_SCHEMA, type Manifest } from '../split/manifest.js';
+import type { Manifest } from '../split/manifest.js';
+import { readManifestFile } from '../split/read.js';
+import { readRegular } from '../util/fsx.js';
 import { OfframpError } from '../errors.js';
 
 export interface ExitPoint { name: string; stage: number; value: OrtTensor }
@@ -32,14 +34,8 @@ export interface Chain {
 
 /** Read and check a manifest: a file, or a folder holding manifest.json. */
 export function readManifest(where: string): { manifest: Manifest; file: string } {
-  const file = fs.existsSync(where) && fs.statSync(where).isDirectory() ? path.join(where, MANIFEST_FILE) : where;
-  let m: Manifest;
-  try { m = JSON.parse(fs.readFileSync(file, 'utf8')); } catch (e) {
-    const code = (e as NodeJS.ErrnoException).code;
-    throw new OfframpError('io', code === 'ENOENT' ? 'no manifest here (run offramp split first)' : `not a readable manifest: ${(e as Error).message}`, file);
-  }
-  if (m?.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${m?.schema}', expected '${MANIFEST_SCHEMA}'`, file);
-  return { manifest: m, file };
+  const { manifest, file } = readManifestFile(where);
+  return { manifest, file };
 }
 
 export async function loadChain(manifestPath: string): Promise<Chain> {
@@ -50,7 +46,8 @@ export async function loadChain(manifestPath: string): Promise<Chain> {
     for (const s of manifest.stages) {
       const stageFile = path.join(dir, s.file);
       let bytes: Buffer;
-      try { bytes = fs.readFileSync(stageFile); } catch { throw new OfframpError('io', 'stage file is missing', stageFile); }
+      if (!fs.existsSync(stageFile)) throw new OfframpError('io', 'stage file is missing', stageFile);
+      bytes = readRegular(stageFile, 'stage');
       if (crypto.createHash('sha256').update(bytes).digest('hex') !== s.sha256) throw new OfframpError('io', 'stage file changed since the split (SHA-256 differs from the manifest)', stageFile);
       sessions.push(openSyncSession(bytes, stageFile));
     }

@@ -1,12 +1,12 @@
 // Chain against source: run both on the same inputs and measure the differences
 // per output. Integers must match exactly; floats within a relative tolerance,
 // magnitudes below 1 compared as 1 (so values near zero are held to rtol absolute).
-import fs from 'node:fs';
 import { openSyncSession, randomTensor, tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import { mulberry32 } from '../graph/build.js';
 import { dtypeByName } from '../onnx/dtype.js';
 import { halfToNumber, npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { OfframpError } from '../errors.js';
+import { readRegular } from '../util/fsx.js';
 import type { Chain } from './chain.js';
 import type { ManifestTensor } from '../split/manifest.js';
 
@@ -93,8 +93,7 @@ export interface CheckResult { samples: number; diffs: Diff[]; ok: boolean }
 
 /** Run the source model and the chain on each sample; `see` gets each source output the chain also made. */
 async function runBoth(chain: Chain, modelFile: string, samples: Sample[], see: (name: string, got: OrtTensor | undefined, want: OrtTensor) => void): Promise<void> {
-  let bytes: Buffer;
-  try { bytes = fs.readFileSync(modelFile); } catch { throw new OfframpError('io', 'no such file', modelFile); }
+  const bytes = readRegular(modelFile, 'model');
   // the runner's own session kind: same options and kernels as the awaited API, without its per-call hop
   const session = openSyncSession(bytes, modelFile);
   try {

@@ -2,7 +2,7 @@
 // keeping each exit's logits and the final output's in an ExitCache. Also what
 // the tuner needs from the manifest: exits in order, the final output, costs per exit.
 import { OfframpError } from '../errors.js';
-import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
+import { npyBatches, readDataHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import type { Chain } from '../run/chain.js';
 import type { Manifest } from '../split/manifest.js';
@@ -53,7 +53,7 @@ export { readLabels } from '../data/labels.js';
 /** Frames of a .npy as batch-1 tensors for the chain's input, one at a time. */
 export function* frames(m: Manifest, file: string, limit = Infinity): Generator<OrtTensor> {
   const t = m.inputs[0];
-  const shape = [1, ...sampleShape(readNpyHeader(file), t.shape, file)];
+  const shape = [1, ...sampleShape(readDataHeader(file), t.shape, file)];
   if (t.dtype !== 'float32') throw new OfframpError('data', `the chain input '${t.name}' is ${t.dtype}; tuning feeds float32`, file);
   let n = 0;
   for (const b of npyBatches(file, 256)) {
@@ -71,7 +71,7 @@ export function copyLogits(t: OrtTensor | undefined, name: string, classes: numb
 /** Run every sample of `data` through the whole chain; labels (when given) must count as many rows. */
 export async function captureCache(chain: Chain, data: string, labels?: Int32Array, onProgress?: (n: number) => void): Promise<{ cache: ExitCache; layout: ChainLayout }> {
   const layout = chainLayout(chain.manifest, chain.dir);
-  const rows = readNpyHeader(data).rows;
+  const rows = readDataHeader(data).rows;
   if (labels && labels.length !== rows) throw new OfframpError('data', `${labels.length} labels for ${rows} samples`, data);
   const E = layout.exits.length, C = layout.classes, names = [...layout.exits, layout.final];
   const logits = new Float32Array(rows * (E + 1) * C);
