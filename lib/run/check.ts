@@ -2,7 +2,8 @@
 // per output. Integers must match exactly; floats within a relative tolerance,
 // magnitudes below 1 compared as 1 (so values near zero are held to rtol absolute).
 import fs from 'node:fs';
-import { openSession, randomTensor, runSession, tensorFromData, type OrtTensor } from '../runtime/ort.js';
+import { loadModel } from '../graph/io.js';
+import { modelBytes, openSession, randomTensor, runSession, tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import { mulberry32 } from '../graph/build.js';
 import { dtypeByName } from '../onnx/dtype.js';
 import { halfToNumber, npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
@@ -93,9 +94,9 @@ export interface CheckResult { samples: number; diffs: Diff[]; ok: boolean }
 
 /** Run the source model and the chain on each sample; compare every source output. */
 export async function checkChain(chain: Chain, modelFile: string, samples: Sample[], tol: Tolerance = {}): Promise<CheckResult> {
-  let bytes: Buffer;
-  try { bytes = fs.readFileSync(modelFile); } catch { throw new OfframpError('io', 'no such file', modelFile); }
-  const session = await openSession(bytes, modelFile);
+  if (!fs.existsSync(modelFile)) throw new OfframpError('io', 'no such file', modelFile);
+  // Loaded by offramp, external data included (confined to the model's folder), then given inline.
+  const session = await openSession(modelBytes(loadModel(modelFile)), modelFile);
   const rows = new Map<string, Diff[]>();
   try {
     for (const s of samples) {
