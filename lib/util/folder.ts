@@ -96,28 +96,29 @@ export function clearStale(dir: string): void {
 
 const cleanups = new Set<() => void>();
 const SIGNALS = ['SIGINT', 'SIGTERM'] as const;
+let installed = false;
 
 function onSignal(sig: NodeJS.Signals): void {
   for (const c of [...cleanups].reverse()) { try { c(); } catch { /* the others still run */ } }
   cleanups.clear();
-  for (const s of SIGNALS) process.removeListener(s, onSignal);
   // With no other listener, the signal ends the process as it would have without us.
-  if (process.listenerCount(sig) === 0) process.kill(process.pid, sig);
+  if (process.listeners(sig).every((l) => l === onSignal)) {
+    for (const s of SIGNALS) process.removeListener(s, onSignal);
+    installed = false;
+    process.kill(process.pid, sig);
+  }
 }
 
 /**
- * Run `cleanup` if SIGINT or SIGTERM arrives before the returned function is called.
- * While any cleanup is registered the handlers are installed, which also defers a signal
- * to the end of the synchronous step in progress: a commit of renames is never cut short
- * by Ctrl-C.
+ * Run `cleanup` if SIGINT or SIGTERM arrives before the returned function is called. The
+ * handlers, once installed, stay: a signal that arrives during a synchronous step (a commit
+ * of renames) is handled after it, and must still end the process then, not be lost; with
+ * nothing to clean up, the handler passes the signal on to its usual course.
  */
 export function onInterrupt(cleanup: () => void): () => void {
-  if (!cleanups.size) for (const s of SIGNALS) process.on(s, onSignal);
+  if (!installed) { for (const s of SIGNALS) process.on(s, onSignal); installed = true; }
   cleanups.add(cleanup);
-  return () => {
-    cleanups.delete(cleanup);
-    if (!cleanups.size) for (const s of SIGNALS) process.removeListener(s, onSignal);
-  };
+  return () => { cleanups.delete(cleanup); };
 }
 
 /**
@@ -129,7 +130,9 @@ export function withFolder<T>(dir: string, work: () => T, cleanup: () => void = 
   const lock = lockFolder(dir);
   const all = () => { try { cleanup(); } finally { lock.release(); } };
   const off = onInterrupt(all);
-  const done = () => { off(); all(); };
+  // A signal that arrived during a synchronous step is still pending: one more turn of the event
+  // loop (the immediate) lets its handler run, where an idle loop would end the process first.
+  const done = () => { off(); all(); setImmediate(() => {}); };
   let r: T;
   try {
     clearStale(dir);
