@@ -34,7 +34,10 @@ export interface FolderLock { file: string; release(): void }
 export function lockFolder(dir: string): FolderLock {
   const lock = lockOf(dir);
   const mine = `${lock}.${process.pid}`;
-  try { fs.writeFileSync(mine, `${process.pid}\n`); } catch (e) { throw ioError(e, lock); }
+  try {
+    fs.mkdirSync(path.dirname(lock), { recursive: true });
+    fs.writeFileSync(mine, `${process.pid}\n`);
+  } catch (e) { throw ioError(e, lock); }
   try {
     for (let attempt = 0; ; attempt++) {
       try { fs.linkSync(mine, lock); break; } catch (e) { if ((e as NodeJS.ErrnoException).code !== 'EEXIST') throw ioError(e, lock); }
