@@ -8,6 +8,7 @@
 // exact and one-ulp logit ties, uniform vectors and exp underflow. The exp and
 // log inside the C are checked bit for bit against V8's Math.exp / Math.log.
 import { spawn, spawnSync } from 'node:child_process';
+import crypto from 'node:crypto';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
@@ -485,9 +486,19 @@ describe('offramp emit-c', () => {
     try { return { code: await main(args), err: err.join('') }; } finally { process.stderr.write = w; process.stdout.write = o; }
   };
 
+  /** The manifest in `dir`, with stage files whose SHA-256 it records. */
+  const withStages = (dir: string, m: ReturnType<typeof manifest>) => {
+    fs.mkdirSync(dir, { recursive: true });
+    for (const st of m.stages) {
+      const bytes = Buffer.from(`stage ${st.index} of ${dir}`);
+      fs.writeFileSync(path.join(dir, st.file), bytes);
+      st.sha256 = crypto.createHash('sha256').update(bytes).digest('hex');
+    }
+    fs.writeFileSync(path.join(dir, 'manifest.json'), JSON.stringify(m, null, 2));
+  };
+
   it('reads the manifest\'s policy, writes both files, byte-identical on a second run', async () => {
-    fs.mkdirSync(split, { recursive: true });
-    fs.writeFileSync(mfile, JSON.stringify(manifest(policy), null, 2));
+    withStages(split, manifest(policy));
     const out = path.join(tmp, 'cli-out');
     expect((await runCli(['emit-c', split, '-o', out])).code).toBe(0);
     const first = ['offramp_policy.h', 'offramp_policy.c'].map((f) => fs.readFileSync(path.join(out, f)));
@@ -500,8 +511,7 @@ describe('offramp emit-c', () => {
 
   it('--policy overrides (inline JSON or a file); without any policy it is a usage error', async () => {
     const bare = path.join(tmp, 'cli-bare');
-    fs.mkdirSync(bare);
-    fs.writeFileSync(path.join(bare, 'manifest.json'), JSON.stringify(manifest()));
+    withStages(bare, manifest());
     const out = path.join(tmp, 'cli-out2');
     const none = await runCli(['emit-c', bare, '-o', out]);
     expect(none.code).toBe(2);
@@ -519,5 +529,29 @@ describe('offramp emit-c', () => {
     const missing = await runCli(['emit-c', path.join(tmp, 'nowhere'), '-o', out]);
     expect(missing.code).toBe(1);
     expect(missing.err).toMatch(/no manifest here/);
+  });
+
+  it('checks the stage files against the manifest, as check and replay do; a failed run leaves OUTDIR as it was', async () => {
+    const dir = path.join(tmp, 'cli-tamper');
+    const m = manifest(policy);
+    withStages(dir, m);
+    const out = path.join(tmp, 'cli-out3', 'firmware');
+    fs.appendFileSync(path.join(dir, m.stages[1].file), 'x');
+    const changed = await runCli(['emit-c', dir, '-o', out]);
+    expect(changed.code).toBe(1);
+    expect(changed.err).toBe(`offramp: ${path.join(dir, m.stages[1].file)}: stage file changed since the split (SHA-256 differs from the manifest)\n`);
+    fs.rmSync(path.join(dir, m.stages[1].file));
+    const missing = await runCli(['emit-c', dir, '-o', out]);
+    expect(missing.code).toBe(1);
+    expect(missing.err).toContain('stage file is missing');
+    // Neither OUTDIR nor the folder above it was made.
+    expect(fs.existsSync(path.join(tmp, 'cli-out3'))).toBe(false);
+    // A policy the emitter refuses: no empty OUTDIR either.
+    withStages(dir, m);
+    const bad = await runCli(['emit-c', dir, '-o', out, '--policy', '{"kind":"margin","thresholds":[0.1]}']);
+    expect(bad.code).toBe(1);
+    expect(fs.existsSync(path.join(tmp, 'cli-out3'))).toBe(false);
+    expect((await runCli(['emit-c', dir, '-o', out])).code).toBe(0);
+    expect(fs.readdirSync(out).sort()).toEqual(['offramp_policy.c', 'offramp_policy.h']);
   });
 });

@@ -6,7 +6,6 @@ import { parseHead } from '../heads/spec.js';
 import { resolveTarget } from '../chip/target.js';
 import { buildHtml, buildJson, buildText } from '../report/build.js';
 import { overLine, storedLabel } from '../report/budget.js';
-import { writeAtomic } from '../util/atomic.js';
 import { usageError } from '../errors.js';
 import { emit, OverBudget, parseNumber, modelAction } from './common.js';
 import { targetFile, targetOptions } from './target-options.js';
@@ -35,7 +34,7 @@ export function buildCommand(program: Command): void {
     .argument('<model>', 'trained ONNX classifier (first output: logits)')
     .requiredOption('--data <file>', 'calibration inputs (.npy [N, …]); even rows fit the heads, odd rows tune the policy')
     .option('--labels <file>', 'integer labels .npy [N]; without them everything is judged against the model\'s own answers')
-    .requiredOption('-o, --out <dir>', 'output folder: model.onnx, stage files, manifest.json, report.html, report.json')
+    .requiredOption('-o, --out <dir>', 'output folder: grafted model, stage files, manifest.json, report.html, report.json, firmware/')
     .option('--max-drop <points>', 'accuracy the exits may cost, in percentage points', '1')
     .option('--max-exits <n>', 'most exits to place', '3')
     .option('--candidates <n>', 'candidate cuts to fit heads at', '6')
@@ -63,10 +62,10 @@ export function buildCommand(program: Command): void {
         data: o.data, labels: o.labels, out: o.out, target, int8: o.int8, maxDrop,
         maxExits, candidates, head: parseHead(o.head), seed, reorder: o.reorder,
         progress: tty ? (step, detail) => process.stderr.write(`${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s  ${step.padEnd(8)} ${detail}\n`) : undefined,
+        // The reports go in with the manifest they describe (after it), never beside another.
+        describe: (b) => [{ name: 'report.json', data: buildJson(b) }, { name: 'report.html', data: buildHtml(b) }],
       });
       const json = buildJson(r);
-      writeAtomic(path.join(o.out, 'report.json'), json);
-      writeAtomic(path.join(o.out, 'report.html'), buildHtml(r));
       emit(o.json ? json : buildText(r) + `\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
     }));

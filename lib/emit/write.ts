@@ -5,8 +5,9 @@ import fs from 'node:fs';
 import path from 'node:path';
 import { OfframpError } from '../errors.js';
 import type { Policy } from '../policy/index.js';
-import { writeAtomic } from '../util/atomic.js';
 import { readManifestFile } from '../split/read.js';
+import { writeAllAtomic } from '../util/atomic.js';
+import { verifyStageFiles } from '../split/commit.js';
 import { emitC, type EmitCOutput } from './c.js';
 
 export interface WriteCOptions {
@@ -20,12 +21,15 @@ export function writeC(where: string, outDir: string, o: WriteCOptions = {}): Em
   const chosen = o.policy ?? (manifest.policy?.rule !== undefined ? { value: manifest.policy.rule, from: 'the manifest' } : undefined);
   if (!chosen) throw new OfframpError('usage', 'the manifest holds no policy yet (run offramp tune, or give --policy)', file);
 
-  fs.mkdirSync(outDir, { recursive: true });
+  // The C describes these stage files: they must be the ones the manifest records (as check and replay insist).
+  verifyStageFiles(manifest, file);
   const manifestName = path.relative(path.resolve(outDir), path.resolve(file)).split(path.sep).join('/');
   const out = emitC({
     manifest, manifestName, manifestSha256: crypto.createHash('sha256').update(bytes).digest('hex'),
     policy: chosen.value as Policy, policyFrom: chosen.from, policyFile: chosen === o.policy ? o.policy.file ?? '--policy' : file,
   }, file);
-  const written = out.files.map((f) => { const target = path.join(outDir, f.name); writeAtomic(target, f.text); return target; });
+  // Both files or neither; OUTDIR is made only when they are written.
+  const written = out.files.map((f) => path.join(outDir, f.name));
+  writeAllAtomic(out.files.map((f, k) => ({ file: written[k], data: f.text })));
   return { ...out, written, policyFrom: chosen.from };
 }

@@ -2,9 +2,7 @@
 // pooled features exposed by the capture copy, so only [rows, features] tensors
 // leave the runtime. Input batches are consumed one at a time.
 import type { Model } from '../graph/ir.js';
-import { modelToProto } from '../graph/ir.js';
-import { encodeModel } from '../onnx/codec.js';
-import { openSession } from '../runtime/ort.js';
+import { modelBytes, openSession } from '../runtime/ort.js';
 import { forEachBatch, RowStore, type Batch } from '../runtime/batches.js';
 import type { Features } from '../fit/targets.js';
 import { captureModel, type HeadInput } from './graft.js';
@@ -27,7 +25,7 @@ export interface Captured { n: number; features: Features[]; final: Float32Array
 
 export async function captureFeatures(model: Model, heads: (HeadInput & { width: number })[], classes: number, batches: Iterable<Batch>, o: CaptureOptions): Promise<Captured> {
   const cap = captureModel(model, heads);
-  const session = await openSession(encodeModel(modelToProto(cap.model)), o.file);
+  const session = await openSession(modelBytes(cap.model), o.file);
   const stores = heads.map((h) => new RowStore(h.width));
   const final = new RowStore(classes);
   let n = 0;

@@ -25,6 +25,9 @@ import { budgetOf, type Budget } from '../chip/budget.js';
 import { writeC } from '../emit/write.js';
 import type { Target } from '../chip/target.js';
 import { OfframpError } from '../errors.js';
+import { writeAtomic } from '../util/atomic.js';
+import { scratchOf, withFolder } from '../util/folder.js';
+import { commitFolder, hashedName, sha256 } from '../split/commit.js';
 import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
 import { labelsOfParity, rowsOfParity } from './rows.js';
 
@@ -50,6 +53,8 @@ export interface BuildOptions {
   /** samples the staged chain is checked on against the model (default 16) */
   checkSamples?: number;
   progress?: (step: string, detail: string) => void;
+  /** files that describe the build (the reports), committed with it */
+  describe?: (r: BuildResult) => DescribingFile[];
 }
 
 export interface BuildResult {
@@ -68,9 +73,12 @@ export interface BuildResult {
   check: CheckResult;
   cost: CostReport;
   budget?: Budget;
+  /** SHA-256 of the manifest written: what the reports describe */
+  manifestSha256: string;
 }
 
-export const GRAFTED_FILE = 'model.onnx';
+/** the grafted model in DIR is model.<hash>.onnx (named by its content, as stage files are) */
+export const GRAFTED_STEM = 'model';
 /** where the C decision code goes, inside the build folder */
 export const FIRMWARE_DIR = 'firmware';
 
@@ -97,32 +105,31 @@ function stagedOrder(grafted: Model, stages: { nodes: number[] }[]): { model: Mo
   return { model: { ...grafted, graph: reorderGraph(grafted.graph, order) }, ends: ends.slice(0, -1) };
 }
 
+/** A file a build writes beside its manifest that describes it (the reports), rendered from the result. */
+export interface DescribingFile { name: string; data: string | Uint8Array }
+
 /**
- * Build into a scratch folder beside DIR, then move each file into DIR (the manifest last), so a
- * failed build leaves DIR as it was and a finished one never mixes with an earlier one's files.
- * Files in DIR that a build does not write are left alone.
+ * Build into a scratch folder beside DIR, holding DIR's lock, then move the files in with the
+ * manifest as the commit point (split/commit.ts): a failed or stopped build leaves DIR as it
+ * was, and DIR is whole at every instant. Files in DIR that a build does not write are left alone.
  */
 export async function buildExits(file: string, o: BuildOptions): Promise<BuildResult> {
   const final = path.resolve(o.out);
-  const target = path.join(final, GRAFTED_FILE);
-  if (fs.existsSync(target) && fs.realpathSync(target) === fs.realpathSync(file)) throw new OfframpError('io', 'refusing to overwrite the source model', target);
-  const work = `${final}.partial-${process.pid}`;
-  fs.rmSync(work, { recursive: true, force: true });
-  try {
-    const r = await buildInto(file, { ...o, out: work });
-    const rel = (f: string) => path.relative(work, f);
-    const moves = r.files.map(rel).sort((a, b) => Number(a === MANIFEST_FILE) - Number(b === MANIFEST_FILE));
-    fs.mkdirSync(final, { recursive: true });
-    for (const f of moves) {
-      fs.mkdirSync(path.dirname(path.join(final, f)), { recursive: true });
-      fs.renameSync(path.join(work, f), path.join(final, f));
-    }
-    // Stage files of an earlier build with more stages would outlive the manifest that named them.
-    for (let k = r.manifest.stages.length; fs.existsSync(path.join(final, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(final, `stage-${k}.onnx`));
-    return { ...r, dir: o.out, model: path.join(o.out, GRAFTED_FILE), files: moves.map((f) => path.join(o.out, f)) };
-  } finally {
+  const work = scratchOf(final);
+  return withFolder(final, async () => {
     fs.rmSync(work, { recursive: true, force: true });
-  }
+    const r = await buildInto(file, { ...o, out: work });
+    const rel = (f: string) => path.relative(work, f).split(path.sep).join('/');
+    const at = (f: string) => path.join(o.out, rel(f));
+    const done: BuildResult = {
+      ...r, dir: o.out, model: at(r.model), files: r.files.map(at),
+      manifestSha256: sha256(fs.readFileSync(path.join(work, MANIFEST_FILE))),
+    };
+    const describing = o.describe?.(done) ?? [];
+    for (const d of describing) writeAtomic(path.join(work, d.name), d.data);
+    commitFolder(work, final, [...r.files.map(rel), ...describing.map((d) => d.name)], MANIFEST_FILE, [file]);
+    return done;
+  }, () => fs.rmSync(work, { recursive: true, force: true }));
 }
 
 async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
@@ -156,15 +163,17 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const chosenCuts = placement.chosen.exits.map((k) => trialExits[k].cut);
 
   fs.mkdirSync(o.out, { recursive: true });
-  const modelFile = path.join(o.out, GRAFTED_FILE);
   say('graft', chosenCuts.join(', '));
   // The heads placement judged, not a refit: graftHeads numbers the exits anew.
-  saveModel(graftHeads(model, placement.chosen.exits.map((k) => trial.heads[k]), io.batch), modelFile);
+  const graftedTmp = path.join(o.out, `${GRAFTED_STEM}.onnx`);
+  saveModel(graftHeads(model, placement.chosen.exits.map((k) => trial.heads[k]), io.batch), graftedTmp);
+  const modelFile = path.join(o.out, hashedName(GRAFTED_STEM, fs.readFileSync(graftedTmp)));
+  fs.renameSync(graftedTmp, modelFile);
   const g = loadModel(modelFile);
 
   say('split', `${chosenCuts.length + 1} stages`);
   const gPlan = await scanModel(g, { batch: 1 });
-  const split = writeSplit(gPlan, exitCuts(g).map((c) => resolveCut(gPlan, c)), o.out, modelFile, { reorder: o.reorder });
+  const split = writeSplit(gPlan, exitCuts(g).map((c) => resolveCut(gPlan, c)), o.out, modelFile, { reorder: o.reorder, inScratch: true });
 
   say('tune', `policies on ${tuneData.rows} rows`);
   const captured = await captureExits(g, tuneData, tuneLabels);
@@ -203,6 +212,6 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   return {
     dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
-    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget,
+    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '',
   };
 }

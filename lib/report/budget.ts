@@ -3,7 +3,7 @@
 import type { CostReport } from '../cost/report.js';
 import type { MemoryOrder } from '../cost/reorder.js';
 import type { Budget, Fit, Over, Precision, StageCheck } from '../chip/budget.js';
-import { bytes, mdTable, si, table } from './units.js';
+import { bytes, mdTable, scaled, si, table } from './units.js';
 
 /** What the stored figures are: "float32" when every weight is, else "as stored". */
 export function storedLabel(r: CostReport): string {
@@ -11,13 +11,11 @@ export function storedLabel(r: CostReport): string {
   return types.length === 1 && types[0] === 'float32' ? 'float32' : 'as stored';
 }
 
-/** 1234567n ns → "1.23 ms". */
+/** 1234567n ns → "1.23 ms"; from 1000 s on, whole seconds in full. */
 export function duration(ns: bigint): string {
   const x = Number(ns);
-  if (x >= 1e9) return `${(x / 1e9).toPrecision(3)} s`;
-  if (x >= 1e6) return `${(x / 1e6).toPrecision(3)} ms`;
-  if (x >= 1e3) return `${(x / 1e3).toPrecision(3)} µs`;
-  return `${x} ns`;
+  if (x < 1e3) return `${x} ns`;
+  return scaled(x, [[1e3, 'µs'], [1e6, 'ms'], [1e9, 's']], (y) => y.toPrecision(3)) ?? `${(ns + 500_000_000n) / 1_000_000_000n} s`;
 }
 
 const pct = (p: number) => `${p >= 0 ? '+' : ''}${p.toFixed(2)}%`;

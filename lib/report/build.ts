@@ -5,7 +5,8 @@ import type { Policy } from '../policy/policy.js';
 import path from 'node:path';
 import { bytes, si, table, toJson } from './units.js';
 import { COLORS, esc, lineChart, barChart, type Series } from './svg.js';
-import { budgetText, storedLabel } from './budget.js';
+import { budgetText, duration, storedLabel } from './budget.js';
+import { MANIFEST_FILE } from '../split/manifest.js';
 
 export const BUILD_SCHEMA = 'offramp-build/1';
 
@@ -27,6 +28,8 @@ export function buildSummary(r: BuildResult) {
   return {
     source: r.source,
     model: r.model,
+    /** the manifest this report describes */
+    manifest: { file: MANIFEST_FILE, sha256: r.manifestSha256 },
     files: r.files.map((f) => path.relative(r.dir, f).split(path.sep).join('/')),
     exits: r.exits.map((e) => ({ output: e.output, cut: e.cut, head: e.head, macs: e.macs, params: e.params, fit: e.fit })),
     policy: r.policy.rule,
@@ -91,7 +94,7 @@ export function buildHtml(r: BuildResult): string {
   const stageRows = s.stages.map((st, k) => {
     const sb = b?.stages[k];
     const fit = sb ? (sb.fits ? 'fits' : '<b>over</b>') : '-';
-    const lat = sb ? `${(Number(sb.stored.latencyNs) / 1e6).toFixed(2)} ms` : '-';
+    const lat = sb ? duration(sb.stored.latencyNs) : '-';
     return `<tr><td>${esc(st.file)}</td><td>${si(st.macs)}</td><td>${bytes(st.weightBytes)}</td><td>${bytes(st.peakActivationBytes)}</td><td>${st.arenaBytes === null ? '-' : bytes(st.arenaBytes)}</td><td>${st.handoverBytes ? bytes(st.handoverBytes) : '-'}</td><td>${esc(st.exits.join(', ') || 'final')}</td><td>${pct(h.exitShare[k] ?? 0)}</td><td>${lat}</td><td>${fit}</td></tr>`;
   }).join('');
   const candRows = s.placement.candidates.map((c) => `<tr><td><code>${esc(c.cut)}</code></td><td>${pct(c.macFraction)}</td><td>${c.accuracy === null ? '-' : pct(c.accuracy)}</td><td>${pct(c.agreement)}</td><td>${s.exits.some((e) => e.cut === c.cut) ? 'yes' : ''}</td></tr>`).join('');
@@ -108,6 +111,7 @@ export function buildHtml(r: BuildResult): string {
 <li>Mean MACs per sample ${si(Math.round(h.meanMacs))} vs ${si(h.fullMacs)}: <b>${pct(h.saving)} saved</b>.</li>
 <li>Staged chain checked against the grafted model on ${s.check.samples} samples: ${s.check.ok ? 'identical outputs' : 'MISMATCH'} (max abs difference ${s.check.maxAbs}).</li>
 <li>Target: ${target}.</li>
+<li>Describes <code>${MANIFEST_FILE}</code> with SHA-256 <code class="manifest-sha256">${esc(s.manifest.sha256)}</code>.</li>
 </ul>
 <h2>Stages</h2>
 <table><tr><th>stage</th><th>MACs</th><th>weights</th><th>peak act.</th><th>arena</th><th>hands over</th><th>exit</th><th>leave here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>

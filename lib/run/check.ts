@@ -1,7 +1,8 @@
 // Chain against source: run both on the same inputs and measure the differences
 // per output. Integers must match exactly; floats within a relative tolerance,
 // magnitudes below 1 compared as 1 (so values near zero are held to rtol absolute).
-import { openSyncSession, randomTensor, tensorFromData, type OrtTensor } from '../runtime/ort.js';
+import { loadModel } from '../graph/io.js';
+import { modelBytes, openSyncSession, randomTensor, tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import { mulberry32 } from '../graph/build.js';
 import { dtypeByName } from '../onnx/dtype.js';
 import { halfToNumber, npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
@@ -93,9 +94,10 @@ export interface CheckResult { samples: number; diffs: Diff[]; ok: boolean }
 
 /** Run the source model and the chain on each sample; `see` gets each source output the chain also made. */
 async function runBoth(chain: Chain, modelFile: string, samples: Sample[], see: (name: string, got: OrtTensor | undefined, want: OrtTensor) => void): Promise<void> {
-  const bytes = readRegular(modelFile, 'model');
-  // the runner's own session kind: same options and kernels as the awaited API, without its per-call hop
-  const session = openSyncSession(bytes, modelFile);
+  readRegular(modelFile, 'model');
+  // Loaded by offramp, external data included (confined to the model's folder), then given inline;
+  // the runner's own session kind: same options and kernels as the awaited API, without its per-call hop.
+  const session = openSyncSession(modelBytes(loadModel(modelFile)), modelFile);
   try {
     for (const s of samples) {
       const want = session.run(s);

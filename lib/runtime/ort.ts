@@ -9,6 +9,7 @@ import { binding, initOrt } from 'onnxruntime-node/dist/binding.js';
 import type { Model, TensorType } from '../graph/ir.js';
 import { modelToProto, typeToProto } from '../graph/ir.js';
 import { encodeModel } from '../onnx/codec.js';
+import { placeTensors } from '../onnx/external.js';
 import { dtypeInfo } from '../onnx/dtype.js';
 import { tensorDims } from '../onnx/tensor.js';
 import type { TensorProto } from '../onnx/types.js';
@@ -66,6 +67,14 @@ export function openSyncSession(bytes: Uint8Array, file?: string): SyncSession {
   };
 }
 
+/**
+ * A model's bytes for a session: weights loaded from external data go inline (their
+ * data_location cleared), so the runtime never looks for files by itself.
+ */
+export function modelBytes(model: Model): Uint8Array {
+  return encodeModel(placeTensors(modelToProto(model)).model);
+}
+
 export const firstLine = (e: unknown) => String((e as Error)?.message ?? e).split('\n')[0];
 
 /** A zero-filled tensor of a concrete type. */
@@ -95,7 +104,7 @@ export async function measureShapes(
   const existing = new Set((g.output ?? []).map((o) => o.name));
   const extra = names.filter((n) => !existing.has(n));
   g.output = [...(g.output ?? []), ...extra.map((name) => ({ name }))];
-  const session = await openSession(encodeModel(proto), file);
+  const session = await openSession(encodeModel(placeTensors(proto).model), file);
   const feeds: Record<string, ort.Tensor> = {};
   for (const [name, t] of inputs) feeds[name] = zeros(t);
   let out: ort.InferenceSession.OnnxValueMapType;

@@ -1,7 +1,7 @@
-// Writing a split: stage-0.onnx … stage-K.onnx, then manifest.json (schema
-// offramp-manifest/1). Every file is written to a temp file and renamed; the
-// manifest goes last, so a manifest on disk always describes complete stages.
-import crypto from 'node:crypto';
+// Writing a split: stage-0.<hash>.onnx … stage-K.<hash>.onnx, then manifest.json (schema
+// offramp-manifest/1). Every file is written to a temp file and renamed; stage files are
+// named by their content and the manifest goes last (the commit point, split/commit.ts), so
+// the manifest on disk always names complete stages that exist, whenever the writer stops.
 import fs from 'node:fs';
 import path from 'node:path';
 import type { Model, TensorType } from '../graph/ir.js';
@@ -17,6 +17,9 @@ import { bytesFor, dtypeName } from '../onnx/dtype.js';
 import { tensorByteSize } from '../onnx/tensor.js';
 import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
+import { withFolder } from '../util/folder.js';
+import { placeTensors } from '../onnx/external.js';
+import { hashedName, removeDescribing, sha256, sweep } from './commit.js';
 import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
@@ -161,12 +164,12 @@ export function writeManifestPolicy(dir: string, policy: ManifestPolicy): Manife
 /** `stages`: each stage's nodes in the order its file runs them. */
 export interface SplitResult { manifest: Manifest; dir: string; files: string[]; stages: StagePlan[] }
 
-const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
-
 /** Split the plan's model at `cuts` into `dir`. `source` is the model file the plan was made from. */
 export interface SplitOptions {
   /** Reorder each stage file's nodes to lower its peak activation memory (the order an interpreter runs). */
   reorder?: boolean;
+  /** `dir` is a fresh scratch folder whose writer already holds the lock (offramp build) */
+  inScratch?: boolean;
 }
 
 /**
@@ -196,7 +199,15 @@ function stageArena(sm: Model, s: StagePlan, bytesOf: Map<string, bigint>): { by
   };
 }
 
+/**
+ * Split the plan's model at `cuts` into `dir`, holding the folder's lock (util/folder.ts):
+ * a second writer of the same folder is refused, never interleaved.
+ */
 export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: string, opts: SplitOptions = {}): SplitResult {
+  return opts.inScratch ? writeSplitFiles(plan, cuts, dir, source, opts) : withFolder(dir, () => writeSplitFiles(plan, cuts, dir, source, opts));
+}
+
+function writeSplitFiles(plan: CutPlan, cuts: Cut[], dir: string, source: string, opts: SplitOptions): SplitResult {
   const m = plan.model;
   const g = m.graph;
   const stages = planStages(plan, cuts);
@@ -224,31 +235,42 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
   const bytesOf = new Map(plan.ranges.map((r) => [r.name, r.bytes]));
   const files: string[] = [];
   const written: StagePlan[] = [];
-  const entries: ManifestStage[] = stages.map((s) => {
-    const file = `stage-${s.index}.onnx`;
-    const target = path.join(dir, file);
-    if (fs.existsSync(target) && fs.realpathSync(target) === sourceReal) throw new OfframpError('io', 'refusing to overwrite the source model', target);
-    let sm = stageModel(m, stageGraph(g, s, fileType), s, stages.length);
-    const ro = opts.reorder ? reorderStage(sm) : undefined;
-    if (ro) sm = ro.model;
-    // The stage file's node j is s.nodes[j]; callers get the plan in the order the file runs.
-    written.push(ro ? { ...s, nodes: ro.order.map((j) => s.nodes[j]) } : s);
-    const arena = stageArena(sm, s, bytesOf);
-    const bytes = encodeModel(modelToProto(sm));
-    if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
-    writeAtomic(target, bytes);
-    files.push(target);
-    return {
-      index: s.index, file, sha256: sha256(bytes), nodes: s.nodes.length,
-      inputs: s.inputs.map((i) => ({ ...tensor(i.name), from: i.from })),
-      outputs: s.outputs.map((o) => ({ ...tensor(o.name), to: o.to, modelOutput: o.modelOutput })),
-      exits: s.exits, cut: s.cut, macs: Number(s.macs),
-      macFraction: plan.totalMacs ? Number((s.macs * 1000000n) / plan.totalMacs) / 1e6 : 0,
-      weightBytes: Number(s.weightBytes), peakActivationBytes: Number(s.peakActivationBytes), arenaBytes: arena.bytes, handoverBytes: Number(s.handoverBytes),
-      arena: arena.plan,
-      ...(ro && { reorder: { before: Number(ro.before), after: Number(ro.after) } }),
-    };
-  });
+  // Stage files this call adds: removed again if the split fails before its manifest is in.
+  const added: string[] = [];
+  let entries: ManifestStage[];
+  try {
+    entries = stages.map((s) => {
+      let sm = stageModel(m, stageGraph(g, s, fileType), s, stages.length);
+      const ro = opts.reorder ? reorderStage(sm) : undefined;
+      if (ro) sm = ro.model;
+      // The stage file's node j is s.nodes[j]; callers get the plan in the order the file runs.
+      written.push(ro ? { ...s, nodes: ro.order.map((j) => s.nodes[j]) } : s);
+      const arena = stageArena(sm, s, bytesOf);
+      // Weights a source saved as external data are inline in the stage: placeTensors drops their
+      // external_data entries and data_location, or a runtime would look for the source's file.
+      const bytes = encodeModel(placeTensors(modelToProto(sm)).model);
+      const file = hashedName(`stage-${s.index}`, bytes);
+      const target = path.join(dir, file);
+      if (bytes.length > PROTO_LIMIT) throw new OfframpError('io', 'stage over 2 GiB: cut finer', target);
+      if (fs.existsSync(target) && fs.realpathSync(target) === sourceReal) throw new OfframpError('io', 'refusing to overwrite the source model', target);
+      // Same name, same bytes: a file already there is left as it is (the current manifest may name it).
+      if (!(fs.existsSync(target) && sha256(fs.readFileSync(target)) === sha256(bytes))) { writeAtomic(target, bytes); added.push(target); }
+      files.push(target);
+      return {
+        index: s.index, file, sha256: sha256(bytes), nodes: s.nodes.length,
+        inputs: s.inputs.map((i) => ({ ...tensor(i.name), from: i.from })),
+        outputs: s.outputs.map((o) => ({ ...tensor(o.name), to: o.to, modelOutput: o.modelOutput })),
+        exits: s.exits, cut: s.cut, macs: Number(s.macs),
+        macFraction: plan.totalMacs ? Number((s.macs * 1000000n) / plan.totalMacs) / 1e6 : 0,
+        weightBytes: Number(s.weightBytes), peakActivationBytes: Number(s.peakActivationBytes), arenaBytes: arena.bytes, handoverBytes: Number(s.handoverBytes),
+        arena: arena.plan,
+        ...(ro && { reorder: { before: Number(ro.before), after: Number(ro.after) } }),
+      };
+    });
+  } catch (e) {
+    for (const f of added) fs.rmSync(f, { force: true });
+    throw e;
+  }
 
   const holders = new Map<string, number[]>();
   for (const s of stages) {
@@ -273,9 +295,11 @@ export function writeSplit(plan: CutPlan, cuts: Cut[], dir: string, source: stri
       stageWeightBytes: entries.reduce((a, e) => a + e.weightBytes, 0),
     },
   };
+  // The reports of an earlier build describe the manifest about to be replaced.
+  removeDescribing(dir);
   writeAtomic(path.join(dir, MANIFEST_FILE), toJson(manifest) + '\n');
   files.push(path.join(dir, MANIFEST_FILE));
-  // Stage files of an earlier split into more stages would outlive the manifest that named them.
-  for (let k = entries.length; fs.existsSync(path.join(dir, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(dir, `stage-${k}.onnx`));
+  // Stage files of earlier splits would outlive the manifest that named them.
+  sweep(dir, manifest, [source]);
   return { manifest, dir, files, stages: written };
 }

@@ -1,9 +1,7 @@
 // The exit cache of a grafted model (one file, before splitting): one runtime pass with every
 // exit output and the final output gathered as rows, in exit order.
 import type { Model } from '../graph/ir.js';
-import { modelToProto } from '../graph/ir.js';
-import { encodeModel } from '../onnx/codec.js';
-import { openSession } from '../runtime/ort.js';
+import { modelBytes, openSession } from '../runtime/ort.js';
 import { forEachBatch, RowStore } from '../runtime/batches.js';
 import { completeShapes } from '../cost/analyze.js';
 import { classifierIO, type DataSource } from '../heads/fit-heads.js';
@@ -22,7 +20,7 @@ export async function captureExits(
   const k = io.classes, slots = exits.length + 1;
   const stores = [...exits.map(() => new RowStore(k)), new RowStore(k)];
   const names = [...exits.map((e) => e.output), io.final];
-  const session = await openSession(encodeModel(modelToProto(model)), model.file);
+  const session = await openSession(modelBytes(model), model.file);
   let n = 0;
   try {
     n = await forEachBatch(session, data.batches(io.fixedBatch ?? 64), { ...io, file: model.file }, (out, rows) => {

@@ -1,0 +1,82 @@
+// How a split or build folder changes without ever being inconsistent. The manifest is the
+// folder's index and its rename is the commit point:
+//   1. files holding content carry their hash in the name (stage-0.<16 hex>.onnx,
+//      model.<16 hex>.onnx), so new ones go in beside the files the current manifest names;
+//   2. files that describe the manifest (report.json, report.html, the firmware code: each
+//      names the manifest's SHA-256) are removed;
+//   3. the manifest is renamed in;
+//   4. the new describing files are renamed in;
+//   5. content files the new manifest does not name are removed.
+// Stopped at any point (SIGKILL included), the folder holds one manifest whose files all exist
+// with the SHA-256 it records, and describing files, where present, that describe it.
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
+import { OfframpError } from '../errors.js';
+
+export const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
+
+/** `stage-0` + bytes → `stage-0.<first 16 hex of the SHA-256>.onnx`: same bytes, same name. */
+export const hashedName = (stem: string, bytes: Uint8Array) => `${stem}.${sha256(bytes).slice(0, 16)}.onnx`;
+
+/** Files that describe one manifest: a split removes them, a build writes them anew. */
+export const DESCRIBING = ['report.json', 'report.html'];
+
+/** Content files of offramp's splits and builds (earlier versions' plain stage names included). */
+const CONTENT = /^(?:stage-\d+|model)\.[0-9a-f]{16}\.onnx$|^stage-\d+\.onnx$/;
+export const isContentFile = (name: string) => CONTENT.test(name);
+
+interface Named { stages: { file: string }[]; source: { file: string } }
+
+const real = (f: string) => { try { return fs.realpathSync(f); } catch { return path.resolve(f); } };
+
+/** Step 5: remove content files `manifest` does not name; never one of `keep` (the source model, say). */
+export function sweep(dir: string, manifest: Named, keep: string[] = []): void {
+  const named = new Set([...manifest.stages.map((s) => s.file), manifest.source.file]);
+  const kept = new Set(keep.map(real));
+  for (const f of fs.readdirSync(dir)) {
+    const p = path.join(dir, f);
+    if (isContentFile(f) && !named.has(f) && !kept.has(real(p))) fs.rmSync(p, { force: true });
+  }
+}
+
+/** Step 2. */
+export function removeDescribing(dir: string, more: string[] = []): void {
+  for (const f of new Set([...DESCRIBING, ...more])) fs.rmSync(path.join(dir, f), { force: true });
+}
+
+/**
+ * Move a finished folder's files (names relative to `from`, the manifest `manifestName`
+ * among them) into `dir` in the order above. Every other file is taken to describe the
+ * manifest. Runs synchronously: a SIGINT handler waits until it is done.
+ */
+export function commitFolder(from: string, dir: string, files: string[], manifestName: string, keep: string[] = []): void {
+  fs.mkdirSync(dir, { recursive: true });
+  const move = (f: string) => {
+    fs.mkdirSync(path.dirname(path.join(dir, f)), { recursive: true });
+    fs.renameSync(path.join(from, f), path.join(dir, f));
+  };
+  const content = files.filter(isContentFile);
+  const describing = files.filter((f) => f !== manifestName && !isContentFile(f));
+  content.forEach(move);
+  removeDescribing(dir, describing);
+  move(manifestName);
+  describing.forEach(move);
+  sweep(dir, JSON.parse(fs.readFileSync(path.join(dir, manifestName), 'utf8')) as Named, keep);
+}
+
+/**
+ * The stage files a manifest names, each inside the manifest's folder and with the SHA-256 the
+ * manifest records; the first that is not is an error naming it.
+ */
+export function verifyStageFiles(manifest: { stages: { file: string; sha256: string }[] }, manifestFile: string): void {
+  const dir = path.dirname(path.resolve(manifestFile));
+  for (const s of manifest.stages) {
+    const file = path.resolve(dir, String(s.file));
+    if (path.relative(dir, file).startsWith('..') || path.isAbsolute(path.relative(dir, file)))
+      throw new OfframpError('decode', `stage file '${s.file}' lies outside the manifest's folder`, manifestFile);
+    let bytes: Buffer;
+    try { bytes = fs.readFileSync(file); } catch { throw new OfframpError('io', 'stage file is missing', file); }
+    if (sha256(bytes) !== s.sha256) throw new OfframpError('io', 'stage file changed since the split (SHA-256 differs from the manifest)', file);
+  }
+}

@@ -1,0 +1,194 @@
+// build and split keep their output folder whole at every instant (issue 11, group 2): stopped
+// with SIGKILL before any one of their file changes, the folder holds the old result or the new
+// one, and passes the consistency check (manifest ↔ files' SHA-256 ↔ reports); SIGINT/SIGTERM
+// clean up scratch, temp and lock files; a live writer's lock is refused, a dead one's taken over.
+// The stops are made exact by a preloaded module (helpers/kill-at.mjs), not by timing.
+import { describe, it, expect, beforeAll } from 'vitest';
+import { spawn, spawnSync } from 'node:child_process';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { pathToFileURL } from 'node:url';
+import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
+import { saveModel } from '../lib/graph/io.js';
+import { writeNpy } from '../lib/data/npy.js';
+import { folderProblems, manifestSha, snapshot } from './helpers/folder-check.js';
+
+const BIN = path.resolve(import.meta.dirname, '../bin/offramp.js');
+const KILL = pathToFileURL(path.resolve(import.meta.dirname, 'helpers/kill-at.mjs')).href;
+let tmp: string, model: string, data: string;
+
+function run(args: string[], env: Record<string, string> = {}) {
+  const r = spawnSync(process.execPath, ['--import', KILL, BIN, ...args], { encoding: 'utf8', env: { ...process.env, NO_COLOR: '1', ...env } });
+  return { code: r.status, signal: r.signal, stdout: r.stdout, stderr: r.stderr };
+}
+
+/** `k` distinct entries of `from`, chosen by a seeded generator. */
+function pick<T>(from: T[], k: number, seed: number): T[] {
+  const rnd = mulberry32(seed), pool = [...from], out: T[] = [];
+  while (out.length < k && pool.length) out.push(pool.splice(Math.floor(rnd() * pool.length), 1)[0]);
+  return out;
+}
+
+/** Leftovers of writers of `dir` beside it: scratch folders and lock files. */
+const beside = (dir: string) => fs.readdirSync(path.dirname(dir)).filter((f) => f.startsWith(`${path.basename(dir)}.`));
+const temps = (dir: string) => snapshot(dir).map(([f]) => f).filter((f) => f.endsWith('.tmp'));
+
+function reset(dir: string, from: string): void {
+  for (const f of beside(dir)) fs.rmSync(path.join(path.dirname(dir), f), { recursive: true, force: true });
+  fs.rmSync(dir, { recursive: true, force: true });
+  fs.cpSync(from, dir, { recursive: true });
+}
+
+beforeAll(() => {
+  tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-whole-'));
+  // A tiny MLP classifier: a build of it takes about a second.
+  const b = modelBuilder({ opset: 17, seed: 5 });
+  let x = b.input('x', 1, ['N', 16]);
+  for (let i = 0; i < 3; i++) x = b.node('Relu', [b.node('MatMul', [x, b.init(`w${i}`, 1, [i ? 24 : 16, 24])])]);
+  b.output(b.node('MatMul', [x, b.init('wo', 1, [24, 4])]), 1, ['N', 4]);
+  model = path.join(tmp, 'mlp.onnx');
+  saveModel(b.build(), model);
+  const r = mulberry32(3);
+  data = path.join(tmp, 'x.npy');
+  writeNpy(data, Float32Array.from({ length: 32 * 16 }, () => r() * 2 - 1), [32, 16]);
+});
+
+/**
+ * The property: from a folder holding `base`'s result, `variant` is stopped before its k-th
+ * file change for seeded k; every time, the folder is whole and holds the old or the new result.
+ * Then the variant runs to the end over the leftovers of the last stop (a dead writer's lock and
+ * scratch) and gives exactly the folder an unstopped run gives.
+ */
+function killProperty(name: string, base: (out: string) => string[], variant: (out: string) => string[], points: (log: string[], dir: string) => number[]) {
+  const root = path.join(tmp, name);
+  fs.mkdirSync(root);
+  const first = path.join(root, 'first'), dir = path.join(root, 'out'), done = path.join(root, 'done');
+  expect(run(base(first)).code).toBe(0);
+  expect(folderProblems(first)).toEqual([]);
+  const oldSha = manifestSha(first);
+
+  const logFile = path.join(root, 'log');
+  reset(dir, first);
+  expect(run(variant(dir), { OFFRAMP_TEST_LOG: logFile }).code).toBe(0);
+  expect(folderProblems(dir)).toEqual([]);
+  const newSha = manifestSha(dir);
+  expect(newSha).not.toBe(oldSha);
+  fs.cpSync(dir, done, { recursive: true });
+  const log = fs.readFileSync(logFile, 'utf8').trimEnd().split('\n');
+
+  const stops = points(log, dir);
+  expect(stops.length).toBeGreaterThanOrEqual(6);
+  for (const k of stops) {
+    reset(dir, first);
+    const r = run(variant(dir), { OFFRAMP_TEST_KILL_AT: String(k) });
+    expect(r.signal, `stop before change ${k}: ${log[k - 1]}`).toBe('SIGKILL');
+    expect(folderProblems(dir), `stop before change ${k}: ${log[k - 1]}`).toEqual([]);
+    expect([oldSha, newSha], `stop before change ${k}: ${log[k - 1]}`).toContain(manifestSha(dir));
+  }
+  const r = run(variant(dir));
+  expect(r.stderr).toBe('');
+  expect(r.code).toBe(0);
+  expect(snapshot(dir)).toEqual(snapshot(done));
+  expect(beside(dir)).toEqual([]);
+}
+
+describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
+  it('build', () => {
+    const build = (extra: string[]) => (out: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '-o', out, ...extra];
+    // Mostly the changes inside DIR (the commit), a few anywhere (the scratch phase, the lock).
+    killProperty('build', build(['--seed', '1']), build(['--seed', '2', '--max-exits', '1']), (log, dir) => {
+      const all = log.map((_, i) => i + 1);
+      const inDir = all.filter((k) => log[k - 1].split(' ').slice(1).some((p) => p.startsWith(dir + path.sep)));
+      const inside = pick(inDir, 5, 11);
+      return [...inside, ...pick(all.filter((k) => !inside.includes(k)), 1, 12)];
+    });
+  });
+
+  it('split', () => {
+    killProperty('split', (out) => ['split', model, '--at', '20%,50%,80%', '-o', out], (out) => ['split', model, '--at', '40%', '-o', out],
+      (log) => pick(log.map((_, i) => i + 1), 6, 21));
+  });
+});
+
+describe('SIGINT and SIGTERM', () => {
+  it('build: stopped while building, DIR is as it was and no scratch, temp or lock file is left; stopped while committing, the commit completes first', () => {
+    const root = path.join(tmp, 'signals');
+    fs.mkdirSync(root);
+    const first = path.join(root, 'first'), dir = path.join(root, 'out');
+    const build = (out: string, seed: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '--seed', seed, '-o', out];
+    expect(run(build(first, '1')).code).toBe(0);
+    const logFile = path.join(root, 'log');
+    reset(dir, first);
+    expect(run(build(dir, '2'), { OFFRAMP_TEST_LOG: logFile }).code).toBe(0);
+    const newSha = manifestSha(dir);
+    const log = fs.readFileSync(logFile, 'utf8').trimEnd().split('\n');
+    const inScratch = log.findIndex((l) => l.includes(`${dir}.partial-`) && l.startsWith('renameSync')) + 1;
+    const manifestIn = log.findIndex((l) => l.startsWith('renameSync') && l.endsWith(path.join(dir, 'manifest.json'))) + 1;
+    expect(inScratch).toBeGreaterThan(0);
+    expect(manifestIn).toBeGreaterThan(inScratch);
+
+    for (const signal of ['SIGINT', 'SIGTERM']) {
+      reset(dir, first);
+      const before = snapshot(dir);
+      const r = run(build(dir, '2'), { OFFRAMP_TEST_KILL_AT: String(inScratch), OFFRAMP_TEST_SIGNAL: signal });
+      expect(r.signal).toBe(signal);
+      expect(snapshot(dir)).toEqual(before);
+      expect(beside(dir)).toEqual([]);
+      expect(temps(dir)).toEqual([]);
+    }
+    reset(dir, first);
+    const r = run(build(dir, '2'), { OFFRAMP_TEST_KILL_AT: String(manifestIn - 1), OFFRAMP_TEST_SIGNAL: 'SIGINT' });
+    expect(r.signal).toBe('SIGINT');
+    expect(folderProblems(dir)).toEqual([]);
+    expect(manifestSha(dir)).toBe(newSha);
+    expect(beside(dir)).toEqual([]);
+  });
+});
+
+describe('one writer per folder', () => {
+  const deadPid = () => spawnSync(process.execPath, ['-e', '']).pid!;
+
+  it('refuses while a live process holds the lock, takes over the lock of a dead one, clears dead writers\' scratch', () => {
+    const dir = path.join(tmp, 'locked');
+    expect(run(['split', model, '--at', '50%', '-o', dir]).code).toBe(0);
+    const before = snapshot(dir);
+    // A live holder: this test's own process.
+    fs.writeFileSync(`${dir}.lock`, `${process.pid}\n`);
+    const r = run(['split', model, '--at', '30%', '-o', dir]);
+    expect(r.code).toBe(1);
+    expect(r.stderr).toBe(`offramp: ${dir}: another offramp (pid ${process.pid}) is writing this folder; run again when it has finished\n`);
+    expect(snapshot(dir)).toEqual(before);
+    expect(fs.readFileSync(`${dir}.lock`, 'utf8')).toBe(`${process.pid}\n`);
+
+    const dead = deadPid();
+    fs.writeFileSync(`${dir}.lock`, `${dead}\n`);
+    fs.mkdirSync(`${dir}.partial-${dead}`);
+    fs.writeFileSync(path.join(`${dir}.partial-${dead}`, 'manifest.json'), '{}');
+    fs.writeFileSync(path.join(dir, `.stage-0.onnx.${dead}.1700000000000.tmp`), 'half');
+    fs.mkdirSync(`${dir}.partial-${process.pid}`); // a live writer's scratch stays
+    expect(run(['split', model, '--at', '30%', '-o', dir]).code).toBe(0);
+    expect(folderProblems(dir)).toEqual([]);
+    expect(beside(dir)).toEqual([`${path.basename(dir)}.partial-${process.pid}`]);
+    expect(temps(dir)).toEqual([]);
+  });
+
+  it('two splits into one folder at once: each finishes or is refused, never interleaved', async () => {
+    const dir = path.join(tmp, 'race');
+    const go = (at: string) => new Promise<{ code: number | null; stderr: string }>((resolve) => {
+      const p = spawn(process.execPath, [BIN, 'split', model, '--at', at, '-o', dir], { stdio: ['ignore', 'ignore', 'pipe'] });
+      let stderr = '';
+      p.stderr.on('data', (d) => { stderr += d; });
+      p.on('close', (code) => resolve({ code, stderr }));
+    });
+    for (let round = 0; round < 3; round++) {
+      const rs = await Promise.all([go('25%,50%,75%'), go('40%')]);
+      expect(rs.some((r) => r.code === 0)).toBe(true);
+      for (const r of rs) if (r.code !== 0) { expect(r.code).toBe(1); expect(r.stderr).toMatch(/is writing this folder/); }
+      expect(folderProblems(dir)).toEqual([]);
+      const m = JSON.parse(fs.readFileSync(path.join(dir, 'manifest.json'), 'utf8'));
+      expect(fs.readdirSync(dir).filter((f) => f.endsWith('.onnx')).sort()).toEqual(m.stages.map((s: { file: string }) => s.file).sort());
+      expect(beside(dir)).toEqual([]);
+    }
+  });
+});
