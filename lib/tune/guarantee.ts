@@ -28,6 +28,10 @@ export interface Guarantee {
   passed: number;
   /** for the boldest setting that failed: samples (or scenes) the same rates would need to pass */
   needed?: number;
+  /** the first setting the fixed sequence could not certify (one step bolder than what passed), percentage points */
+  next?: { policy: unknown; estimate: number; bound: number; needed?: number };
+  /** the chosen setting's observed drop with every threshold nudged one grid step cheaper, percentage points (robustness) */
+  nudged?: number;
   /** what the bound assumes, in words, for the reports */
   assumes: string[];
 }
