@@ -27,7 +27,11 @@ beforeAll(() => {
 
 describe('offramp tune and replay', () => {
   it('replay spends what tune predicted for the same frames', () => {
-    const t = JSON.parse(offramp(['tune', split, '--data', x, '--labels', y, '--held-out', '0.5', '--json']).stdout);
+    // 200 certifying samples support a promise of a few points, not of one (see the next test)
+    const t = JSON.parse(offramp(['tune', split, '--data', x, '--labels', y, '--held-out', '0.5', '--max-drop', '5', '--json']).stdout);
+    expect(t.schema).toBe('offramp-tune/2');
+    expect(t.guarantee.certified).toBe(true);
+    expect(t.guarantee.bound).toBeLessThanOrEqual(5);
     const r = offramp(['replay', split, '--data', x, '--labels', y, '--json']);
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
@@ -39,6 +43,18 @@ describe('offramp tune and replay', () => {
     expect(j.summary.accuracy).toBeCloseTo((c.tune.accuracy * c.tune.samples + c.held.accuracy * c.held.samples) / n, 9);
     const m = JSON.parse(fs.readFileSync(path.join(split, 'manifest.json'), 'utf8'));
     expect(j.policy).toEqual(m.policy.rule);
+    expect(m.policy.guarantee).toEqual(t.guarantee);
+  });
+  it('too few samples for the promise: the full model is kept, said in one line with the samples the next setting would need', () => {
+    const r = offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '1', '--confidence', '0.99', '--no-write']);
+    expect(r.code).toBe(0);
+    const line = r.stdout.split('\n').filter((l) => l.startsWith('not certified'));
+    expect(line).toHaveLength(1);
+    expect(line[0]).toMatch(/full model is kept; .* would need about \d+ samples|full model is kept; .* would not certify it|no setting cheaper/);
+    const j = JSON.parse(offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '1', '--confidence', '0.99', '--no-write', '--json']).stdout);
+    expect(j.guarantee.certified).toBe(false);
+    expect(j.guarantee.confidence).toBe(0.99);
+    expect(j.chosen.policy.thresholds.every((t: number | null) => t === null)).toBe(true);
   });
   it('bad input: one line naming the file, exit 1; usage errors exit 2', () => {
     const noExits = offramp(['tune', plain, '--data', x, '--labels', y]);
@@ -52,6 +68,15 @@ describe('offramp tune and replay', () => {
     expect(noPolicy.code).not.toBe(0);
     expect(noPolicy.stderr.trim().split('\n')).toHaveLength(1);
     expect(offramp(['tune', split, '--data', x, '--max-drop', 'lots']).code).toBe(2);
+    for (const c of ['0', '1', '95', 'high']) {
+      const bad = offramp(['tune', split, '--data', x, '--confidence', c]);
+      expect(bad.code).toBe(2);
+      expect(bad.stderr.trim().split('\n')).toHaveLength(1);
+      expect(bad.stderr).toMatch(/--confidence/);
+    }
+    const missing = offramp(['tune', split, '--data', x, '--labels', y, '--unlabelled', path.join(dir, 'none.npy')]);
+    expect(missing.code).toBe(1);
+    expect(missing.stderr).toContain('none.npy');
     expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"nonsense"}']).code).not.toBe(0);
   });
 });

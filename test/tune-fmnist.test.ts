@@ -9,6 +9,11 @@ import { readIdxImages, readIdxLabels } from '../lib/data/idx.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { mulberry32 } from '../lib/graph/build.js';
 import { offramp } from './helpers/cli.js';
+import { loadChain } from '../lib/run/chain.js';
+import { captureCache } from '../lib/tune/chain-capture.js';
+import { reachOf, rowsOf, viewOf, type ExitCache, type ExitCosts } from '../lib/tune/cache.js';
+import { tune } from '../lib/tune/search.js';
+import { argmax, chainFor, runFrame, type FramePolicy } from '../lib/policy/index.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
 const DIR = process.env.OFFRAMP_FMNIST ?? '/usr/share/datasets/fashion-mnist';
@@ -24,8 +29,10 @@ const json = (r: { code: number; stdout: string; stderr: string }) => {
 describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-tune-'));
   const split = path.join(tmp, 'split');
+  // every exit of every test image, captured once through the chain and shared by the certification checks
+  let cache: ExitCache, costs: ExitCosts;
   afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
-  beforeAll(() => {
+  beforeAll(async () => {
     const train = readIdxImages(`${DIR}/train-images-idx3-ubyte.gz`), trainY = readIdxLabels(`${DIR}/train-labels-idx1-ubyte.gz`);
     const test = readIdxImages(`${DIR}/t10k-images-idx3-ubyte.gz`), testY = readIdxLabels(`${DIR}/t10k-labels-idx1-ubyte.gz`);
     const N = 5000;
@@ -58,18 +65,72 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     if (g.code !== 0) throw new Error(g.stderr);
     const s = offramp(['split', path.join(tmp, 'grafted.onnx'), '-o', split]);
     if (s.code !== 0) throw new Error(s.stderr);
+    const chain = await loadChain(split);
+    try {
+      const c = await captureCache(chain, path.join(tmp, 'test.npy'), Int32Array.from(testY));
+      cache = c.cache; costs = c.layout.costs;
+    } finally { await chain.release(); }
+  }, 300_000);
+
+  /** Accuracy and mean MACs of a policy, and of the full model, on some test images (the runner's own walk). */
+  const onImages = (p: FramePolicy, idx: number[]) => {
+    const reach = reachOf(costs, cache.exits), ch = chainFor(p, reach, cache.exits, cache.classes), E1 = cache.exits + 1, C = cache.classes;
+    let right = 0, fullRight = 0, macs = 0;
+    for (const i of idx) {
+      const w = runFrame(p, ch, viewOf(cache, i));
+      right += w.label === cache.labels[i] ? 1 : 0;
+      macs += reach[w.exit] + w.overhead;
+      fullRight += argmax(cache.logits, (i * E1 + cache.exits) * C, C) === cache.labels[i] ? 1 : 0;
+    }
+    return { drop: ((fullRight - right) / idx.length) * 100, saving: 1 - macs / idx.length / reach[cache.exits] };
+  };
+
+  it('tuned on 400 labelled test images, the promise holds on the other 9600, block after block', () => {
+    // Fashion-MNIST's test set (Debian dataset-fashion-mnist) in 25 disjoint blocks of 400: each block tunes, the rest is new data.
+    // The promise is probabilistic (C = 0.95): over 25 blocks, 4 or more broken would have probability ≈ 3 % (binomial tail).
+    for (const maxDrop of [1, 3]) {
+      let broken = 0, certified = 0, saving = 0, worst = -Infinity;
+      for (let b = 0; b < 25; b++) {
+        const block = Array.from({ length: 400 }, (_, i) => b * 400 + i), rest = Array.from({ length: 10000 }, (_, i) => i).filter((i) => i < b * 400 || i >= (b + 1) * 400);
+        const r = tune(rowsOf(cache, block), costs, { maxDrop, grid: 16 });
+        const real = onImages(r.chosen.policy as FramePolicy, rest);
+        if (r.guarantee!.certified) { certified++; saving += real.saving; }
+        if (real.drop > maxDrop) broken++;
+        worst = Math.max(worst, real.drop);
+      }
+      console.log(`Fashion-MNIST, tuned on 400 samples, max drop ${maxDrop} pp: certified in ${certified} of 25 blocks (mean real saving ${certified ? ((saving / certified) * 100).toFixed(1) : '-'} %), ` +
+        `real drop on the other 9600 images at most ${worst.toFixed(2)} pp, broken in ${broken} of 25`);
+      expect(broken).toBeLessThanOrEqual(3);
+    }
   });
 
-  it('a policy within 1 point of the full model on the test set spends clearly fewer MACs', () => {
+  it('tuned on 5000 labelled test images, the real drop on the other 5000 stays within 1 point', () => {
+    const first = Array.from({ length: 5000 }, (_, i) => i), second = first.map((i) => i + 5000);
+    for (const [tuneOn, newData] of [[first, second], [second, first]]) {
+      const r = tune(rowsOf(cache, tuneOn), costs, { maxDrop: 1 });
+      const real = onImages(r.chosen.policy as FramePolicy, newData);
+      const g = r.guarantee!;
+      console.log(`Fashion-MNIST, tuned on 5000 samples: ${g.certified ? `certified bound ${g.bound.toFixed(2)} pp (observed ${g.estimate.toFixed(2)})` : 'not certified'}; ` +
+        `on the other 5000 images real drop ${real.drop.toFixed(2)} pp, real saving ${(real.saving * 100).toFixed(1)} % (${r.chosen.policy.kind})`);
+      expect(real.drop).toBeLessThanOrEqual(1);
+      // these linear heads (exits at 6 %, 53 % and 99.7 % of the MACs) certify a modest saving; see the test above for the rule
+      expect(g.certified).toBe(true);
+      expect(real.saving).toBeGreaterThan(0.1);
+    }
+  });
+
+  it('a certified policy (1 point) on the test set spends clearly fewer MACs; replay agrees with the tuner', () => {
     const r = json(offramp(['tune', split, '--data', path.join(tmp, 'test.npy'), '--labels', path.join(tmp, 'test_y.npy'), '--max-drop', '1', '--json', '--report', path.join(tmp, 'report.html')]));
     const full = r.full.held, chosen = r.chosen.held;
     console.log(`Fashion-MNIST tune: full ${(full.accuracy * 100).toFixed(2)} % at ${full.meanMacs} MACs; chosen ${r.chosen.policy.kind} ${(chosen.accuracy * 100).toFixed(2)} % at ${chosen.meanMacs.toFixed(0)} MACs: saving ${((1 - chosen.meanMacs / full.meanMacs) * 100).toFixed(1)} % (held-out ${chosen.samples} samples; ${r.settings} settings)`);
-    expect((full.accuracy - chosen.accuracy) * 100).toBeLessThanOrEqual(1);
+    expect(r.guarantee.certified).toBe(true);
+    expect(r.guarantee.bound).toBeLessThanOrEqual(1);
     expect(chosen.meanMacs).toBeLessThan(0.85 * full.meanMacs);
     const m = JSON.parse(fs.readFileSync(path.join(split, 'manifest.json'), 'utf8'));
     expect(m.policy.rule).toEqual(r.chosen.policy);
     const html = fs.readFileSync(path.join(tmp, 'report.html'), 'utf8');
     expect(html.match(/<svg /g)?.length).toBe(3);
+    expect(html).toContain('promise: drop ≤ 1 pp');
     expect(html).not.toMatch(/<script|src=|href=/);
     // replay through the runner spends what the tuner predicted on the same frames
     const p = json(offramp(['replay', split, '--data', path.join(tmp, 'test.npy'), '--labels', path.join(tmp, 'test_y.npy'), '--json', '--csv', path.join(tmp, 'frames.csv')]));

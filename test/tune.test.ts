@@ -9,13 +9,14 @@ import { syntheticCache, syntheticCosts } from './helpers/exit-cache.js';
 import { mulberry32 } from '../lib/graph/build.js';
 
 /**
- * Two exits, two classes, 100 samples in a period of 10 (so the even/odd split sees the same mix):
+ * Two exits, two classes, samples in a period of 10 (so the even/odd split sees the same mix):
  * A (6 in 10): confidence 0.99 and right at both exits; B1 (2): 0.7 wrong at exit 0, 0.8 right at exit 1;
  * B2 (2): 0.7 wrong at exit 0, 0.6 wrong at exit 1. The final output is always right (0.99).
  * Stages 10, 10, 80 MACs, heads inside the stages. A confidence decision on 2 classes costs 4·2 + 1 = 9.
+ * 4000 samples: 2000 certify, so a setting that loses no row has a bound of 1 − 0.025^(1/2000) ≈ 0.18 points.
  */
-function handCache(): ExitCache {
-  const N = 100, E = 2, C = 2;
+function handCache(N = 4000): ExitCache {
+  const E = 2, C = 2;
   const logits = new Float32Array(N * 3 * C);
   const labels = new Int32Array(N);
   const put = (i: number, k: number, conf: number, right: boolean) => {
@@ -36,8 +37,8 @@ function handCache(): ExitCache {
 const handCosts = { stage: [10, 10, 80], head: [0, 0] };
 
 describe('tune on a cache with a known optimum', () => {
-  it('maxDrop 0: A at exit 0, B1 at exit 1, B2 at the end: 0.6·19 + 0.2·38 + 0.2·118 = 42.6 MACs', () => {
-    const r = tune(handCache(), handCosts, { maxDrop: 0 });
+  it('maxDrop 1, no robustness filter: A at exit 0, B1 at exit 1, B2 at the end: 0.6·19 + 0.2·38 + 0.2·118 = 42.6 MACs, certified', () => {
+    const r = tune(handCache(), handCosts, { maxDrop: 1, robust: false });
     expect(r.full.held.accuracy).toBe(1);
     expect(r.full.held.meanMacs).toBe(100);
     expect(r.chosen.policy.kind).toBe('confidence');
@@ -47,25 +48,65 @@ describe('tune on a cache with a known optimum', () => {
     const th = r.chosen.policy.thresholds as number[];
     expect(th[0]).toBeGreaterThan(0.7); expect(th[0]).toBeLessThanOrEqual(0.99 + 1e-6);
     expect(th[1]).toBeGreaterThan(0.6); expect(th[1]).toBeLessThanOrEqual(0.8 + 1e-6);
+    const g = r.guarantee!;
+    expect(g.certified).toBe(true);
+    expect(g.estimate).toBe(0);
+    // no row lost of 2000: Clopper–Pearson upper limit at δ/2 is 1 − (δ/2)^(1/n) (closed form for k = 0)
+    expect(g.bound).toBeCloseTo((1 - 0.025 ** (1 / 2000)) * 100, 6);
+    expect(g.margin).toBeCloseTo(1 - g.bound, 12);
+    // every cheaper setting loses a fifth of the rows: the sequence stops right after the optimum
+    expect(g.next!.estimate).toBeGreaterThanOrEqual(20);
+    expect(g.needed).toBeUndefined();
   });
 
-  it('maxDrop 20: a static budget at exit 1 (20 MACs, no decisions) beats every thresholded setting (≥ 23)', () => {
-    const r = tune(handCache(), handCosts, { maxDrop: 20 });
+  it('with the robustness filter, the optimum sits on a cliff (one step cheaper loses B at exit 0): a dearer setting whose neighbour holds', () => {
+    const r = tune(handCache(), handCosts, { maxDrop: 1 });
+    expect(r.guarantee!.certified).toBe(true);
+    expect(r.chosen.held.meanMacs).toBeGreaterThan(42.6);
+    expect(r.chosen.held.meanMacs).toBeLessThan(100);
+    expect(r.chosen.cert!.nudged).toBeLessThanOrEqual(1);
+    expect(r.guarantee!.nudged).toBe(r.chosen.cert!.nudged);
+  });
+
+  it('maxDrop 23: a static budget at exit 1 (20 MACs, drop 20 points, bound ≈ 21.8) beats every thresholded setting (≥ 23)', () => {
+    const r = tune(handCache(), handCosts, { maxDrop: 23 });
     expect(r.chosen.policy).toEqual({ kind: 'budget', thresholds: [], budget: 20 });
     expect(r.chosen.held.meanMacs).toBe(20);
     expect(r.chosen.held.accuracy).toBeCloseTo(0.8, 12);
-    // confidence alone: A at exit 0 (19), B at exit 1 (38): 26.6
-    expect(r.kinds.find((k) => k.kind === 'confidence')!.chosen.held.meanMacs).toBeCloseTo(26.6, 10);
+    expect(r.guarantee!.estimate).toBeCloseTo(20, 9);
+    // paired bound: Clopper–Pearson upper limit of 400 lost in 2000 at δ/2 = 0.025 (normal approximation ≈ 21.75; from memory)
+    expect(r.guarantee!.bound).toBeGreaterThan(21.5);
+    expect(r.guarantee!.bound).toBeLessThan(22.2);
+  });
+
+  it('too few rows: nothing cheaper than the full model is certified, the full model is kept, with the rows the next setting would need', () => {
+    const r = tune(handCache(100), handCosts, { maxDrop: 1 });
+    const g = r.guarantee!;
+    expect(g.certified).toBe(false);
+    expect(r.chosen.policy).toEqual({ kind: 'confidence', thresholds: [null, null] });
+    expect(g.bound).toBe(0);
+    expect(g.passed).toBe(0);
+    expect(g.tested).toBe(1);
+    // the first setting tested loses nothing; with no row lost the bound 1 − 0.025^(1/n) reaches 1 % at n ≥ ln 40 / −ln 0.99 ≈ 367
+    expect(g.next!.estimate).toBe(0);
+    expect(g.needed).toBeGreaterThanOrEqual(367);
+    expect(g.needed).toBeLessThan(380);
+  });
+
+  it('--confidence outside (0, 1) is a usage error', () => {
+    for (const confidence of [0, 1, 1.5, -0.1, NaN]) expect(() => tune(handCache(100), handCosts, { confidence })).toThrow(/confidence/);
   });
 });
 
 describe('tune on synthetic caches', () => {
-  it('never returns a setting above maxDrop on the held-out part', () => {
-    for (const seed of [1, 2, 3]) for (const maxDrop of [0, 0.5, 1, 3]) {
+  it('every setting the fixed sequence passed has its bound within maxDrop; the chosen one is among them or the full model', () => {
+    for (const seed of [1, 2, 3]) for (const maxDrop of [0.5, 1, 3]) {
       const r = tune(syntheticCache(2000, 3, 5, seed), syntheticCosts(3), { maxDrop, grid: 16 });
-      expect((r.full.held.accuracy - r.chosen.held.accuracy) * 100).toBeLessThanOrEqual(maxDrop + 1e-9);
-      expect((r.full.tune.accuracy - r.chosen.tune.accuracy) * 100).toBeLessThanOrEqual(maxDrop + 1e-9);
-      for (const k of r.kinds) expect((r.full.held.accuracy - k.chosen.held.accuracy) * 100).toBeLessThanOrEqual(maxDrop + 1e-9);
+      const pts = r.kinds.flatMap((k) => k.front);
+      for (const p of pts) if (p.cert!.passed) expect(p.cert!.bound).toBeLessThanOrEqual(maxDrop);
+      expect(pts.filter((p) => p.cert!.passed)).toHaveLength(r.guarantee!.passed);
+      if (r.guarantee!.certified) expect(r.chosen.cert!.passed).toBe(true);
+      else expect(r.chosen).toBe(r.full);
       expect(r.chosen.held.meanMacs).toBeLessThanOrEqual(r.full.held.meanMacs);
     }
   });
@@ -75,7 +116,7 @@ describe('tune on synthetic caches', () => {
     const costs = syntheticCosts(4);
     const reach = reachOf(costs, 4);
     const r = tune(c, costs, { maxDrop: 1, grid: 12 });
-    const held = splitParts(c.samples, 0.5, 'interleave').held;
+    const held = splitParts(c.samples, 0.5, 'interleave').held; // the certification part
     let checked = 0;
     for (const k of r.kinds) for (const pt of k.front.filter((_, i) => i % 5 === 0)) {
       const p = pt.policy as FramePolicy;

@@ -2,3 +2,4 @@ export { logGamma, incompleteBeta, betaQuantile, binomialCdf, clopperPearsonUppe
 export { hoeffdingBentkusP, hoeffdingBentkusUpper } from './bentkus.js';
 export { dropBound, rowsNeeded, type PairedCounts, type AgreementCounts, type DropBound } from './drop.js';
 export { fixedSequence, type Sequence } from './sequence.js';
+export type { Guarantee } from './guarantee.js';

@@ -16,7 +16,7 @@ import { checkOutDir } from '../util/fsx.js';
 interface BuildFlags {
   data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head: string;
   seed: string; json?: boolean; target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string;
-  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean;
+  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean; confidence: string; unlabelled?: string;
 }
 
 /** Sets of up to `exits` exits out of `candidates` cuts: what build tunes one by one. */
@@ -36,30 +36,33 @@ export function buildCommand(program: Command): void {
     .option('--labels <file>', 'integer labels .npy [N]; without them everything is judged against the model\'s own answers')
     .requiredOption('-o, --out <dir>', 'output folder: grafted model, stage files, manifest.json, report.html, report.json, firmware/')
     .option('--max-drop <points>', 'accuracy the exits may cost, in percentage points', '1')
+    .option('--confidence <C>', 'the promise holds with probability at least C over the draw of the data', '0.95')
+    .option('--unlabelled <file>', 'extra inputs without labels (.npy): they tighten the bound on disagreement with the full model')
     .option('--max-exits <n>', 'most exits to place', '3')
     .option('--candidates <n>', 'candidate cuts to fit heads at', '6')
     .option('--head <kind>', 'linear, mlp:H or conv:C', 'linear')
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
-    .option('--json', 'print the report as JSON (schema offramp-build/1)')
+    .option('--json', 'print the report as JSON (schema offramp-build/2)')
     .action(modelAction(async (file: string, o: BuildFlags) => {
       const target = resolveTarget(o);
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
+      const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
       const maxExits = parseNumber(o.maxExits, '--max-exits', { int: true, min: 1, max: 16 });
       const candidates = parseNumber(o.candidates, '--candidates', { int: true, min: 1, max: 64 });
       const seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
       if (setCount(candidates, maxExits) > MAX_SETS) throw usageError(`--candidates ${candidates} with --max-exits ${maxExits} makes ${setCount(candidates, maxExits)} sets of exits to tune; keep it under ${MAX_SETS}`);
       const model = loadModel(file);
-      refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }, { file: targetFile(o.target), role: 'target profile' }], [], [
-        { dir: o.out, names: /^(model\.onnx|stage-\d+\.onnx|manifest\.json|report\.(json|html)|firmware)$/ },
+      refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }, { file: o.unlabelled, role: 'unlabelled data' }, { file: targetFile(o.target), role: 'target profile' }], [], [
+        { dir: o.out, names: /^((model|stage-\d+)(\.[0-9a-f]{16})?\.onnx|manifest\.json|report\.(json|html)|firmware)$/ },
         { dir: path.join(o.out, 'firmware'), names: /^offramp_policy\.[ch]$/ },
       ]);
       checkOutDir(o.out);
       const tty = process.stderr.isTTY && !o.json;
       const started = Date.now();
       const r = await buildExits(file, {
-        data: o.data, labels: o.labels, out: o.out, target, int8: o.int8, maxDrop,
+        data: o.data, labels: o.labels, out: o.out, target, int8: o.int8, maxDrop, confidence, unlabelled: o.unlabelled,
         maxExits, candidates, head: parseHead(o.head), seed, reorder: o.reorder,
         progress: tty ? (step, detail) => process.stderr.write(`${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s  ${step.padEnd(8)} ${detail}\n`) : undefined,
         // The reports go in with the manifest they describe (after it), never beside another.

@@ -2,8 +2,9 @@
 // (or a given) policy, with per-frame exits, MACs, results and scenes.
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
-import { chainLayout, readLabels } from '../tune/chain-capture.js';
-import { replay, type ReplayResult } from '../tune/replay.js';
+import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
+import { replay, withDrop, type ReplayResult } from '../tune/replay.js';
+import { argmax } from '../policy/index.js';
 import { checkPolicy, type Policy } from '../policy/policy.js';
 import { si, table, toJson } from '../report/units.js';
 import { OfframpError } from '../errors.js';
@@ -38,6 +39,8 @@ function replayText(r: ReplayResult): string {
     table(['frames', 'accuracy', 'mean MACs', 'full MACs', 'saving', 'scenes', 'reused'], [[String(s.frames), s.accuracy === undefined ? '-' : pct(s.accuracy), si(s.meanMacs), si(s.fullMacs), pct(s.saving), String(s.scenes), pct(s.reusedShare)]]),
     '',
     table(['exit', 'share'], s.exitShare.map((x, k) => [r.exits[k], pct(x)])),
+    ...(s.drop === undefined ? [] : ['', `observed drop ${s.drop.toFixed(2)} pp against the full model (${pct(s.fullAccuracy!)}) on these frames` +
+      (s.promise ? `; promised ≤ ${s.promise.maxDrop} pp at ${+(s.promise.confidence * 100).toFixed(4)} % confidence: ${s.promise.kept ? 'kept' : 'BROKEN'}` : '')]),
   ].join('\n') + '\n';
 }
 
@@ -64,7 +67,15 @@ export function replayCommand(program: Command): void {
         const raw = o.policy ? readPolicy(o.policy) : chain.manifest.policy?.rule;
         if (!raw) throw new OfframpError('usage', 'no policy in the manifest: run offramp tune first, or give --policy', chain.dir);
         const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');
-        const r = await replay(chain, layout, policy, o.data, { labels, segments });
+        let r = await replay(chain, layout, policy, o.data, { labels, segments });
+        if (labels) {
+          // the full model's answers on the same frames, batched: the drop the promise is about
+          const { cache } = await captureCache(chain, o.data);
+          const E1 = cache.exits + 1, C = cache.classes;
+          let right = 0;
+          for (let i = 0; i < cache.samples; i++) if (argmax(cache.logits, (i * E1 + cache.exits) * C, C) === labels[i]) right++;
+          r = { ...r, summary: withDrop(r.summary, cache.samples ? right / cache.samples : 0, o.policy ? undefined : chain.manifest.policy?.guarantee) };
+        }
         if (o.csv) writeAtomic(o.csv, replayCsv(r));
         // per-frame rows go to --csv: a JSON of every frame would dwarf the summary scripts read
         emit(o.json ? toJson({ schema: 'offramp-replay/1', data: o.data, policy: r.policy, exits: r.exits, summary: r.summary }) + '\n' : replayText(r));

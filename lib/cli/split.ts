@@ -26,7 +26,7 @@ export function splitCommand(program: Command): void {
       const named = o.cuts === undefined ? undefined : nameList(o.cuts, '--cuts'), fractions = o.at === undefined ? undefined : parseFractions(o.at);
       const opts = { dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const model = loadModel(file);
-      refuseInputsAsOutputs(modelReads(model, file), [], [{ dir: o.out, names: /^(stage-\d+\.onnx|manifest\.json)$/ }]);
+      refuseInputsAsOutputs(modelReads(model, file), [], [{ dir: o.out, names: /^(stage-\d+(\.[0-9a-f]{16})?\.onnx|manifest\.json)$/ }]);
       checkOutDir(o.out);
       // A grafted model already says where its stages end: one exit per stage.
       const atExits = !named && !fractions ? exitCuts(model) : [];

@@ -28,13 +28,16 @@ export function tuneCommand(program: Command): void {
     .option('--max-drop <pp>', 'accuracy the policy may lose against the full model, percentage points', '1')
     .option('--policy <list>', `policy kinds to tune: ${[...TUNE_KINDS, ...STREAM_KINDS].join(', ')} (default: all per-frame kinds, or both stream kinds with --stream)`)
     .option('--stream', 'tune the stream policies (difference, agreeing) on the data as an ordered sequence')
-    .option('--held-out <share>', 'share of the data held out for the choice and the report', '0.5')
+    .option('--confidence <C>', 'the promise holds with probability at least C over the draw of the data', '0.95')
+    .option('--unlabelled <file>', '.npy extra inputs without labels: they tighten the bound on disagreement with the full model')
+    .option('--held-out <share>', 'share of the data that certifies the choice (the rest searches)', '0.5')
     .option('--grid <n>', 'threshold candidates per exit', '32')
     .option('--report <file>', 'write a self-contained HTML report')
-    .option('--json', 'machine-readable result (schema offramp-tune/1)')
+    .option('--json', 'machine-readable result (schema offramp-tune/2)')
     .option('--no-write', 'leave the manifest as it is')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean }) => {
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
+      const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
       const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
       const grid = parseNumber(o.grid, '--grid', { int: true, min: 2, max: MAX_GRID });
       const kinds = o.policy === undefined ? [] : nameList(o.policy, '--policy');
@@ -50,11 +53,13 @@ export function tuneCommand(program: Command): void {
         const labels = o.labels ? readLabels(o.labels, { rows: total, of: o.data, classes: layout0.classes }) : undefined;
         const bar = progressBar(!!process.stderr.isTTY && !o.json);
         const { cache, layout } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
+        // extra rows without labels: their answers are the full model's, counted only for disagreement
+        const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)))).cache : undefined;
         // The tuner's own complaints (too few samples in a part) are about the data file.
         const result: TuneResult<Policy> = inFile(o.data, () => {
-          if (!o.stream) return tune(cache, layout.costs, { maxDrop, heldOut, grid, kinds: frameKinds.length ? frameKinds : undefined });
+          if (!o.stream) return tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : undefined });
           // the per-frame policy a scene change runs on: tuned on the same frames
-          const frame = tune(cache, layout.costs, { maxDrop, heldOut, grid, kinds: frameKinds.length ? frameKinds : ['confidence'] });
+          const frame = tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : ['confidence'] });
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
           return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined });
         });
@@ -64,6 +69,7 @@ export function tuneCommand(program: Command): void {
           writeManifestPolicy(chain.dir, {
             rule: c.policy,
             tuned: { maxDrop, labelled: result.labelled, samples: c.held.samples, accuracy: c.held.accuracy, fullAccuracy: f.held.accuracy, meanMacs: c.held.meanMacs, fullMacs: f.held.meanMacs, exitShare: c.held.exitShare },
+            ...(result.guarantee ? { guarantee: result.guarantee } : {}),
           });
           written = `${chain.dir}/manifest.json`;
         }

@@ -20,7 +20,8 @@ import { writeSplit, writeManifestPolicy, MANIFEST_FILE, type Manifest, type Man
 import { loadChain } from '../run/chain.js';
 import { checkChain, npySamples, randomSamples, type CheckResult } from '../run/check.js';
 import { captureExits } from '../tune/model-capture.js';
-import { tune, type TuneResult } from '../tune/search.js';
+import { CERTIFY_SHARE, tune, type TuneResult } from '../tune/search.js';
+import { rowsOf, splitParts } from '../tune/cache.js';
 import { budgetOf, type Budget } from '../chip/budget.js';
 import { writeC } from '../emit/write.js';
 import type { Target } from '../chip/target.js';
@@ -41,6 +42,10 @@ export interface BuildOptions {
   int8?: boolean;
   /** accuracy (percentage points) the policy may lose against the full model (default 1) */
   maxDrop?: number;
+  /** the promise holds with probability ≥ confidence over the draw of the data (default 0.95) */
+  confidence?: number;
+  /** extra inputs without labels (.npy or a TensorProto folder): they tighten the disagreement term of the bound */
+  unlabelled?: string;
   /** most exits to place (default 3) */
   maxExits?: number;
   /** candidate cuts heads are tried at (default 6) */
@@ -134,7 +139,8 @@ export async function buildExits(file: string, o: BuildOptions): Promise<BuildRe
 
 async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const say = (step: string, detail: string) => o.progress?.(step, detail);
-  const maxDrop = o.maxDrop ?? 1, head: HeadKind = o.head ?? { kind: 'linear' }, seed = o.seed ?? 1;
+  const maxDrop = o.maxDrop ?? 1, confidence = o.confidence ?? 0.95, head: HeadKind = o.head ?? { kind: 'linear' }, seed = o.seed ?? 1;
+  if (!(confidence > 0 && confidence < 1)) throw new OfframpError('usage', `--confidence must lie strictly between 0 and 1, not ${confidence}`);
   const model: LoadedModel = loadModel(file);
   const shapes = await completeShapes(model, { batch: 1 });
   const io = classifierIO(model, shapes);
@@ -159,7 +165,9 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
 
   say('place', `exit sets of up to ${o.maxExits ?? 3} from ${cands.length} candidates`);
   const reach = trialExits.map((e) => before(e.cut));
-  const placement = choosePlacement(trialCache.cache, reach, Number(backbone.model.macs), trialExits.map((e) => e.macs), o.maxExits ?? 3, { maxDrop });
+  // the final tuning splits the same rows the same way: placement reads the search part only
+  const parts = splitParts(trialCache.cache.samples, CERTIFY_SHARE, 'interleave');
+  const placement = choosePlacement(rowsOf(trialCache.cache, parts.tune), reach, Number(backbone.model.macs), trialExits.map((e) => e.macs), o.maxExits ?? 3, { maxDrop, confidence, rows: parts.held.length });
   const chosenCuts = placement.chosen.exits.map((k) => trialExits[k].cut);
 
   fs.mkdirSync(o.out, { recursive: true });
@@ -177,9 +185,10 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
 
   say('tune', `policies on ${tuneData.rows} rows`);
   const captured = await captureExits(g, tuneData, tuneLabels);
+  const unlabelled = o.unlabelled ? (await captureExits(g, dataSource(o.unlabelled, io.declared, io.sample))).cache : undefined;
   const stageMacs = split.manifest.stages.map((s) => s.macs);
   // Heads sit inside their stages, so stage MACs already hold them.
-  const tuned = tune(captured.cache, { stage: stageMacs, head: captured.exits.map(() => 0) }, { maxDrop });
+  const tuned = tune(captured.cache, { stage: stageMacs, head: captured.exits.map(() => 0) }, { maxDrop, confidence, unlabelled, heldOut: CERTIFY_SHARE });
   const ch = tuned.chosen, full = tuned.full;
   const policy: ManifestPolicy = {
     rule: ch.policy,
@@ -187,6 +196,7 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
       maxDrop, labelled: tuned.labelled, samples: ch.held.samples, accuracy: ch.held.accuracy, fullAccuracy: full.held.accuracy,
       meanMacs: ch.held.meanMacs, fullMacs: full.held.meanMacs, exitShare: ch.held.exitShare,
     },
+    guarantee: tuned.guarantee,
   };
   const manifest = writeManifestPolicy(o.out, policy);
 

@@ -4,11 +4,12 @@ import type { BuildResult } from '../pipeline/build.js';
 import type { Policy } from '../policy/policy.js';
 import path from 'node:path';
 import { bytes, si, table, toJson } from './units.js';
-import { COLORS, esc, lineChart, barChart, type Series } from './svg.js';
+import { esc, lineChart, barChart, type Series } from './svg.js';
 import { budgetText, duration, storedLabel } from './budget.js';
 import { MANIFEST_FILE } from '../split/manifest.js';
+import { frontSeries, guaranteeLines } from './tune.js';
 
-export const BUILD_SCHEMA = 'offramp-build/1';
+export const BUILD_SCHEMA = 'offramp-build/2';
 
 const pct = (x: number, d = 1) => `${(x * 100).toFixed(d)}%`;
 const num = (x: number | null) => (x === null ? '-' : Number(x.toPrecision(4)).toString());
@@ -38,6 +39,7 @@ export function buildSummary(r: BuildResult) {
       dropPoints: (t.fullAccuracy - t.accuracy) * 100, maxDrop: t.maxDrop,
       meanMacs: t.meanMacs, fullMacs: t.fullMacs, saving: t.fullMacs ? 1 - t.meanMacs / t.fullMacs : 0, exitShare: t.exitShare,
     },
+    guarantee: r.policy.guarantee ?? null,
     stages: r.manifest.stages.map((s, k) => ({
       file: s.file, macs: s.macs, weightBytes: r.cost.stages[k]?.paramBytes ?? BigInt(s.weightBytes),
       peakActivationBytes: r.cost.stages[k]?.peakActivationBytes ?? BigInt(s.peakActivationBytes),
@@ -50,7 +52,7 @@ export function buildSummary(r: BuildResult) {
       candidates: r.candidates.map((c) => ({ cut: c.cut, macFraction: c.macFraction, accuracy: c.head.fit.accuracy ?? null, agreement: c.head.fit.agreement })),
       tried: r.placement.tried.map((t) => ({ exits: t.exits.map((k) => r.candidates[k].cut), meanMacs: t.meanMacs, accuracy: t.accuracy })),
     },
-    fronts: r.tuned.kinds.map((k) => ({ kind: k.kind, points: k.front.map((p) => ({ meanMacs: p.held.meanMacs, accuracy: p.held.accuracy })) })),
+    fronts: r.tuned.kinds.map((k) => ({ kind: k.kind, points: k.front.map((p) => ({ meanMacs: p.held.meanMacs, accuracy: p.held.accuracy, bound: p.cert?.bound ?? null, passed: p.cert?.passed ?? false })) })),
     budget: r.budget ?? null,
   };
 }
@@ -69,7 +71,8 @@ export function buildText(r: BuildResult): string {
     `built      ${r.dir}: ${s.exits.length} exit${s.exits.length === 1 ? '' : 's'}, ${s.stages.length} stages`,
     `exits at   ${s.exits.map((e) => `${e.cut} (${e.head})`).join(', ')}`,
     `policy     ${policyText(s.policy)}`,
-    `held out   ${h.samples} samples: accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop})${h.labelled ? '' : ' — against the model\'s own answers'}`,
+    `certified  on ${h.samples} held-out samples: accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop})${h.labelled ? '' : ' — against the model\'s own answers'}`,
+    ...(s.guarantee ? guaranteeLines(s.guarantee, policyText).map((l, i) => (i ? '           ' + l.trim() : `promise    ${l.replace(/^promise: /, '')}`)) : []),
     `MACs       ${si(Math.round(h.meanMacs))} per sample on average vs ${si(h.fullMacs)}: ${pct(h.saving)} saved`,
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
     '',
@@ -84,10 +87,7 @@ export function buildText(r: BuildResult): string {
 /** The self-contained report page: summary, charts (inline SVG), stages against the chip, exit placement. */
 export function buildHtml(r: BuildResult): string {
   const s = buildSummary(r), h = s.heldOut;
-  const series: Series[] = s.fronts.map((k, i) => ({
-    name: k.kind, color: COLORS[i % COLORS.length], pts: k.points.map((p) => [p.meanMacs, p.accuracy * 100] as [number, number]),
-  }));
-  series.push({ name: 'full model', color: '#000', pts: [], marks: [[h.fullMacs, h.fullAccuracy * 100, 'full model']] });
+  const series: Series[] = frontSeries(r.tuned.kinds, r.tuned.full.held, h.maxDrop);
   series.push({ name: 'chosen', color: '#e377c2', pts: [], marks: [[h.meanMacs, h.accuracy * 100, `chosen: ${policyText(s.policy)}`]] });
   const exitNames = [...s.exits.map((e) => e.output), 'final'];
   const b = r.budget;
@@ -107,7 +107,8 @@ export function buildHtml(r: BuildResult): string {
 <p class="verdict ${b && !b.fits ? 'over' : ''}">${b ? (b.fits ? 'Every stage fits the target.' : `Over budget: ${esc(b.over.map((o) => `stage ${o.stage} ${o.resource} by ${bytes(-o.margin)}`).join('; '))}.`) : 'No target given: stages are not judged.'}</p>
 <ul>
 <li>Exits at ${s.exits.map((e) => `<code>${esc(e.cut)}</code> (${esc(e.head)})`).join(', ')}; policy <code>${esc(policyText(s.policy))}</code>.</li>
-<li>Held out (${h.samples} samples${h.labelled ? '' : ', against the model\u2019s own answers'}): accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop}).</li>
+<li>Certification part (${h.samples} held-out samples${h.labelled ? '' : ', against the model\u2019s own answers'}): accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop}).</li>
+${s.guarantee ? `<li><b>${esc(guaranteeLines(s.guarantee, policyText)[0])}</b>${guaranteeLines(s.guarantee, policyText).slice(1).map((l) => ` ${esc(l.trim())}`).join('')}.</li>` : ''}
 <li>Mean MACs per sample ${si(Math.round(h.meanMacs))} vs ${si(h.fullMacs)}: <b>${pct(h.saving)} saved</b>.</li>
 <li>Staged chain checked against the grafted model on ${s.check.samples} samples: ${s.check.ok ? 'identical outputs' : 'MISMATCH'} (max abs difference ${s.check.maxAbs}).</li>
 <li>Target: ${target}.</li>
@@ -115,11 +116,11 @@ export function buildHtml(r: BuildResult): string {
 </ul>
 <h2>Stages</h2>
 <table><tr><th>stage</th><th>MACs</th><th>weights</th><th>peak act.</th><th>arena</th><th>hands over</th><th>exit</th><th>leave here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>
-${lineChart('Accuracy vs mean MACs per policy (held-out part)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
+${lineChart('Accuracy vs mean MACs per policy (certification part; grey: full accuracy − certified bound)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
 ${barChart('Exit histogram of the chosen policy (held-out)', exitNames, h.exitShare.map((x) => x * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
 ${barChart('MACs per stage', s.stages.map((st) => st.file.replace('.onnx', '')), s.stages.map((st) => st.macs), (v) => si(v), '#ff7f0e')}
 <h2>Where the exits went</h2>
-<p>Heads were fitted at every candidate cut; every set of up to ${Math.max(...s.placement.tried.map((t) => t.exits.length))} of them was tuned, and the set with the fewest mean MACs within the bound was kept.</p>
+<p>Heads were fitted at every candidate cut; every set of up to ${Math.max(...s.placement.tried.map((t) => t.exits.length))} of them was searched on the search part, and the set whose forecast certified policy spends the fewest mean MACs was kept (the certification part is not read until the final tuning).</p>
 <table><tr><th>candidate cut</th><th>MACs before</th><th>head accuracy</th><th>agreement</th><th>chosen</th></tr>${candRows}</table>
 </body></html>
 `;

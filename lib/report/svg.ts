@@ -14,7 +14,7 @@ function ticks(lo: number, hi: number, n = 5): number[] {
   return out;
 }
 
-export interface Series { name: string; color: string; pts: [number, number][]; marks?: [number, number, string][] }
+export interface Series { name: string; color: string; pts: [number, number][]; marks?: [number, number, string][]; /** false: points only, no line through them */ line?: boolean }
 
 export function lineChart(title: string, xl: string, yl: string, series: Series[], xFmt: (v: number) => string, yFmt: (v: number) => string): string {
   const W = 640, H = 360, L = 70, R = 150, T = 30, B = 50;
@@ -32,7 +32,7 @@ export function lineChart(title: string, xl: string, yl: string, series: Series[
   for (const v of ticks(y0, y1)) parts.push(`<line x1="${L - 4}" y1="${f(Y(v))}" x2="${W - R}" y2="${f(Y(v))}" stroke="#ddd"/><text x="${L - 6}" y="${f(Y(v) + 4)}" text-anchor="end">${esc(yFmt(v))}</text>`);
   parts.push(`<text x="${(L + W - R) / 2}" y="${H - 12}" text-anchor="middle">${esc(xl)}</text><text transform="translate(16 ${(T + H - B) / 2}) rotate(-90)" text-anchor="middle">${esc(yl)}</text>`);
   series.forEach((s, i) => {
-    if (s.pts.length) parts.push(`<polyline fill="none" stroke="${s.color}" stroke-width="1.5" points="${s.pts.map(([x, y]) => `${f(X(x))},${f(Y(y))}`).join(' ')}"/>`);
+    if (s.pts.length && s.line !== false) parts.push(`<polyline fill="none" stroke="${s.color}" stroke-width="1.5" points="${s.pts.map(([x, y]) => `${f(X(x))},${f(Y(y))}`).join(' ')}"/>`);
     for (const [x, y] of s.pts) parts.push(`<circle cx="${f(X(x))}" cy="${f(Y(y))}" r="2" fill="${s.color}"/>`);
     for (const [x, y, label] of s.marks ?? []) parts.push(`<circle cx="${f(X(x))}" cy="${f(Y(y))}" r="5" fill="none" stroke="${s.color}" stroke-width="2"><title>${esc(label)}</title></circle>`);
     parts.push(`<rect x="${W - R + 12}" y="${T + i * 18}" width="10" height="10" fill="${s.color}"/><text x="${W - R + 27}" y="${T + i * 18 + 9}">${esc(s.name)}</text>`);

@@ -1,12 +1,14 @@
-// Renderings of a tuning run: text tables, JSON (schema offramp-tune/1) and a
+// Renderings of a tuning run: text tables, JSON (schema offramp-tune/2) and a
 // self-contained HTML page with inline SVG charts. No timestamps or timings, so
-// the same run renders to the same bytes.
+// the same run renders to the same bytes. A result's guarantee and its front
+// points' bounds render the same whatever tuned them (per frame or stream).
 import { COLORS, esc, lineChart, barChart, type Series } from './svg.js';
-import type { Eval, Point, TuneResult } from '../tune/search.js';
+import type { Eval, Point, PointBound, TuneResult } from '../tune/search.js';
+import type { Guarantee } from '../tune/guarantee.js';
 import type { Policy } from '../policy/policy.js';
 import { si, table, toJson } from './units.js';
 
-export const TUNE_SCHEMA = 'offramp-tune/1';
+export const TUNE_SCHEMA = 'offramp-tune/2';
 
 export interface TuneReport {
   result: TuneResult<Policy>;
@@ -22,46 +24,75 @@ const pct = (x: number, d = 2) => `${(x * 100).toFixed(d)} %`;
 const drop = (full: Eval, e: Eval) => ((full.accuracy - e.accuracy) * 100).toFixed(2);
 const saving = (full: Eval, e: Eval) => (full.meanMacs ? pct(1 - e.meanMacs / full.meanMacs, 1) : '-');
 const ruleText = (p: Policy) => JSON.stringify(p);
+const pp = (x: number) => `${x.toFixed(2)} pp`;
 
 function splitText(r: TuneResult<Policy>): string {
-  const how = r.split.mode === 'tail' ? `the last ${r.split.held} frames (time order kept)` : `${r.split.held} held-out samples (share ${r.split.heldOut}, spread evenly)`;
-  return `tuned on ${r.split.tune}, reported on ${how}; accuracy ${r.labelled ? 'against labels' : 'as agreement with the full model'}; max drop ${r.maxDrop} pp`;
+  const how = r.split.mode === 'tail' ? `the last ${r.split.held} frames (time order kept)` : `${r.split.held} samples (share ${r.split.heldOut}, spread evenly)`;
+  return `searched on ${r.split.tune}, certified and reported on ${how}; accuracy ${r.labelled ? 'against labels' : 'as agreement with the full model'}; max drop ${r.maxDrop} pp`;
 }
 
-/** Up to `n` rows of a front, evenly spread, ends kept. */
-function thin<T>(xs: T[], n: number): T[] {
+/**
+ * The promise in words: two lines when a setting is certified, one when the full model was kept.
+ * `setting` names a policy (the next, bolder setting the sequence stopped at).
+ */
+export function guaranteeLines(g: Guarantee, setting: (p: Policy) => string): string[] {
+  const conf = `${+(g.confidence * 100).toFixed(4)} %`;
+  const on = `${g.evidence} ${g.unit}${g.unlabelled ? ` and ${g.unlabelled} unlabelled rows` : ''}`;
+  const next = g.next;
+  const nextText = !next ? 'no setting cheaper than the full model was found'
+    : next.needed !== undefined ? `the next setting (${setting(next.policy as Policy)}: observed ${pp(next.estimate)}, bound ${pp(next.bound)}) would need about ${next.needed} ${g.unit}`
+      : `the next setting (${setting(next.policy as Policy)}) already loses ${pp(next.estimate)} observed, so more ${g.unit} would not certify it`;
+  if (!g.certified) {
+    return [`not certified: nothing cheaper than the full model keeps the drop within ${g.maxDrop} pp at ${conf} confidence on ${on}, so the full model is kept; ${nextText}`];
+  }
+  return [
+    `promise: drop ≤ ${g.maxDrop} pp on new data with ${conf} confidence — certified bound ${pp(g.bound)} (observed ${pp(g.estimate)} on ${on}; margin ${pp(g.margin)})` +
+      (g.nudged !== undefined ? `; thresholds one grid step cheaper: observed ${pp(g.nudged)}` : ''),
+    `  ${g.method}; ${g.passed} of ${g.tested} tested passed${next ? `; ${nextText}` : ''}`,
+  ];
+}
+
+const certCell = (c?: PointBound) => (c ? pp(c.bound) : '-');
+const statusCell = (c?: PointBound) => (!c ? '' : c.passed ? 'passed' : c.tested ? 'failed' : '');
+
+/** Up to `n` rows of a front, evenly spread, ends kept, and every point the sequence tested last or chose. */
+function thin<T>(xs: T[], n: number, keep: (x: T) => boolean = () => false): T[] {
   if (xs.length <= n) return xs;
-  return Array.from({ length: n }, (_, i) => xs[Math.round((i * (xs.length - 1)) / (n - 1))]);
+  const pick = new Set(Array.from({ length: n }, (_, i) => Math.round((i * (xs.length - 1)) / (n - 1))));
+  xs.forEach((x, i) => { if (keep(x)) pick.add(i); });
+  return [...pick].sort((a, b) => a - b).map((i) => xs[i]);
 }
 
 export function tuneText(t: TuneReport, frontRows = 12): string {
   const r = t.result, full = r.full.held;
   const out: string[] = [splitText(r), `full model: accuracy ${pct(full.accuracy)}, ${si(full.meanMacs)} MACs per sample`, ''];
-  out.push(table(['policy', 'settings', 'front', 'accuracy', 'drop pp', 'mean MACs', 'saving'], r.kinds.map((k) => [
-    k.kind, String(k.evaluated), String(k.front.length), pct(k.chosen.held.accuracy), drop(full, k.chosen.held), si(k.chosen.held.meanMacs), saving(full, k.chosen.held),
+  out.push(table(['policy', 'settings', 'front', 'accuracy', 'drop pp', 'bound pp', 'mean MACs', 'saving'], r.kinds.map((k) => [
+    k.kind, String(k.evaluated), String(k.front.length), pct(k.chosen.held.accuracy), drop(full, k.chosen.held), certCell(k.chosen.cert), si(k.chosen.held.meanMacs), saving(full, k.chosen.held),
   ])));
   out.push('', `chosen: ${ruleText(r.chosen.policy)}`);
-  out.push(`  held-out accuracy ${pct(r.chosen.held.accuracy)} (drop ${drop(full, r.chosen.held)} pp), ${si(r.chosen.held.meanMacs)} MACs per sample, saving ${saving(full, r.chosen.held)}`);
+  out.push(`  accuracy ${pct(r.chosen.held.accuracy)} (drop ${drop(full, r.chosen.held)} pp), ${si(r.chosen.held.meanMacs)} MACs per sample, saving ${saving(full, r.chosen.held)}`);
+  if (r.guarantee) out.push(...guaranteeLines(r.guarantee, settingText));
   if (t.written) out.push(`  written into ${t.written}`);
-  out.push('', 'exit histogram (held-out)');
+  out.push('', 'exit histogram (certification part)');
   out.push(table(['exit', 'share', ''], r.chosen.held.exitShare.map((s, k) => [t.exitNames[k] ?? `exit ${k}`, pct(s, 1), '█'.repeat(Math.round(s * 40))])));
   for (const k of r.kinds) {
-    out.push('', `front: ${k.kind} (${k.front.length} points${k.front.length > frontRows ? `, ${frontRows} shown` : ''}; tune part, then held-out)`);
-    out.push(table(['MACs', 'accuracy', 'held MACs', 'held accuracy', 'setting'], thin(k.front, frontRows).map((p) => [
-      si(p.tune.meanMacs), pct(p.tune.accuracy), si(p.held.meanMacs), pct(p.held.accuracy), settingText(p.policy),
+    const shown = thin(k.front, frontRows, (p) => p === k.chosen || (!!p.cert?.tested && !p.cert.passed));
+    out.push('', `front: ${k.kind} (${k.front.length} points${shown.length < k.front.length ? `, ${shown.length} shown` : ''}; search part, then certification part)`);
+    out.push(table(['MACs', 'accuracy', 'cert. MACs', 'cert. accuracy', 'drop pp', 'bound pp', 'test', 'setting'], shown.map((p) => [
+      si(p.tune.meanMacs), pct(p.tune.accuracy), si(p.held.meanMacs), pct(p.held.accuracy), p.cert ? p.cert.estimate.toFixed(2) : drop(full, p.held), certCell(p.cert), statusCell(p.cert), settingText(p.policy),
     ])));
   }
   return out.join('\n') + '\n';
 }
 
 const num = (x: number | null) => (x === null ? '-' : Number(x.toPrecision(4)).toString());
-function settingText(p: Policy): string {
+export function settingText(p: Policy): string {
   switch (p.kind) {
     case 'patience': return `p=${p.patience}`;
     case 'budget': return `budget ${si(p.budget)}${p.score ? ` + ${p.score} ${p.thresholds.map(num).join(' ')}` : ''}`;
     case 'difference': return `${p.distance} < ${num(p.thresholds[0])} at exit ${p.exit}${p.then ? ` then ${p.then.kind}` : ''}`;
     case 'agreeing': return `${p.distance} < ${num(p.thresholds[0])}${p.then ? ` then ${p.then.kind}` : ''}`;
-    default: return p.thresholds.map(num).join(' ');
+    default: return `${p.kind} ${p.thresholds.map(num).join(' ')}`;
   }
 }
 
@@ -70,30 +101,47 @@ export function tuneJson(t: TuneReport): string {
   return toJson({
     schema: TUNE_SCHEMA, data: t.data, stream: t.stream, labelled: r.labelled, maxDrop: r.maxDrop, split: r.split,
     exits: t.exitNames, reach: r.reach, stages: t.stages, settings: r.settings,
-    full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null,
+    guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null,
   }) + '\n';
+}
+
+/**
+ * Accuracy vs MACs on the certification part, with what the bounds guarantee: each front point's
+ * full accuracy − bound (grey dots), and the promise (full accuracy − max drop, dashed by its two ends).
+ */
+export function frontSeries(kinds: { kind: string; front: Point<Policy>[]; chosen?: Point<Policy> }[], full: Eval, maxDrop: number): Series[] {
+  const series: Series[] = kinds.map((k, i) => ({
+    name: k.kind, color: COLORS[i % COLORS.length], pts: k.front.map((p) => [p.held.meanMacs, p.held.accuracy * 100] as [number, number]),
+    marks: k.chosen && k.chosen.cert ? [[k.chosen.held.meanMacs, k.chosen.held.accuracy * 100, `${k.kind} chosen: ${settingText(k.chosen.policy)}`]] : [],
+  }));
+  const bounds = kinds.flatMap((k) => k.front.filter((p) => p.cert).map((p) => [p.held.meanMacs, (full.accuracy * 100) - p.cert!.bound] as [number, number])).sort((a, b) => a[0] - b[0]);
+  if (bounds.length) {
+    series.push({ name: 'guaranteed (bound)', color: '#999', pts: bounds, line: false });
+    const xs = [...bounds.map((b) => b[0]), full.meanMacs];
+    series.push({ name: `promise (−${maxDrop} pp)`, color: '#bbb', pts: [[Math.min(...xs), full.accuracy * 100 - maxDrop], [Math.max(...xs), full.accuracy * 100 - maxDrop]] });
+  }
+  series.push({ name: 'full model', color: '#000', pts: [], marks: [[full.meanMacs, full.accuracy * 100, 'full model']] });
+  return series;
 }
 
 // ── HTML ────────────────────────────────────────────────────────────────────
 export function tuneHtml(t: TuneReport): string {
   const r = t.result, full = r.full.held;
-  const series: Series[] = r.kinds.map((k, i) => ({
-    name: k.kind, color: COLORS[i % COLORS.length], pts: k.front.map((p) => [p.held.meanMacs, p.held.accuracy * 100] as [number, number]),
-    marks: [[k.chosen.held.meanMacs, k.chosen.held.accuracy * 100, `${k.kind} chosen: ${settingText(k.chosen.policy)}`]],
-  }));
-  series.push({ name: 'full model', color: '#000', pts: [], marks: [[full.meanMacs, full.accuracy * 100, 'full model']] });
-  const rows = r.kinds.map((k) => `<tr><td>${esc(k.kind)}</td><td>${k.evaluated}</td><td>${k.front.length}</td><td>${pct(k.chosen.held.accuracy)}</td><td>${drop(full, k.chosen.held)}</td><td>${si(k.chosen.held.meanMacs)}</td><td>${saving(full, k.chosen.held)}</td><td><code>${esc(settingText(k.chosen.policy))}</code></td></tr>`);
-  const fronts = r.kinds.map((k) => `<details><summary>front: ${esc(k.kind)} (${k.front.length} points)</summary><table><tr><th>MACs</th><th>accuracy</th><th>held MACs</th><th>held accuracy</th><th>setting</th></tr>${k.front.map((p: Point<Policy>) => `<tr><td>${si(p.tune.meanMacs)}</td><td>${pct(p.tune.accuracy)}</td><td>${si(p.held.meanMacs)}</td><td>${pct(p.held.accuracy)}</td><td><code>${esc(settingText(p.policy))}</code></td></tr>`).join('')}</table></details>`);
+  const series = frontSeries(r.kinds, full, r.maxDrop);
+  const rows = r.kinds.map((k) => `<tr><td>${esc(k.kind)}</td><td>${k.evaluated}</td><td>${k.front.length}</td><td>${pct(k.chosen.held.accuracy)}</td><td>${drop(full, k.chosen.held)}</td><td>${certCell(k.chosen.cert)}</td><td>${si(k.chosen.held.meanMacs)}</td><td>${saving(full, k.chosen.held)}</td><td><code>${esc(settingText(k.chosen.policy))}</code></td></tr>`);
+  const fronts = r.kinds.map((k) => `<details><summary>front: ${esc(k.kind)} (${k.front.length} points)</summary><table><tr><th>MACs</th><th>accuracy</th><th>cert. MACs</th><th>cert. accuracy</th><th>drop pp</th><th>bound pp</th><th>test</th><th>setting</th></tr>${k.front.map((p: Point<Policy>) => `<tr><td>${si(p.tune.meanMacs)}</td><td>${pct(p.tune.accuracy)}</td><td>${si(p.held.meanMacs)}</td><td>${pct(p.held.accuracy)}</td><td>${p.cert ? p.cert.estimate.toFixed(2) : drop(full, p.held)}</td><td>${certCell(p.cert)}</td><td>${statusCell(p.cert)}</td><td><code>${esc(settingText(p.policy))}</code></td></tr>`).join('')}</table></details>`);
+  const promise = r.guarantee ? guaranteeLines(r.guarantee, settingText).map((l) => `<p class="promise">${esc(l.trim())}</p>`).join('\n') : '';
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>offramp tune: ${esc(t.data)}</title>
-<style>body{font-family:sans-serif;max-width:980px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}td:first-child,th:first-child{text-align:left}code{font-size:90%}</style>
+<style>body{font-family:sans-serif;max-width:980px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}td:first-child,th:first-child{text-align:left}code{font-size:90%}.promise{font-weight:bold}</style>
 </head><body>
 <h1>Exit policy tuning</h1>
 <p>${esc(splitText(r))}.</p>
-<p>Full model: accuracy ${pct(full.accuracy)}, ${si(full.meanMacs)} MACs per sample. Chosen: <code>${esc(ruleText(r.chosen.policy))}</code>, held-out accuracy ${pct(r.chosen.held.accuracy)} (drop ${drop(full, r.chosen.held)} pp), ${si(r.chosen.held.meanMacs)} MACs per sample (saving ${saving(full, r.chosen.held)}).${t.written ? ` Written into <code>${esc(t.written)}</code>.` : ''}</p>
-<table><tr><th>policy</th><th>settings</th><th>front</th><th>accuracy</th><th>drop pp</th><th>mean MACs</th><th>saving</th><th>setting</th></tr>${rows.join('')}</table>
-${lineChart('Accuracy vs mean MACs (held-out part; rings: chosen per policy)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
-${barChart('Exit histogram of the chosen policy (held-out)', t.exitNames, r.chosen.held.exitShare.map((s) => s * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
+<p>Full model: accuracy ${pct(full.accuracy)}, ${si(full.meanMacs)} MACs per sample. Chosen: <code>${esc(ruleText(r.chosen.policy))}</code>, accuracy ${pct(r.chosen.held.accuracy)} (drop ${drop(full, r.chosen.held)} pp), ${si(r.chosen.held.meanMacs)} MACs per sample (saving ${saving(full, r.chosen.held)}).${t.written ? ` Written into <code>${esc(t.written)}</code>.` : ''}</p>
+${promise}
+<table><tr><th>policy</th><th>settings</th><th>front</th><th>accuracy</th><th>drop pp</th><th>bound pp</th><th>mean MACs</th><th>saving</th><th>setting</th></tr>${rows.join('')}</table>
+${lineChart('Accuracy vs mean MACs (certification part; rings: chosen per policy; grey: full accuracy − certified bound)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
+${barChart('Exit histogram of the chosen policy (certification part)', t.exitNames, r.chosen.held.exitShare.map((s) => s * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
 ${barChart('MACs per stage', t.stages.map((s) => `stage ${s.index}${s.exits.length ? ` (${s.exits.join(', ')})` : ''}`), t.stages.map((s) => s.macs), (v) => si(v), '#ff7f0e')}
 ${fronts.join('\n')}
 </body></html>

@@ -24,6 +24,7 @@ import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
 import type { Policy } from '../policy/policy.js';
+import type { Guarantee } from '../certify/guarantee.js';
 
 export const MANIFEST_SCHEMA = 'offramp-manifest/1';
 export const MANIFEST_FILE = 'manifest.json';
@@ -141,11 +142,13 @@ export interface ManifestPolicy {
     maxDrop: number;
     /** against labels (true) or against the full model's own answers */
     labelled: boolean;
-    /** figures on the held-out part */
+    /** figures on the certification part */
     samples: number; accuracy: number; fullAccuracy: number; meanMacs: number; fullMacs: number;
     /** share of samples leaving at each exit, the final output last */
     exitShare: number[];
   };
+  /** what the rule promises on new data and what the promise rests on (absent from manifests tuned before certification) */
+  guarantee?: Guarantee;
 }
 
 /** Write `policy` into the manifest of `dir` (atomically), replacing any earlier one. */

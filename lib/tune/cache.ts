@@ -65,3 +65,11 @@ export function splitParts(samples: number, heldOut: number, mode: 'interleave' 
   }
   return { tune: Int32Array.from(tune), held: Int32Array.from(held) };
 }
+
+/** The cache restricted to some rows (in the order given). */
+export function rowsOf(c: ExitCache, idx: ArrayLike<number>): ExitCache {
+  const w = (c.exits + 1) * c.classes, n = idx.length;
+  const logits = new Float32Array(n * w), labels = new Int32Array(n);
+  for (let j = 0; j < n; j++) { logits.set(c.logits.subarray(idx[j] * w, (idx[j] + 1) * w), j * w); labels[j] = c.labels[idx[j]]; }
+  return { ...c, samples: n, logits, labels };
+}

@@ -14,18 +14,32 @@ export interface Part {
   correct: Uint8Array;
   /** correct answers of the final output */
   fullCorrect: number;
+  /** [n × (exits+1)]: 1 where exit k's argmax equals the final output's (the disagreement term of a bound) */
+  agree: Uint8Array;
+  /** [n × (exits+1)]: bit 0 correct, bit 1 lost (the final output right, exit k wrong): what the hot loop reads */
+  flags: Uint8Array;
 }
 
 export function preparePart(c: ExitCache, idx: Int32Array): Part {
   const E1 = c.exits + 1, C = c.classes;
-  const correct = new Uint8Array(idx.length * E1);
+  const correct = new Uint8Array(idx.length * E1), agree = new Uint8Array(idx.length * E1);
   let full = 0;
   for (let j = 0; j < idx.length; j++) {
     const i = idx[j];
-    for (let k = 0; k < E1; k++) correct[j * E1 + k] = argmax(c.logits, (i * E1 + k) * C, C) === c.labels[i] ? 1 : 0;
+    const last = argmax(c.logits, (i * E1 + c.exits) * C, C);
+    for (let k = 0; k < E1; k++) {
+      const l = argmax(c.logits, (i * E1 + k) * C, C);
+      correct[j * E1 + k] = l === c.labels[i] ? 1 : 0;
+      agree[j * E1 + k] = l === last ? 1 : 0;
+    }
     full += correct[j * E1 + c.exits];
   }
-  return { idx, n: idx.length, exits: c.exits, correct, fullCorrect: full };
+  const flags = new Uint8Array(idx.length * E1);
+  for (let j = 0; j < idx.length; j++) {
+    const f = correct[j * E1 + c.exits];
+    for (let k = 0; k < E1; k++) flags[j * E1 + k] = correct[j * E1 + k] | ((f & (correct[j * E1 + k] ^ 1)) << 1);
+  }
+  return { idx, n: idx.length, exits: c.exits, correct, fullCorrect: full, agree, flags };
 }
 
 /**
@@ -73,7 +87,7 @@ export function exitCosts(p: FramePolicy, reach: ArrayLike<number>, exits: numbe
   return out;
 }
 
-export interface Tally { correct: number; cost: number }
+export interface Tally { correct: number; cost: number; /** rows the full model gets right and the setting wrong */ lost: number }
 
 /**
  * The hot loop: one setting (oriented thresholds th, cap) over a part; fills hist[0..exits]. The exit is the
@@ -81,9 +95,9 @@ export interface Tally { correct: number; cost: number }
  * walk's data-dependent early break mispredicts too often to be the fast form. Same answer as the walk.
  */
 export function tally(t: Table, p: Part, th: Float64Array, cap: number, cost: Float64Array, hist: Int32Array): Tally {
-  const E = p.exits, E1 = E + 1, n = p.n, corr = p.correct, s = t.s, W = t.stride;
+  const E = p.exits, E1 = E + 1, n = p.n, fl = p.flags, s = t.s, W = t.stride;
   hist.fill(0);
-  let correct = 0;
+  let correct = 0, lost = 0;
   const stop = E < 30 ? 1 << cap : 0;
   if (W === 4) {
     const t0 = E > 0 ? th[0] : Infinity, t1 = E > 1 ? th[1] : Infinity, t2 = E > 2 ? th[2] : Infinity, t3 = E > 3 ? th[3] : Infinity;
@@ -91,7 +105,9 @@ export function tally(t: Table, p: Part, th: Float64Array, cap: number, cost: Fl
       const m = stop | +(s[b] >= t0) | (+(s[b + 1] >= t1) << 1) | (+(s[b + 2] >= t2) << 2) | (+(s[b + 3] >= t3) << 3);
       const k = 31 - Math.clz32(m & -m);
       hist[k]++;
-      correct += corr[cb + k];
+      const f = fl[cb + k];
+      correct += f & 1;
+      lost += f >> 1;
     }
   } else if (E < 30) {
     for (let j = 0, b = 0, cb = 0; j < n; j++, b += W, cb += E1) {
@@ -99,7 +115,9 @@ export function tally(t: Table, p: Part, th: Float64Array, cap: number, cost: Fl
       for (let k = 0; k < E; k++) m |= +(s[b + k] >= th[k]) << k;
       const k = 31 - Math.clz32(m & -m);
       hist[k]++;
-      correct += corr[cb + k];
+      const f = fl[cb + k];
+      correct += f & 1;
+      lost += f >> 1;
     }
   } else {
     // more exits than mask bits: the plain walk
@@ -107,10 +125,30 @@ export function tally(t: Table, p: Part, th: Float64Array, cap: number, cost: Fl
       let k = 0;
       while (k < cap && !(s[b + k] >= th[k])) k++;
       hist[k]++;
-      correct += corr[cb + k];
+      const f = fl[cb + k];
+      correct += f & 1;
+      lost += f >> 1;
     }
   }
   let total = 0;
   for (let k = 0; k <= E; k++) total += hist[k] * cost[k];
-  return { correct, cost: total };
+  return { correct, cost: total, lost };
+}
+
+/** What a drop bound counts for one setting on a part: the rows it loses and gains against the full model, and where it disagrees. */
+export interface Discordant { lost: number; gained: number; disagree: number }
+
+/** The plain walk (certification runs on front points only, so clarity beats the mask kernel here). */
+export function discordant(t: Table, p: Part, th: Float64Array, cap: number): Discordant {
+  const E1 = p.exits + 1, s = t.s, W = t.stride, corr = p.correct, agr = p.agree;
+  let lost = 0, gained = 0, disagree = 0;
+  for (let j = 0, b = 0, cb = 0; j < p.n; j++, b += W, cb += E1) {
+    let k = 0;
+    while (k < cap && !(s[b + k] >= th[k])) k++;
+    const full = corr[cb + p.exits], mine = corr[cb + k];
+    lost += full & (mine ^ 1);
+    gained += (full ^ 1) & mine;
+    disagree += agr[cb + k] ^ 1;
+  }
+  return { lost, gained, disagree };
 }

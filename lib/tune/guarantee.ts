@@ -1,33 +1,3 @@
-// What a tuned setting promises on new data, and what the promise rests on.
-// The search part picks candidates; a disjoint certification part tests them
-// in a fixed order (lib/certify), so the printed bound survives the winner's curse.
-
-export interface Guarantee {
-  /** C: the bound holds with probability ≥ C over the draw of the tuning data */
-  confidence: number;
-  /** the promise asked for, percentage points */
-  maxDrop: number;
-  /** whether the chosen setting itself is certified (false: the full model was kept) */
-  certified: boolean;
-  /** what one piece of evidence is */
-  unit: 'samples' | 'scenes';
-  /** labelled samples (or scenes) in the certification part */
-  evidence: number;
-  /** unlabelled rows that tightened the disagreement term */
-  unlabelled: number;
-  /** observed drop on the certification part, percentage points */
-  estimate: number;
-  /** certified upper bound on the drop, percentage points */
-  bound: number;
-  /** how the bound was made */
-  method: string;
-  /** maxDrop − bound, percentage points; how far the setting sits inside the promise */
-  margin: number;
-  /** settings tested in the fixed sequence and how many passed */
-  tested: number;
-  passed: number;
-  /** for the boldest setting that failed: samples (or scenes) the same rates would need to pass */
-  needed?: number;
-  /** what the bound assumes, in words, for the reports */
-  assumes: string[];
-}
+// The Guarantee type lives with the certification math (lib/certify), low enough for the manifest
+// (lib/split) to record it; the tuners import it from here.
+export type { Guarantee } from '../certify/guarantee.js';

@@ -10,11 +10,23 @@ import {
 import type { Chain } from '../run/chain.js';
 import { reachOf } from './cache.js';
 import { frames, type ChainLayout } from './chain-capture.js';
+import type { Guarantee } from './guarantee.js';
 
 export interface ReplayFrame { frame: number; exit: number; exitName: string; macs: number; label: number; scene: number; reused: boolean; truth?: number }
 export interface ReplaySummary {
   frames: number; accuracy?: number; meanMacs: number; fullMacs: number; saving: number;
   exitShare: number[]; scenes: number; reusedShare: number;
+  /** with labels: the full model's accuracy on the same frames, and the drop observed (percentage points) */
+  fullAccuracy?: number; drop?: number;
+  /** with labels and a certified policy in the manifest: the promise, and whether these frames kept it */
+  promise?: { maxDrop: number; confidence: number; bound: number; kept: boolean };
+}
+
+/** The observed drop against the full model on the replayed frames, set beside the manifest's promise. */
+export function withDrop(s: ReplaySummary, fullAccuracy: number, g?: Guarantee): ReplaySummary {
+  if (s.accuracy === undefined) return s;
+  const drop = (fullAccuracy - s.accuracy) * 100;
+  return { ...s, fullAccuracy, drop, ...(g && g.certified ? { promise: { maxDrop: g.maxDrop, confidence: g.confidence, bound: g.bound, kept: drop <= g.maxDrop } } : {}) };
 }
 export interface ReplayResult { policy: Policy; exits: string[]; frames: ReplayFrame[]; summary: ReplaySummary }
 
