@@ -10,6 +10,7 @@
 import { OfframpError } from '../errors.js';
 import { decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
 import { reachOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
+import type { Guarantee } from './guarantee.js';
 import { patienceTable, preparePart, scoreTable, tally, type Part, type Table } from './evaluate.js';
 
 export type FrameKind = FramePolicy['kind'];
@@ -29,6 +30,8 @@ export interface TuneResult<P = FramePolicy> {
   /** cheapest admissible over all kinds */
   chosen: Point<P | FramePolicy>;
   settings: number;
+  /** what the chosen setting promises on new data (certified tuning) */
+  guarantee?: Guarantee;
 }
 
 export interface TuneOptions {
