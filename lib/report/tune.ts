@@ -59,8 +59,8 @@ function settingText(p: Policy): string {
   switch (p.kind) {
     case 'patience': return `p=${p.patience}`;
     case 'budget': return `budget ${si(p.budget)}${p.score ? ` + ${p.score} ${p.thresholds.map(num).join(' ')}` : ''}`;
-    case 'difference': return `${p.distance} < ${num(p.thresholds[0])} at exit ${p.exit}${p.then ? ` then ${p.then.kind}` : ''}`;
-    case 'agreeing': return `${p.distance} < ${num(p.thresholds[0])}${p.then ? ` then ${p.then.kind}` : ''}`;
+    case 'difference': return `${p.distance} < ${num(p.thresholds[0])} at exit ${p.exit}${p.then ? ` then ${p.then.kind}` : ''}${p.refresh ? `, refresh ${p.refresh}` : ''}`;
+    case 'agreeing': return `${p.distance} < ${num(p.thresholds[0])}${p.then ? ` then ${p.then.kind}` : ''}${p.refresh ? `, refresh ${p.refresh}` : ''}`;
     default: return p.thresholds.map(num).join(' ');
   }
 }
