@@ -170,10 +170,10 @@ describe('stream state machines', () => {
     const t = streamStart(C);
     const labels = [frame(0, 1, 1), frame(0, 1, 1), frame(0, 2, 2), frame(0, 2, 2), frame(0, 2, 2), frame(0, 2, 2)].map((f) => streamStep(q, t, f, chain(E, C)).label);
     expect(labels).toEqual([1, 1, 1, 1, 2, 2]);
-    // a `then` that would stop at exit 0 is overridden on the forced frame
+    // a `then` that stops at exit 0 (no final output): with R = 2 every other frame is forced on to it
     const u = streamStart(C);
     const w: StreamPolicy = { ...p, refresh: 2, then: { kind: 'confidence', thresholds: [0.5, 0.5] } };
-    expect([0, 1, 2].map(() => streamStep(w, u, frame(0, 1, 1, 8), chain(E, C)).exit)).toEqual([0, 0, 2]);
+    expect([0, 1, 2, 3, 4].map(() => streamStep(w, u, frame(0, 1, 1, 8), chain(E, C)).exit)).toEqual([0, 2, 0, 2, 0]);
   });
 
   it('runs on with a per-frame policy on a scene change', () => {
