@@ -188,11 +188,14 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   });
   const chosen: Point<StreamPolicy | FramePolicy> = last ? pointOf(last) : fullPt;
 
-  let needed: number | undefined;
-  if (seq.failed) {
-    const ns = [seq.failed, bolder(seq.failed)].map((x) => scenesNeeded(certify(x).shares, limit, delta));
-    needed = ns.some((n) => n === undefined) ? undefined : Math.max(...(ns as number[]));
-  }
+  // advice, not a promise: scenes the same per-scene rates would need, for the first setting that failed or, when
+  // nothing passed, the front setting closest to passing
+  const need = (r: Rec) => {
+    const ns = [r, bolder(r)].map((x) => scenesNeeded(certify(x).shares, limit, delta));
+    return ns.some((n) => n === undefined) ? undefined : Math.max(...(ns as number[]));
+  };
+  let needed = seq.failed && need(seq.failed);
+  if (!last) for (const r of fr) { const n = need(r); if (n !== undefined && (needed === undefined || n < needed)) needed = n; }
   const b = last ? bounds(last)[0] : undefined;
   const guarantee: Guarantee = {
     confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
