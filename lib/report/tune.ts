@@ -71,6 +71,7 @@ export function tuneJson(t: TuneReport): string {
     schema: TUNE_SCHEMA, data: t.data, stream: t.stream, labelled: r.labelled, maxDrop: r.maxDrop, split: r.split,
     exits: t.exitNames, reach: r.reach, stages: t.stages, settings: r.settings,
     full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null,
+    ...(r.guarantee && { guarantee: r.guarantee }), ...('scenes' in r && { scenes: (r as { scenes: unknown }).scenes }),
   }) + '\n';
 }
 
