@@ -115,6 +115,9 @@ describe('per-frame walks', () => {
     expect(() => checkPolicy({ kind: 'confidence', thresholds: [0.5] }, 2)).toThrow(/needs 2 thresholds/);
     expect(() => checkPolicy({ kind: 'nope', thresholds: [] }, 2)).toThrow(OfframpError);
     expect(() => checkPolicy({ kind: 'difference', thresholds: [0.1], distance: 'l3', exit: 0 }, 2)).toThrow(/distance/);
+    expect(() => checkPolicy({ kind: 'difference', thresholds: [0.1], distance: 'l1', exit: 0, refresh: 0 }, 2)).toThrow(/refresh/);
+    expect(() => checkPolicy({ kind: 'agreeing', thresholds: [0.1], distance: 'l1', refresh: 2.5 }, 2)).toThrow(/refresh/);
+    expect(checkPolicy({ kind: 'agreeing', thresholds: [0.1], distance: 'l1', refresh: 16 }, 2)).toBeTruthy();
     expect(() => checkPolicy({ kind: 'agreeing', thresholds: [0.1], distance: 'js', then: { kind: 'agreeing', thresholds: [1], distance: 'js' } }, 2)).toThrow(/per-frame/);
     expect(checkPolicy({ kind: 'patience', thresholds: [], patience: 2 }, 3).kind).toBe('patience');
   });
@@ -149,6 +152,28 @@ describe('stream state machines', () => {
     expect([c.exit, c.reused, c.scene, s.exit]).toEqual([2, false, 1, 0]); // label at exit 1 changed: new scene, exit 0 agrees now
     const d = streamStep(p, s, frame(2, 1, 2), chain(E, C));
     expect([d.exit, d.label, d.reused]).toEqual([0, 2, true]);
+  });
+
+  it('a refresh of R runs one frame in any R on to the final output, untested, and opens a scene with it', () => {
+    // worked example: R = 3 on a scene that never changes; after a full run the age is 0, each reuse adds one,
+    // and a frame arriving at age R − 1 = 2 is forced: E, 0, 0, E, 0, 0, E …
+    const p: StreamPolicy = { kind: 'difference', thresholds: [0.1], distance: 'l1', exit: 0, refresh: 3 };
+    const s = streamStart(C);
+    const steps = Array.from({ length: 7 }, () => streamStep(p, s, frame(0, 1, 1), chain(E, C)));
+    expect(steps.map((r) => [r.exit, r.label, r.reused, r.scene])).toEqual([
+      [2, 1, false, 0], [0, 1, true, 0], [0, 1, true, 0], [2, 1, false, 1], [0, 1, true, 1], [0, 1, true, 1], [2, 1, false, 2],
+    ]);
+    // the forced frame is not compared: its distance stays unmeasured
+    expect(Number.isNaN(steps[3].distance)).toBe(true);
+    // a missed change (exit 0 unchanged, the final output now 2) lasts until the next refresh at most
+    const q: StreamPolicy = { ...p, refresh: 4 };
+    const t = streamStart(C);
+    const labels = [frame(0, 1, 1), frame(0, 1, 1), frame(0, 2, 2), frame(0, 2, 2), frame(0, 2, 2), frame(0, 2, 2)].map((f) => streamStep(q, t, f, chain(E, C)).label);
+    expect(labels).toEqual([1, 1, 1, 1, 2, 2]);
+    // a `then` that stops at exit 0 (no final output): with R = 2 every other frame is forced on to it
+    const u = streamStart(C);
+    const w: StreamPolicy = { ...p, refresh: 2, then: { kind: 'confidence', thresholds: [0.5, 0.5] } };
+    expect([0, 1, 2, 3, 4].map(() => streamStep(w, u, frame(0, 1, 1, 8), chain(E, C)).exit)).toEqual([0, 2, 0, 2, 0]);
   });
 
   it('runs on with a per-frame policy on a scene change', () => {

@@ -1,11 +1,12 @@
 // The tuner on caches whose answer is known: a hand-built cache with an analytic optimum, the held-out
-// bound on random caches, the fast evaluation against the policy walk, stream policies on runs of scenes.
+// bound on random caches, the fast evaluation against the policy walk, certified stream policies on runs of scenes.
 import { describe, expect, it } from 'vitest';
 import { chainFor, runFrame, type FramePolicy } from '../lib/policy/index.js';
 import { makeCache, reachOf, splitParts, viewOf, type ExitCache } from '../lib/tune/cache.js';
 import { tune } from '../lib/tune/search.js';
 import { evalStream, tuneStream } from '../lib/tune/stream.js';
 import { syntheticCache, syntheticCosts } from './helpers/exit-cache.js';
+import { sceneStream } from './helpers/stream-cache.js';
 import { mulberry32 } from '../lib/graph/build.js';
 
 /**
@@ -160,35 +161,22 @@ describe('tune on synthetic caches', () => {
   });
 });
 
-/** A stream: scenes of 20–60 frames of one class, each frame the scene's logits plus small noise. */
-function streamCache(frames: number, seed: number): ExitCache {
-  const base = syntheticCache(frames, 3, 6, seed);
-  const rnd = mulberry32(seed + 100);
-  const W = 4 * 6;
-  const logits = new Float32Array(frames * W);
-  const labels = new Int32Array(frames);
-  for (let i = 0; i < frames;) {
-    const len = 20 + Math.floor(rnd() * 40);
-    for (let j = i; j < Math.min(frames, i + len); j++) {
-      for (let x = 0; x < W; x++) logits[j * W + x] = base.logits[i * W + x] + 0.05 * (rnd() - 0.5);
-      labels[j] = base.labels[i];
-    }
-    i += len;
-  }
-  return makeCache(frames, 3, 6, logits, labels);
-}
-
 describe('stream tuning', () => {
-  it('stream policies spend far less than per-frame ones at the same accuracy bound', () => {
-    const c = streamCache(3000, 7);
+  it('certified stream policies spend far less than per-frame ones at the same accuracy bound', () => {
+    // 600 scenes of 6–20 frames, every change visible at the first exit
+    const { cache: c, segments } = sceneStream({ scenes: 600, minLen: 6, maxLen: 20, subtle: 0, seed: 7 });
     const costs = syntheticCosts(3);
-    const perFrame = tune(c, costs, { maxDrop: 1, grid: 16 });
+    const perFrame = tune(c, costs, { maxDrop: 3, grid: 16 });
     const then = perFrame.chosen.policy.kind === 'confidence' && perFrame.chosen.policy.thresholds.every((t) => t === null) ? [] : [perFrame.chosen.policy as FramePolicy];
-    const s = tuneStream(c, costs, { maxDrop: 1, grid: 16, then });
-    expect((s.full.held.accuracy - s.chosen.held.accuracy) * 100).toBeLessThanOrEqual(1 + 1e-9);
+    const o = { maxDrop: 3, confidence: 0.9, grid: 10, then, segments, distances: ['js', 'l1'] as const, refresh: [16, 64] };
+    const s = tuneStream(c, costs, o);
+    expect(s.guarantee.certified).toBe(true);
+    expect(s.guarantee.bound).toBeLessThanOrEqual(3);
+    expect((s.full.held.accuracy - s.chosen.held.accuracy) * 100).toBeLessThanOrEqual(3);
     expect(['difference', 'agreeing']).toContain(s.chosen.policy.kind);
-    const frameOnTail = evalStream(c, splitParts(c.samples, 0.5, 'tail').held, perFrame.chosen.policy as FramePolicy, reachOf(costs, 3));
+    const tail = Int32Array.from({ length: s.split.held }, (_, j) => s.split.tune + j);
+    const frameOnTail = evalStream(c, tail, perFrame.chosen.policy as FramePolicy, reachOf(costs, 3));
     expect(s.chosen.held.meanMacs).toBeLessThan(0.5 * frameOnTail.meanMacs);
-    expect(JSON.stringify(tuneStream(c, costs, { maxDrop: 1, grid: 16, then }))).toBe(JSON.stringify(s));
+    expect(JSON.stringify(tuneStream(c, costs, o))).toBe(JSON.stringify(s));
   });
 });

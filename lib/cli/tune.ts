@@ -12,7 +12,7 @@ import { tuneStream } from '../tune/stream.js';
 import { STREAM_KINDS, type FramePolicy, type Policy, type StreamPolicy } from '../policy/policy.js';
 import { tuneHtml, tuneJson, tuneText, type TuneReport } from '../report/tune.js';
 import type { TuneResult } from '../tune/search.js';
-import { usageError } from '../errors.js';
+import { OfframpError, usageError } from '../errors.js';
 import { emit, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
 
@@ -30,12 +30,13 @@ export function tuneCommand(program: Command): void {
     .option('--stream', 'tune the stream policies (difference, agreeing) on the data as an ordered sequence')
     .option('--confidence <C>', 'the promise holds with probability at least C over the draw of the data', '0.95')
     .option('--unlabelled <file>', '.npy extra inputs without labels: they tighten the bound on disagreement with the full model')
+    .option('--segments <file>', '.npy scene id per frame [N] (with --stream): a change of id starts a scene; default: runs of the full model\'s answers')
     .option('--held-out <share>', 'share of the data that certifies the choice (the rest searches)', '0.5')
     .option('--grid <n>', 'threshold candidates per exit', '32')
     .option('--report <file>', 'write a self-contained HTML report')
     .option('--json', 'machine-readable result (schema offramp-tune/2)')
     .option('--no-write', 'leave the manifest as it is')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string }) => {
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
       const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
@@ -45,6 +46,7 @@ export function tuneCommand(program: Command): void {
       const frameKinds = kinds.filter((k) => TUNE_KINDS.includes(k as FrameKind)) as FrameKind[];
       const streamKinds = kinds.filter((k) => STREAM_KINDS.includes(k as StreamPolicy['kind'])) as StreamPolicy['kind'][];
       if (streamKinds.length && !o.stream) throw usageError(`${streamKinds.join(', ')} ${streamKinds.length > 1 ? 'are stream policies' : 'is a stream policy'}: add --stream`);
+      if (o.segments && !o.stream) throw usageError('--segments marks the scenes of a stream: add --stream');
       const chain = await loadChain(dir);
       try {
         refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.report]);
@@ -52,6 +54,7 @@ export function tuneCommand(program: Command): void {
         const total = readDataHeader(o.data).rows;
         const labels = o.labels ? readLabels(o.labels, { rows: total, of: o.data, classes: layout0.classes }) : undefined;
         const bar = progressBar(!!process.stderr.isTTY && !o.json);
+        const segments = o.segments ? readLabels(o.segments, { rows: total, of: o.data, what: 'segment id' }) : undefined;
         const { cache, layout } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
         // extra rows without labels: their answers are the full model's, counted only for disagreement
         const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)))).cache : undefined;
@@ -61,7 +64,7 @@ export function tuneCommand(program: Command): void {
           // the per-frame policy a scene change runs on: tuned on the same frames
           const frame = tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : ['confidence'] });
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
-          return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined });
+          return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments });
         });
         let written: string | undefined;
         if (o.write) {

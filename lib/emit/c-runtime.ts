@@ -59,6 +59,7 @@ typedef struct {
   offramp_distance_t distance;
   double threshold;                 /* reuse when distance < threshold */
   int32_t exit;                     /* OFFRAMP_DIFFERENCE: the exit compared */
+  int32_t refresh;                  /* R: one frame in any R in a row runs on to the final output; 0: never */
   offramp_frame_policy_t then;      /* walk on a scene change */
 } offramp_stream_policy_t;
 
@@ -71,6 +72,7 @@ typedef struct {
   int32_t exit;                     /* exit the scene compares at */
   int32_t label;                    /* the scene's result */
   int32_t ref;                      /* which of buf holds the scene's reference softmax */
+  int32_t age;                      /* frames since the last one that reached the final output */
   double buf[2][OFFRAMP_CLASSES];
 } offramp_stream_t;
 
@@ -93,6 +95,7 @@ offramp_result_t offramp_run_frame(const offramp_frame_policy_t *p, const float 
 
 void offramp_stream_start(offramp_stream_t *s);
 int32_t offramp_stream_compare_exit(const offramp_stream_policy_t *p, const offramp_stream_t *s);
+int offramp_stream_refresh_due(const offramp_stream_policy_t *p, const offramp_stream_t *s);
 int offramp_stream_test(const offramp_stream_policy_t *p, offramp_stream_t *s, const float *z);
 void offramp_stream_open(const offramp_stream_policy_t *p, offramp_stream_t *s, const float *const z[OFFRAMP_EXITS + 1], int32_t stop, int32_t label, int tested);
 offramp_stream_result_t offramp_stream_step(const offramp_stream_policy_t *p, offramp_stream_t *s, const float *const z[OFFRAMP_EXITS + 1]);
@@ -315,7 +318,7 @@ offramp_result_t offramp_run_frame(const offramp_frame_policy_t *p, const float 
 
 void offramp_stream_start(offramp_stream_t *s) {
   int32_t i;
-  s->scene = -1; s->exit = -1; s->label = -1; s->ref = 0;
+  s->scene = -1; s->exit = -1; s->label = -1; s->ref = 0; s->age = 0;
   for (i = 0; i < N; i++) { s->buf[0][i] = 0.0; s->buf[1][i] = 0.0; }
 }
 
@@ -324,14 +327,22 @@ int32_t offramp_stream_compare_exit(const offramp_stream_policy_t *p, const offr
   return s->scene >= 0 ? s->exit : p->kind == OFFRAMP_DIFFERENCE ? p->exit : -1;
 }
 
-/* Needs a scene. 1: reuse s->label for this frame. */
+/* 1: R-1 frames in a row stopped short of the final output; this one runs on to it, untested. */
+int offramp_stream_refresh_due(const offramp_stream_policy_t *p, const offramp_stream_t *s) {
+  return p->refresh > 0 && s->scene >= 0 && s->age >= p->refresh - 1;
+}
+
+/* Needs a scene. 1: reuse s->label for this frame (the scene ages by one frame). */
 int offramp_stream_test(const offramp_stream_policy_t *p, offramp_stream_t *s, const float *z) {
   double *probs = s->buf[1 - s->ref];
   double d;
+  int reuse;
   offramp_softmax(z, probs);
   d = offramp_distance(p->distance, probs, s->buf[s->ref]);
   /* agreeing: a change of label opens a scene even within the threshold */
-  return d < p->threshold && (p->kind != OFFRAMP_AGREEING || argmax_d(probs) == s->label);
+  reuse = d < p->threshold && (p->kind != OFFRAMP_AGREEING || argmax_d(probs) == s->label);
+  if (reuse) s->age = s->exit >= OFFRAMP_EXITS ? 0 : s->age + 1;
+  return reuse;
 }
 
 /* Open a scene with this frame, whose walk stopped at exit stop with label; tested: offramp_stream_test ran on it. */
@@ -343,18 +354,21 @@ void offramp_stream_open(const offramp_stream_policy_t *p, offramp_stream_t *s, 
   s->scene += 1;
   s->exit = k;
   s->label = label;
+  s->age = stop >= OFFRAMP_EXITS ? 0 : s->age + 1;
 }
 
 offramp_stream_result_t offramp_stream_step(const offramp_stream_policy_t *p, offramp_stream_t *s, const float *const z[OFFRAMP_EXITS + 1]) {
   offramp_stream_result_t out;
   offramp_result_t r;
   int32_t k = offramp_stream_compare_exit(p, s);
-  int tested = 0;
-  if (s->scene >= 0) {
+  int tested = 0, forced = offramp_stream_refresh_due(p, s);
+  if (s->scene >= 0 && !forced) {
     if (offramp_stream_test(p, s, z[k])) { out.exit = k; out.label = s->label; out.reused = 1; out.scene = s->scene; return out; }
     tested = 1;
   }
-  r = offramp_run_frame(&p->then, z, k > 0 ? k : 0);
+  /* a refresh runs on to the final output whatever then (a budget's cap included) would do */
+  if (forced) { r.exit = OFFRAMP_EXITS; r.label = offramp_argmax(z[OFFRAMP_EXITS]); }
+  else r = offramp_run_frame(&p->then, z, k > 0 ? k : 0);
   /* difference without a scene: the reference exit was run, so the walk ends no shallower than it */
   out.exit = r.exit > k ? r.exit : k;
   out.label = r.label;
@@ -418,6 +432,7 @@ void offramp_stream_open_q8(const offramp_stream_policy_t *p, offramp_stream_t *
   s->scene += 1;
   s->exit = k;
   s->label = label;
+  s->age = stop >= OFFRAMP_EXITS ? 0 : s->age + 1;
 }
 
 offramp_stream_result_t offramp_stream_step_q8(const offramp_stream_policy_t *p, offramp_stream_t *s, const int8_t *const q[OFFRAMP_EXITS + 1], const offramp_q8_t qp[OFFRAMP_EXITS + 1]) {

@@ -62,7 +62,7 @@ function policyJson(p: Policy): string {
     ...(f.kind === 'budget' && { budget: f.budget, ...(f.score && { score: f.score }) }),
   });
   if (!isStream(p)) return JSON.stringify(frame(p));
-  return JSON.stringify({ kind: p.kind, thresholds: p.thresholds, distance: p.distance, ...(p.exit !== undefined && { exit: p.exit }), ...(p.then && { then: frame(p.then) }) });
+  return JSON.stringify({ kind: p.kind, thresholds: p.thresholds, distance: p.distance, ...(p.exit !== undefined && { exit: p.exit }), ...(p.then && { then: frame(p.then) }), ...(p.refresh !== undefined && { refresh: p.refresh }) });
 }
 
 function framePolicyInit(p: FramePolicy, t: ChainTable, indent: string): string {
@@ -85,7 +85,7 @@ function policyDefinition(p: Policy, t: ChainTable): string {
   const then = p.then ?? fullModel(t.exits);
   return [
     `const offramp_stream_policy_t offramp_policy = {`,
-    `  ${KIND_C[p.kind]}, ${DIST_C[p.distance]}, ${hexDouble(p.thresholds[0])} /* ${p.thresholds[0]} */, ${p.kind === 'difference' ? p.exit : -1},`,
+    `  ${KIND_C[p.kind]}, ${DIST_C[p.distance]}, ${hexDouble(p.thresholds[0])} /* ${p.thresholds[0]} */, ${p.kind === 'difference' ? p.exit : -1}, ${p.refresh ?? 0},${p.refresh === undefined ? ' /* no refresh */' : ` /* refresh: final output at least every ${p.refresh} frames */`}`,
     `  ${framePolicyInit(then, t, '  ')}`,
     `};`, '',
   ].join('\n');

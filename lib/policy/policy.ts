@@ -21,8 +21,10 @@ export type FramePolicy = ScorePolicy | PatiencePolicy | BudgetPolicy;
  * Stream policies (frames in temporal order). `difference` compares at exit `exit`; `agreeing` at the
  * shallowest exit that agreed with the scene's result. Reuse the scene's result when the distance is
  * below thresholds[0]; otherwise run on from the compared exit with `then` (default: to the final output).
+ * `refresh` R: at least one frame in any R in a row runs on to the final output (and opens a scene), so a
+ * scene change the distance misses costs at most R − 1 frames; absent: no refresh.
  */
-export interface StreamPolicy { kind: 'difference' | 'agreeing'; thresholds: [number]; distance: DistanceKind; exit?: number; then?: FramePolicy }
+export interface StreamPolicy { kind: 'difference' | 'agreeing'; thresholds: [number]; distance: DistanceKind; exit?: number; then?: FramePolicy; refresh?: number }
 export type Policy = FramePolicy | StreamPolicy;
 export type PolicyKind = Policy['kind'];
 export const FRAME_KINDS: readonly FramePolicy['kind'][] = ['confidence', 'entropy', 'margin', 'patience', 'budget'];
@@ -56,6 +58,7 @@ export function checkPolicy(v: unknown, exits: number, where = 'policy'): Policy
       if (th.length !== 1 || th[0] === null) throw bad(`${p.kind} takes one distance threshold`);
       if (!DISTANCES.includes(p.distance as DistanceKind)) throw bad(`distance must be one of ${DISTANCES.join(', ')}`);
       if (p.kind === 'difference' && (!Number.isInteger(p.exit) || (p.exit as number) < 0 || (p.exit as number) > exits)) throw bad(`difference needs an exit in 0…${exits}`);
+      if (p.refresh !== undefined && !(Number.isInteger(p.refresh) && (p.refresh as number) >= 1 && (p.refresh as number) <= 0x7fffffff)) throw bad('refresh must be a whole number of frames ≥ 1');
       if (p.then !== undefined) {
         const t = checkPolicy(p.then, exits, `${where}.then`);
         if (isStream(t)) throw bad('then must be a per-frame policy');

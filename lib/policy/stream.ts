@@ -19,8 +19,16 @@ export interface StreamState {
   ref: Float64Array;
   /** softmax of the frame under test (scratch, swapped into ref on open) */
   probs: Float64Array;
+  /** frames since the last one that reached the final output (the refresh counts them) */
+  age: number;
 }
-export const streamStart = (classes: number): StreamState => ({ scene: -1, exit: -1, label: -1, ref: new Float64Array(classes), probs: new Float64Array(classes) });
+export const streamStart = (classes: number): StreamState => ({ scene: -1, exit: -1, label: -1, ref: new Float64Array(classes), probs: new Float64Array(classes), age: 0 });
+
+/** A refresh is due: R − 1 frames in a row stopped short of the final output, so this one runs on to it, untested. */
+export const refreshDue = (p: StreamPolicy, s: StreamState): boolean => p.refresh !== undefined && s.scene >= 0 && s.age >= p.refresh - 1;
+
+/** The age after a frame that stopped at exit `k`. */
+const aged = (s: StreamState, k: number, c: Chain): number => (k >= c.exits ? 0 : s.age + 1);
 
 /** The exit to run the frame to before anything is decided: the scene's exit; without a scene, difference's own exit, agreeing none (−1). */
 export function compareExit(p: StreamPolicy, s: StreamState): number {
@@ -29,13 +37,14 @@ export function compareExit(p: StreamPolicy, s: StreamState): number {
 
 export interface StreamTest { reuse: boolean; distance: number; overhead: number }
 
-/** Compare the frame's output at the scene's exit with the reference. Needs a scene. */
+/** Compare the frame's output at the scene's exit with the reference. Needs a scene; a reuse ages it. */
 export function streamTest(p: StreamPolicy, s: StreamState, z: ArrayLike<number>, off: number, c: Chain): StreamTest {
   const n = c.classes;
   softmax(z, off, n, s.probs);
   const d = distance(p.distance, s.probs, s.ref, n);
   // agreeing: a change of label opens a scene even within the distance threshold
   const reuse = d < p.thresholds[0] && (p.kind !== 'agreeing' || argmax(s.probs, 0, n) === s.label);
+  if (reuse) s.age = aged(s, s.exit, c);
   return { reuse, distance: d, overhead: units(compareOps(p.distance, n, p.kind === 'agreeing')) };
 }
 
@@ -59,6 +68,7 @@ export function streamOpen(p: StreamPolicy, s: StreamState, v: ExitView, stop: n
   s.scene += 1;
   s.exit = k;
   s.label = label;
+  s.age = aged(s, stop, c);
   return overhead;
 }
 
@@ -71,14 +81,16 @@ export function streamStep(p: StreamPolicy, s: StreamState, v: ExitView, c: Chai
   let overhead = 0;
   let dist = NaN;
   let tested = false;
-  if (s.scene >= 0) {
+  const forced = refreshDue(p, s);
+  if (s.scene >= 0 && !forced) {
     const t = streamTest(p, s, v.data(k), v.offset(k), c);
     overhead += t.overhead;
     dist = t.distance;
     if (t.reuse) return { exit: k, label: s.label, reused: true, scene: s.scene, overhead, distance: dist };
     tested = true;
   }
-  const r = runFrame(then, c, v, Math.max(k, 0));
+  // a refresh runs on to the final output whatever `then` (a budget's cap included) would do
+  const r = forced ? { exit: c.exits, label: argmax(v.data(c.exits), v.offset(c.exits), c.classes), overhead: 0 } : runFrame(then, c, v, Math.max(k, 0));
   overhead += r.overhead;
   // difference without a scene: the reference exit was run, so the walk ends no shallower than it
   const exit = Math.max(r.exit, k);

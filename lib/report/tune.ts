@@ -90,8 +90,8 @@ export function settingText(p: Policy): string {
   switch (p.kind) {
     case 'patience': return `p=${p.patience}`;
     case 'budget': return `budget ${si(p.budget)}${p.score ? ` + ${p.score} ${p.thresholds.map(num).join(' ')}` : ''}`;
-    case 'difference': return `${p.distance} < ${num(p.thresholds[0])} at exit ${p.exit}${p.then ? ` then ${p.then.kind}` : ''}`;
-    case 'agreeing': return `${p.distance} < ${num(p.thresholds[0])}${p.then ? ` then ${p.then.kind}` : ''}`;
+    case 'difference': return `${p.distance} < ${num(p.thresholds[0])} at exit ${p.exit}${p.then ? ` then ${p.then.kind}` : ''}${p.refresh ? `, refresh ${p.refresh}` : ''}`;
+    case 'agreeing': return `${p.distance} < ${num(p.thresholds[0])}${p.then ? ` then ${p.then.kind}` : ''}${p.refresh ? `, refresh ${p.refresh}` : ''}`;
     default: return `${p.kind} ${p.thresholds.map(num).join(' ')}`;
   }
 }
@@ -102,6 +102,7 @@ export function tuneJson(t: TuneReport): string {
     schema: TUNE_SCHEMA, data: t.data, stream: t.stream, labelled: r.labelled, maxDrop: r.maxDrop, split: r.split,
     exits: t.exitNames, reach: r.reach, stages: t.stages, settings: r.settings,
     guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null,
+    ...('scenes' in r && { scenes: (r as { scenes: unknown }).scenes }),
   }) + '\n';
 }
 

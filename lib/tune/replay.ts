@@ -4,7 +4,7 @@
 // order, so a replay spends exactly what the tuner's simulation predicted.
 import { OfframpError } from '../errors.js';
 import {
-  argmax, chainFor, compareExit, decide, decisionCost, frameStart, fullModel, isStream, streamOpen, streamStart, streamTest,
+  argmax, chainFor, compareExit, decide, decisionCost, frameStart, fullModel, isStream, refreshDue, streamOpen, streamStart, streamTest,
   type FramePolicy, type Policy,
 } from '../policy/index.js';
 import type { Chain } from '../run/chain.js';
@@ -45,16 +45,18 @@ export async function replay(chain: Chain, layout: ChainLayout, policy: Policy, 
     const seen: Float32Array[] = new Array(E + 1);
     const fs = frameStart();
     const k0 = stream ? compareExit(stream, s) : -1, from = Math.max(k0, 0);
+    // a refresh runs this frame on to the final output, untested
+    const forced = stream ? refreshDue(stream, s) : false;
     let overhead = 0, reused = false, tested = false;
     const at = (k: number, z: Float32Array): boolean => {
       seen[k] = z;
-      if (stream && s.scene >= 0 && k === k0) {
+      if (stream && s.scene >= 0 && k === k0 && !forced) {
         const t = streamTest(stream, s, z, 0, ch);
         overhead += t.overhead;
         if (t.reuse) { reused = true; return true; }
         tested = true;
       }
-      if (k < from || k >= E) return false;
+      if (forced || k < from || k >= E) return false;
       if (k >= ch.cap) return true;
       overhead += decisionCost(frame, k, C);
       return decide(frame, fs, k, z, 0, ch);

@@ -1,13 +1,27 @@
 // Stream tuning: the difference and agreeing policies over an ordered sequence.
 // A setting's evaluation walks the frames in order through streamStep, the same
 // state machine a runner or a firmware port uses, so scene state carries over
-// exactly. The split keeps time order: tune on the head, report on the tail.
+// exactly. Evidence comes in scenes (lib/tune/scenes.ts): the recording is cut
+// at a scene boundary, settings are searched on the head, and the Pareto front,
+// ordered from cautious to cheap, is certified on the tail by fixed-sequence
+// testing (Learn-then-Test) with a bound on the scene-averaged drop
+// (lib/certify/scenes.ts). A setting passes only with its neighbour threshold
+// (the next bolder one), so a slightly different site does not fall off a cliff.
 import { OfframpError } from '../errors.js';
+import { fixedSequence } from '../certify/sequence.js';
+import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scenes.js';
 import { chainFor, DISTANCES, distance, fullModel, isStream, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
-import { reachOf, splitParts, viewOf, type ExitCache, type ExitCosts } from './cache.js';
+import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
+import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
+import type { Guarantee } from './guarantee.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
 
 export interface StreamEval extends Eval { scenes: number; reused: number }
+
+/** Refresh periods tried (frames): short ones cap what a missed scene change costs, long ones cost less. */
+export const REFRESH = [8, 16, 32, 64, 128] as const;
+/** A certified setting must also pass with its threshold this many times larger. */
+export const BOLDER = 1.25;
 
 export interface StreamTuneOptions {
   maxDrop?: number;
@@ -18,32 +32,62 @@ export interface StreamTuneOptions {
   kinds?: readonly StreamPolicy['kind'][];
   /** per-frame policies to run on a scene change (the full model is always tried) */
   then?: FramePolicy[];
+  /** C: the bound holds with probability ≥ C over the draw of the recording (default 0.95) */
+  confidence?: number;
+  /** scene (or segment) id per frame; a change of id starts a scene. Default: runs of the full model's answers */
+  segments?: ArrayLike<number>;
+  /** refresh periods to try (default REFRESH) */
+  refresh?: readonly number[];
 }
 
-/** Run a stream policy over frames idx (in order) of the cache. */
-export function evalStream(c: ExitCache, idx: Int32Array, p: StreamPolicy | FramePolicy, reach: Float64Array): StreamEval & { correct: number; cost: number } {
+export interface StreamTuneResult extends TuneResult<StreamPolicy> {
+  guarantee: Guarantee;
+  scenes: { source: SceneSource; tune: number; held: number };
+}
+
+type Run = StreamEval & { correct: number; cost: number };
+
+/** Run a stream policy over frames idx (in order) of the cache; `out` receives each frame's answer. */
+export function evalStream(c: ExitCache, idx: Int32Array, p: StreamPolicy | FramePolicy, reach: Float64Array, out?: Int32Array): Run {
   const E = c.exits, C = c.classes;
   const hist = new Int32Array(E + 1);
   let correct = 0, cost = 0, reused = 0, scenes = 0;
   if (!isStream(p)) {
     const ch = chainFor(p, reach, E, C);
     // a per-frame policy on the same frames, for comparison: every frame its own scene
-    for (const i of idx) {
-      const r = runFrame(p, ch, viewOf(c, i));
+    for (let j = 0; j < idx.length; j++) {
+      const i = idx[j], r = runFrame(p, ch, viewOf(c, i));
       hist[r.exit]++; cost += reach[r.exit] + r.overhead; correct += r.label === c.labels[i] ? 1 : 0;
+      if (out) out[j] = r.label;
     }
     scenes = idx.length;
   } else {
     const ch = chainFor(p.then ?? fullModel(E), reach, E, C);
     const s = streamStart(C);
-    for (const i of idx) {
-      const r = streamStep(p, s, viewOf(c, i), ch);
+    for (let j = 0; j < idx.length; j++) {
+      const i = idx[j], r = streamStep(p, s, viewOf(c, i), ch);
       hist[r.exit]++; cost += reach[r.exit] + r.overhead; correct += r.label === c.labels[i] ? 1 : 0;
       if (r.reused) reused++;
+      if (out) out[j] = r.label;
     }
     scenes = s.scene + 1;
   }
   return { ...evalOf({ correct, cost, hist }, idx.length), scenes, reused, correct, cost };
+}
+
+/** Per-scene lost and gained shares of answers `lab` (one per frame of idx) against the full model. */
+export function sceneShares(c: ExitCache, idx: Int32Array, lab: Int32Array, ids: Int32Array, full: Int32Array): SceneShares {
+  let n = 0, lost = 0, gained = 0, len = 0, l = 0, g = 0, cur = -1;
+  const flush = () => { if (len) { n++; lost += l / len; gained += g / len; } len = 0; l = 0; g = 0; };
+  for (let j = 0; j < idx.length; j++) {
+    const i = idx[j];
+    if (ids[i] !== cur) { flush(); cur = ids[i]; }
+    len++;
+    const fr = full[i] === c.labels[i], pr = lab[j] === c.labels[i];
+    if (fr && !pr) l++; else if (!fr && pr) g++;
+  }
+  flush();
+  return { n, lost: n ? lost / n : 0, gained: n ? gained / n : 0, labelled: c.labelled };
 }
 
 /** Distance-threshold candidates: quantiles of the distances between consecutive frames' softmax at the exits given. */
@@ -64,45 +108,106 @@ function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[]
   return [...out].sort((x, y) => x - y);
 }
 
-export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions = {}): TuneResult<StreamPolicy> {
-  const maxDrop = o.maxDrop ?? 1, heldOut = o.heldOut ?? 0.5, grid = o.grid ?? 24, E = c.exits;
+export const STREAM_ASSUMES = [
+  'scenes are independent of one another (frames within a scene are not: a scene counts as one piece of evidence)',
+  'scene changes arrive at a rate like the tuning recording\'s, with scenes of like lengths and kinds',
+  'the bound is on the scene-averaged drop (mean over scenes of the share of a scene\'s frames lost against the full model); a recording whose losses fall on its longest scenes can show a larger frame-weighted drop',
+];
+
+export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions = {}): StreamTuneResult {
+  const maxDrop = o.maxDrop ?? 1, heldOut = o.heldOut ?? 0.5, grid = o.grid ?? 24, E = c.exits, conf = o.confidence ?? 0.95;
   if (!(maxDrop >= 0)) throw new OfframpError('usage', `--max-drop must be ≥ 0 percentage points, not ${maxDrop}`);
+  if (!(conf > 0 && conf < 1)) throw new OfframpError('usage', `--confidence takes a number strictly between 0 and 1, not ${conf}`);
   if (c.samples < 4) throw new OfframpError('data', 'stream tuning needs at least 4 frames');
+  const refresh = o.refresh ?? REFRESH;
+  for (const r of refresh) if (!(Number.isInteger(r) && r >= 1)) throw new OfframpError('usage', `a refresh period is a whole number of frames ≥ 1, not ${r}`);
+  const delta = 1 - conf, limit = maxDrop / 100;
   const reach = reachOf(costs, E);
-  const parts = splitParts(c.samples, heldOut, 'tail');
+  const sc = sceneIds(c, o.segments);
+  const parts = sceneSplit(sc.ids, heldOut);
+  const full = fullAnswers(c);
+  const tuneLab = new Int32Array(parts.tune.length), heldLab = new Int32Array(parts.held.length);
   const fullPolicy = fullModel(E);
-  const tuneFull = evalStream(c, parts.tune, fullPolicy, reach), heldFull = evalStream(c, parts.held, fullPolicy, reach);
-  const strip = (e: StreamEval & { correct: number; cost: number }): StreamEval => ({ samples: e.samples, accuracy: e.accuracy, meanMacs: e.meanMacs, exitShare: e.exitShare, scenes: e.scenes, reused: e.reused });
-  const full: Point<FramePolicy> = { policy: fullPolicy, tune: strip(tuneFull), held: strip(heldFull) };
-  const fits = (e: { correct: number }, f: { correct: number }, n: number) => (f.correct - e.correct) * 100 <= maxDrop * n;
+  const strip = (e: Run): StreamEval => ({ samples: e.samples, accuracy: e.accuracy, meanMacs: e.meanMacs, exitShare: e.exitShare, scenes: e.scenes, reused: e.reused });
+  const fullPt: Point<FramePolicy> = { policy: fullPolicy, tune: strip(evalStream(c, parts.tune, fullPolicy, reach)), held: strip(evalStream(c, parts.held, fullPolicy, reach)) };
+  const tuneScenes = sceneShares(c, parts.tune, tuneLab, sc.ids, full).n;
+  const heldScenes = sceneShares(c, parts.held, heldLab, sc.ids, full).n;
   const thens: (FramePolicy | undefined)[] = [undefined, ...(o.then ?? [])];
-  let settings = 0;
-  const kinds: KindResult<StreamPolicy>[] = [];
-  for (const kind of o.kinds ?? (['difference', 'agreeing'] as const)) {
-    const recs: { policy: StreamPolicy; correct: number; cost: number; e: StreamEval }[] = [];
+
+  // search: every setting on the head; a family is one (kind, distance, exit, then, refresh), its thresholds ascending
+  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; e: StreamEval; bolder?: Rec }
+  const recs: Rec[] = [];
+  const searched = (policy: StreamPolicy, kind: string): Rec => {
+    const e = evalStream(c, parts.tune, policy, reach, tuneLab);
+    const s = sceneShares(c, parts.tune, tuneLab, sc.ids, full);
+    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: sceneDropBound(s, delta).bound, e: strip(e) };
+  };
+  // the neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller)
+  const bolder = (r: Rec): Rec => (r.bolder ??= searched({ ...r.policy, thresholds: [r.policy.thresholds[0] * BOLDER] }, r.kind));
+  const kindList = o.kinds ?? (['difference', 'agreeing'] as const);
+  for (const kind of kindList) {
     for (const dist of o.distances ?? DISTANCES) {
       for (const exit of kind === 'difference' ? Array.from({ length: E }, (_, k) => k) : [-1]) {
         const ts = taus(c, parts.tune, dist, exit >= 0 ? [exit] : Array.from({ length: E }, (_, k) => k), grid);
-        for (const then of thens) for (const t of ts) {
-          const policy: StreamPolicy = kind === 'difference' ? { kind, thresholds: [t], distance: dist, exit } : { kind, thresholds: [t], distance: dist };
-          if (then) policy.then = then;
-          const e = evalStream(c, parts.tune, policy, reach);
-          recs.push({ policy, correct: e.correct, cost: e.cost, e: strip(e) });
+        for (const then of thens) for (const R of refresh) {
+          for (const t of ts) {
+            const policy: StreamPolicy = kind === 'difference' ? { kind, thresholds: [t], distance: dist, exit } : { kind, thresholds: [t], distance: dist };
+            if (then) policy.then = then;
+            policy.refresh = R;
+            recs.push(searched(policy, kind));
+          }
         }
       }
     }
-    settings += recs.length;
-    const points: Point<StreamPolicy>[] = [];
-    let chosen: Point<StreamPolicy | FramePolicy> = full, chosenCost = full.held.meanMacs;
-    for (const r of front(recs)) {
-      const h = evalStream(c, parts.held, r.policy, reach);
-      const pt: Point<StreamPolicy> = { policy: r.policy, tune: r.e, held: strip(h) };
-      points.push(pt);
-      if (fits(r, tuneFull, parts.tune.length) && fits(h, heldFull, parts.held.length) && pt.held.meanMacs < chosenCost) { chosen = pt; chosenCost = pt.held.meanMacs; }
-    }
-    kinds.push({ kind, evaluated: recs.length, front: points, chosen: chosen as Point<StreamPolicy> });
   }
-  let chosen: Point<StreamPolicy | FramePolicy> = full;
-  for (const r of kinds) if (r.chosen.held.meanMacs < chosen.held.meanMacs) chosen = r.chosen;
-  return { labelled: c.labelled, maxDrop, split: { mode: 'tail', heldOut, tune: parts.tune.length, held: parts.held.length }, reach: [...reach], full, kinds, chosen, settings };
+
+  // the front on the head: cost against the bound the head itself gives (what certification will test: a setting whose
+  // gains offset its losses has a low estimate but a loose bound). Cautious first: by that bound for the setting and
+  // its bolder neighbour, so the sequence meets the settings most likely to pass before it can stop
+  const fr = front(recs.map((r) => ({ r, cost: r.cost, correct: -r.hb }))).map((x) => x.r);
+  const headBound = new Map(fr.map((r) => [r, Math.max(r.hb, bolder(r).hb)]));
+  const ordered = fr.filter((r) => r.drop <= limit && bolder(r).drop <= limit)
+    .sort((a, b) => headBound.get(a)! - headBound.get(b)! || b.cost - a.cost);
+  const heldOf = new Map<Rec, { e: StreamEval; shares: SceneShares }>();
+  const certify = (r: Rec) => {
+    let h = heldOf.get(r);
+    if (!h) { const e = evalStream(c, parts.held, r.policy, reach, heldLab); h = { e: strip(e), shares: sceneShares(c, parts.held, heldLab, sc.ids, full) }; heldOf.set(r, h); }
+    return h;
+  };
+  // intersection–union: the setting and its neighbour are each tested at level δ
+  const bounds = (r: Rec) => [r, bolder(r)].map((x) => sceneDropBound(certify(x).shares, delta));
+  const seq = fixedSequence(ordered, (r) => bounds(r).every((b) => b.bound <= limit));
+  // every passed setting is certified together (family-wise); the cheapest of them is kept
+  const cheapest = (rs: Rec[]) => rs.reduce<Rec | undefined>((m, r) => (!m || r.cost < m.cost ? r : m), undefined);
+  const last = cheapest(seq.passed);
+
+  const pointOf = (r: Rec): Point<StreamPolicy> => ({ policy: r.policy, tune: r.e, held: certify(r).e });
+  const kinds: KindResult<StreamPolicy>[] = kindList.map((kind) => {
+    const mine = cheapest(seq.passed.filter((r) => r.kind === kind));
+    return { kind, evaluated: recs.filter((r) => r.kind === kind).length, front: fr.filter((r) => r.kind === kind).map(pointOf), chosen: (mine ? pointOf(mine) : fullPt) as Point<StreamPolicy> };
+  });
+  const chosen: Point<StreamPolicy | FramePolicy> = last ? pointOf(last) : fullPt;
+
+  // advice, not a promise: scenes the same per-scene rates would need, for the first setting that failed or, when
+  // nothing passed, the front setting closest to passing
+  const need = (r: Rec) => {
+    const ns = [r, bolder(r)].map((x) => scenesNeeded(certify(x).shares, limit, delta));
+    return ns.some((n) => n === undefined) ? undefined : Math.max(...(ns as number[]));
+  };
+  let needed = seq.failed && need(seq.failed);
+  if (!last) for (const r of fr) { const n = need(r); if (n !== undefined && (needed === undefined || n < needed)) needed = n; }
+  const b = last ? bounds(last)[0] : undefined;
+  const guarantee: Guarantee = {
+    confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
+    estimate: b ? b.estimate * 100 : 0, bound: b ? b.bound * 100 : 0,
+    method: b ? `${b.method}, fixed-sequence over the front` : 'the full model (nothing cheaper certified)',
+    margin: b ? maxDrop - b.bound * 100 : maxDrop,
+    tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
+    ...(needed !== undefined && { needed }),
+    assumes: [...STREAM_ASSUMES, `scenes from ${sc.source}: ${tuneScenes} searched, ${heldScenes} certified`],
+  };
+  return {
+    labelled: c.labelled, maxDrop, split: { mode: 'tail', heldOut, tune: parts.tune.length, held: parts.held.length }, reach: [...reach],
+    full: fullPt, kinds, chosen, settings: recs.length, guarantee, scenes: { source: sc.source, tune: tuneScenes, held: heldScenes },
+  };
 }
