@@ -8,6 +8,9 @@ import { cli, makeFixture, oneLine, snapshot, type Fixture } from './helpers/rob
 import { writeNpy } from '../lib/data/npy.js';
 import { ROWS } from './helpers/robust.js';
 
+// Stage files are named by their content: the manifest says which is which.
+const stageFile = (dir: string, k: number) => path.join(dir, JSON.parse(fs.readFileSync(path.join(dir, 'manifest.json'), 'utf8')).stages[k].file as string);
+
 let f: Fixture, p: (name: string) => string;
 
 beforeAll(async () => {
@@ -48,9 +51,9 @@ describe('an output that names an input is refused and nothing changes', () => {
     ['split into a folder whose stage file is the model', () => ['split', f.model, '--at', '30%,60%', '-o', p('split-trap')], /model/],
     ['tune --report the manifest', () => ['tune', f.split, '--data', f.x, '--labels', f.y, '--report', path.join(f.split, 'manifest.json')], /manifest/],
     ['tune --report the data', () => ['tune', f.split, '--data', f.x, '--report', p('x-link.npy')], /data/],
-    ['tune --report a stage file', () => ['tune', f.split, '--data', f.x, '--report', path.join(f.split, 'stage-0.onnx')], /stage file/],
+    ['tune --report a stage file', () => ['tune', f.split, '--data', f.x, '--report', stageFile(f.split, 0)], /stage file/],
     ['replay --csv the data', () => ['replay', f.split, '--data', f.x, '--csv', f.x], /data/],
-    ['replay --csv a stage file', () => ['replay', f.split, '--data', f.x, '--csv', path.join(f.split, 'stage-1.onnx')], /stage file/],
+    ['replay --csv a stage file', () => ['replay', f.split, '--data', f.x, '--csv', stageFile(f.split, 1)], /stage file/],
     ['replay --csv the labels', () => ['replay', f.split, '--data', f.x, '--labels', f.y, '--csv', f.y], /labels/],
     ['replay --csv the segments', () => ['replay', f.split, '--data', f.x, '--segments', p('seg.npy'), '--csv', p('seg.npy')], /segments/],
     ['replay --csv the policy file', () => ['replay', f.split, '--data', f.x, '--policy', p('policy.json'), '--csv', p('policy.json')], /policy/],
