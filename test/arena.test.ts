@@ -122,6 +122,17 @@ describe('arena plan, worked examples', () => {
     expect(planArena(r, { align: 1 }).bytes).toBe(60n);
   });
 
+  it('beyond 2^53 bytes in total every value gets bytes of its own, exactly', () => {
+    // 2^52 + 2^52 + 16 > 2^53 - 1: offsets 0, 2^52, 2^53 (bigint), arena 2^53 + 16.
+    const r: LiveValue[] = [
+      { name: 'a', bytes: 2n ** 52n, birth: 0, death: 1 }, { name: 'b', bytes: 2n ** 52n, birth: 1, death: 1 }, { name: 'c', bytes: 16n, birth: 1, death: 1 },
+    ];
+    const p = planArena(r);
+    expect(p.method).toBe('stacked');
+    expect(p.slots.map((s) => s.offset)).toEqual([0n, 2n ** 52n, 2n ** 53n]);
+    expect([p.bytes, p.bound]).toEqual([2n ** 53n + 16n, 2n ** 53n + 16n]);
+  });
+
   it('greedy by breadth wins where greedy by size fragments the arena', () => {
     // A 16 (steps 2–4), B 64 (2), C 48 (2–3), D 48 (3), E 32 (3–5). Live sets: step 2 A+B+C = 128,
     // step 3 A+C+D+E = 144 (the bound), step 4 A+E = 48, step 5 E = 32.
@@ -173,7 +184,7 @@ describe('arena plan on random graphs (property)', () => {
   it('no overlap, aligned, never below the bound, independent of the order the ranges come in', () => {
     const rnd = mulberry32(11);
     let pairs = 0, above = 0;
-    for (let trial = 0; trial < 400; trial++) {
+    for (let trial = 0; trial < 150; trial++) {
       const { ranges, steps } = randomRanges(rnd, 40);
       // The whole order, and a stage in the middle (values crossing it clipped to it, as the cost report does).
       const a = Math.floor(rnd() * steps), b = a + Math.floor(rnd() * (steps - a));
@@ -190,7 +201,7 @@ describe('arena plan on random graphs (property)', () => {
       }
     }
     // Not vacuous: many live pairs were checked, and some plans do sit above the bound.
-    expect(pairs).toBeGreaterThan(5000);
+    expect(pairs).toBeGreaterThan(2000);
     expect(above).toBeGreaterThan(0);
   });
 

@@ -140,11 +140,28 @@ export function planArena(ranges: LiveValue[], opts: { from?: number; to?: numbe
   const byBreadthRun = methods.includes('greedy-by-breadth') || methods.includes('squeaky-wheel') ? run(greedyByBreadth(p, from, to)) : bySizeRun;
   const plans = methods.map((method) => ({
     method,
-    ...(method === 'greedy-by-size' ? bySizeRun : method === 'greedy-by-breadth' ? byBreadthRun : squeakyWheel([bySizeRun, byBreadthRun], p, Number(bound), run)),
+    ...(method === 'greedy-by-size' ? bySizeRun : method === 'greedy-by-breadth' ? byBreadthRun : squeakyWheel([bySizeRun, byBreadthRun], p, alignedBound(p, from, to), run)),
   }));
   // The smaller arena; on a tie, the method listed first (greedy by size by default).
   const best = plans.reduce((x, y) => (y.bytes < x.bytes ? y : x));
   return { bytes: BigInt(best.bytes), bound, method: best.method, align, slots: slots((i) => BigInt(best.at[i])) };
+}
+
+/**
+ * The live-set bound with alignment: at a step, live buffers sit one above another, and each but the
+ * topmost is followed by an aligned offset, so it takes its size rounded up. No plan goes below this;
+ * a plan that reaches it cannot be improved.
+ */
+function alignedBound(p: Problem, from: number, to: number): number {
+  const sum = new Float64Array(to - from + 2), slack = new Float64Array(to - from + 2);
+  for (let v = 0; v < p.n; v++) {
+    if (!p.size[v]) continue;
+    const up = Math.ceil(p.size[v] / p.align) * p.align;
+    for (let s = p.birth[v]; s <= p.death[v]; s++) { sum[s - from] += up; if (up - p.size[v] > slack[s - from]) slack[s - from] = up - p.size[v]; }
+  }
+  let best = 0;
+  for (let s = 0; s < sum.length; s++) if (sum[s] - slack[s] > best) best = sum[s] - slack[s];
+  return best;
 }
 
 /** Rounds of re-prioritising per start; each is one placement pass. */
@@ -153,7 +170,7 @@ const WHEEL_ROUNDS = 8;
 type Run = { at: Float64Array; bytes: number; order: number[] };
 /**
  * Squeaky wheel optimization (Joslin & Clements 1999) over the greedy orders: the values a plan puts
- * above the live-set bound go first in the next round, the rest keep their order. Greedy by size puts
+ * above the (aligned) live-set bound go first in the next round, the rest keep their order. Greedy by size puts
  * every large buffer first, into fixed slots; in a chain of residual blocks the block inputs then
  * stack above both slots, while the optimum alternates them with the large buffers from block to
  * block. Putting those inputs first finds that layout. Never worse than its starting plans.
