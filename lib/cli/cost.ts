@@ -36,9 +36,9 @@ export function costCommand(program: Command): void {
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
     .action(modelAction(async (file: string, o: CostFlags) => {
       // Target options are checked before the model is read, so a typo fails fast.
+      const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const target = resolveTarget(o);
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
-      const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const model = loadModel(file);
       refuseInputsAsOutputs([...modelReads(model, file), { file: targetFile(o.target), role: 'target profile' }], [o.out, o.saveReordered]);
       const shapes = await completeShapes(model, opts);

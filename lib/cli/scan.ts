@@ -3,7 +3,6 @@ import type { Command } from 'commander';
 import { loadModel } from '../graph/io.js';
 import { rankCuts, scanModel, type Cut, type CutPlan } from '../cuts/scan.js';
 import { bytes, si, table, toJson } from '../report/units.js';
-import { usageError } from '../errors.js';
 import { collect, emit, parseBatch, parseDims, parseNumber, modelAction } from './common.js';
 import { modelReads, refuseInputsAsOutputs } from './guard.js';
 
