@@ -160,6 +160,12 @@ describe('one writer per folder', () => {
     expect(r.stderr).toBe(`offramp: ${dir}: another offramp (pid ${process.pid}) is writing this folder; run again when it has finished\n`);
     expect(snapshot(dir)).toEqual(before);
     expect(fs.readFileSync(`${dir}.lock`, 'utf8')).toBe(`${process.pid}\n`);
+    // build takes the lock before any work: refused at once, DIR untouched, no scratch made.
+    const b = run(['build', model, '--data', data, '--max-drop', '100', '-o', dir]);
+    expect(b.code).toBe(1);
+    expect(b.stderr).toMatch(/is writing this folder/);
+    expect(snapshot(dir)).toEqual(before);
+    expect(beside(dir)).toEqual([`${path.basename(dir)}.lock`]);
 
     const dead = deadPid();
     fs.writeFileSync(`${dir}.lock`, `${dead}\n`);
