@@ -60,23 +60,34 @@ beforeAll(() => {
  * Then the variant runs to the end over the leftovers of the last stop (a dead writer's lock and
  * scratch) and gives exactly the folder an unstopped run gives.
  */
-function killProperty(name: string, base: (out: string) => string[], variant: (out: string) => string[], points: (log: string[], dir: string) => number[]) {
+interface Prepared { first: string; dir: string; done: string; log: string[]; oldSha: string; newSha: string }
+const prepared = new Map<string, Prepared>();
+
+/**
+ * `first`: `base`'s result; `dir`: where `variant` runs over a copy of it; `done`: the variant's
+ * unstopped result; `log`: the variant's file changes, in order. Made once per name.
+ */
+function prepare(name: string, base: (out: string) => string[], variant: (out: string) => string[]): Prepared {
+  const had = prepared.get(name);
+  if (had) return had;
   const root = path.join(tmp, name);
   fs.mkdirSync(root);
   const first = path.join(root, 'first'), dir = path.join(root, 'out'), done = path.join(root, 'done');
   expect(run(base(first)).code).toBe(0);
   expect(folderProblems(first)).toEqual([]);
-  const oldSha = manifestSha(first);
-
   const logFile = path.join(root, 'log');
   reset(dir, first);
   expect(run(variant(dir), { OFFRAMP_TEST_LOG: logFile }).code).toBe(0);
   expect(folderProblems(dir)).toEqual([]);
-  const newSha = manifestSha(dir);
-  expect(newSha).not.toBe(oldSha);
   fs.cpSync(dir, done, { recursive: true });
-  const log = fs.readFileSync(logFile, 'utf8').trimEnd().split('\n');
+  const p = { first, dir, done, log: fs.readFileSync(logFile, 'utf8').trimEnd().split('\n'), oldSha: manifestSha(first), newSha: manifestSha(dir) };
+  expect(p.newSha).not.toBe(p.oldSha);
+  prepared.set(name, p);
+  return p;
+}
 
+function killProperty(p: Prepared, variant: (out: string) => string[], points: (log: string[], dir: string) => number[]) {
+  const { first, dir, done, log, oldSha, newSha } = p;
   const stops = points(log, dir);
   expect(stops.length).toBeGreaterThanOrEqual(6);
   for (const k of stops) {
@@ -93,11 +104,13 @@ function killProperty(name: string, base: (out: string) => string[], variant: (o
   expect(beside(dir)).toEqual([]);
 }
 
+const build = (extra: string[]) => (out: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '-o', out, ...extra];
+const buildBase = build(['--seed', '1']), buildVariant = build(['--seed', '2', '--max-exits', '1']);
+
 describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
   it('build', () => {
-    const build = (extra: string[]) => (out: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '-o', out, ...extra];
-    // Mostly the changes inside DIR (the commit), a few anywhere (the scratch phase, the lock).
-    killProperty('build', build(['--seed', '1']), build(['--seed', '2', '--max-exits', '1']), (log, dir) => {
+    // Mostly the changes inside DIR (the commit), one anywhere (the scratch phase, the lock).
+    killProperty(prepare('build', buildBase, buildVariant), buildVariant, (log, dir) => {
       const all = log.map((_, i) => i + 1);
       const inDir = all.filter((k) => log[k - 1].split(' ').slice(1).some((p) => p.startsWith(dir + path.sep)));
       const inside = pick(inDir, 5, 11);
@@ -106,23 +119,14 @@ describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
   });
 
   it('split', () => {
-    killProperty('split', (out) => ['split', model, '--at', '20%,50%,80%', '-o', out], (out) => ['split', model, '--at', '40%', '-o', out],
-      (log) => pick(log.map((_, i) => i + 1), 6, 21));
+    const split = (at: string) => (out: string) => ['split', model, '--at', at, '-o', out];
+    killProperty(prepare('split', split('20%,50%,80%'), split('40%')), split('40%'), (log) => pick(log.map((_, i) => i + 1), 6, 21));
   });
 });
 
 describe('SIGINT and SIGTERM', () => {
   it('build: stopped while building, DIR is as it was and no scratch, temp or lock file is left; stopped while committing, the commit completes first', () => {
-    const root = path.join(tmp, 'signals');
-    fs.mkdirSync(root);
-    const first = path.join(root, 'first'), dir = path.join(root, 'out');
-    const build = (out: string, seed: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '--seed', seed, '-o', out];
-    expect(run(build(first, '1')).code).toBe(0);
-    const logFile = path.join(root, 'log');
-    reset(dir, first);
-    expect(run(build(dir, '2'), { OFFRAMP_TEST_LOG: logFile }).code).toBe(0);
-    const newSha = manifestSha(dir);
-    const log = fs.readFileSync(logFile, 'utf8').trimEnd().split('\n');
+    const { first, dir, log, newSha } = prepare('build', buildBase, buildVariant);
     const inScratch = log.findIndex((l) => l.includes(`${dir}.partial-`) && l.startsWith('renameSync')) + 1;
     const manifestIn = log.findIndex((l) => l.startsWith('renameSync') && l.endsWith(path.join(dir, 'manifest.json'))) + 1;
     expect(inScratch).toBeGreaterThan(0);
@@ -131,14 +135,14 @@ describe('SIGINT and SIGTERM', () => {
     for (const signal of ['SIGINT', 'SIGTERM']) {
       reset(dir, first);
       const before = snapshot(dir);
-      const r = run(build(dir, '2'), { OFFRAMP_TEST_KILL_AT: String(inScratch), OFFRAMP_TEST_SIGNAL: signal });
+      const r = run(buildVariant(dir), { OFFRAMP_TEST_KILL_AT: String(inScratch), OFFRAMP_TEST_SIGNAL: signal });
       expect(r.signal).toBe(signal);
       expect(snapshot(dir)).toEqual(before);
       expect(beside(dir)).toEqual([]);
       expect(temps(dir)).toEqual([]);
     }
     reset(dir, first);
-    const r = run(build(dir, '2'), { OFFRAMP_TEST_KILL_AT: String(manifestIn - 1), OFFRAMP_TEST_SIGNAL: 'SIGINT' });
+    const r = run(buildVariant(dir), { OFFRAMP_TEST_KILL_AT: String(manifestIn - 1), OFFRAMP_TEST_SIGNAL: 'SIGINT' });
     expect(r.signal).toBe('SIGINT');
     expect(folderProblems(dir)).toEqual([]);
     expect(manifestSha(dir)).toBe(newSha);
