@@ -124,6 +124,23 @@ describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
   });
 });
 
+describe('split into a build folder', () => {
+  it('removes the reports and firmware code of the manifest it replaces, keeps files it does not own', () => {
+    const { done } = prepare('build', buildBase, buildVariant);
+    const dir = path.join(tmp, 'resplit');
+    fs.cpSync(done, dir, { recursive: true });
+    fs.writeFileSync(path.join(dir, 'notes.txt'), 'mine');
+    const grafted = fs.readdirSync(dir).find((f) => f.startsWith('model.'))!;
+    // The build's own grafted model, split again into its folder: the source stays.
+    expect(run(['split', path.join(dir, grafted), '-o', dir]).code).toBe(0);
+    expect(folderProblems(dir)).toEqual([]);
+    const left = snapshot(dir).map(([f]) => f);
+    for (const f of ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c']) expect(left).not.toContain(f);
+    expect(left).toContain('notes.txt');
+    expect(left).toContain(grafted);
+  });
+});
+
 describe('SIGINT and SIGTERM', () => {
   it('build: stopped while building, DIR is as it was and no scratch, temp or lock file is left; stopped while committing, the commit completes first', () => {
     const { first, dir, log, newSha } = prepare('build', buildBase, buildVariant);
