@@ -3,7 +3,7 @@
 // one, and passes the consistency check (manifest ↔ files' SHA-256 ↔ reports); SIGINT/SIGTERM
 // clean up scratch, temp and lock files; a live writer's lock is refused, a dead one's taken over.
 // The stops are made exact by a preloaded module (helpers/kill-at.mjs), not by timing.
-import { describe, it, expect, beforeAll } from 'vitest';
+import { describe, it, expect, beforeAll, vi } from 'vitest';
 import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
@@ -13,6 +13,7 @@ import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
 import { saveModel } from '../lib/graph/io.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { folderProblems, manifestSha, snapshot } from './helpers/folder-check.js';
+import { lockFolder } from '../lib/util/folder.js';
 
 const BIN = path.resolve(import.meta.dirname, '../bin/offramp.js');
 const KILL = pathToFileURL(path.resolve(import.meta.dirname, 'helpers/kill-at.mjs')).href;
@@ -198,6 +199,26 @@ describe('one writer per folder', () => {
     expect(folderProblems(dir)).toEqual([]);
     expect(beside(dir)).toEqual([`${path.basename(dir)}.partial-${process.pid}`]);
     expect(temps(dir)).toEqual([]);
+  });
+
+  it('where the file system has no hard links (FAT): O_EXCL with the pid inside; an empty lock is held while fresh', () => {
+    const spy = vi.spyOn(fs, 'linkSync').mockImplementation(() => { throw Object.assign(new Error('operation not permitted'), { code: 'EPERM' }); });
+    try {
+      const dir = path.join(tmp, 'fat');
+      const held = lockFolder(dir);
+      expect(fs.readFileSync(`${dir}.lock`, 'utf8')).toBe(`${process.pid}\n`);
+      expect(() => lockFolder(dir)).toThrow(`another offramp (pid ${process.pid}) is writing this folder`);
+      held.release();
+      expect(fs.existsSync(`${dir}.lock`)).toBe(false);
+      // A writer between its O_EXCL open and writing its pid.
+      fs.writeFileSync(`${dir}.lock`, '');
+      expect(() => lockFolder(dir)).toThrow('another offramp is writing this folder');
+      // Empty for a minute: its writer died there.
+      const old = new Date(Date.now() - 60_000);
+      fs.utimesSync(`${dir}.lock`, old, old);
+      lockFolder(dir).release();
+      expect(fs.readdirSync(tmp).filter((f) => f.startsWith('fat.'))).toEqual([]);
+    } finally { spy.mockRestore(); }
   });
 
   it('two splits into one folder at once: each finishes or is refused, never interleaved', async () => {
