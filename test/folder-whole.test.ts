@@ -3,7 +3,7 @@
 // one, and passes the consistency check (manifest ↔ files' SHA-256 ↔ reports); SIGINT/SIGTERM
 // clean up scratch, temp and lock files; a live writer's lock is refused, a dead one's taken over.
 // The stops are made exact by a preloaded module (helpers/kill-at.mjs), not by timing.
-import { describe, it, expect, beforeAll } from 'vitest';
+import { describe, it, expect, beforeAll, vi } from 'vitest';
 import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
@@ -13,6 +13,7 @@ import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
 import { saveModel } from '../lib/graph/io.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { folderProblems, manifestSha, snapshot } from './helpers/folder-check.js';
+import { lockFolder } from '../lib/util/folder.js';
 
 const BIN = path.resolve(import.meta.dirname, '../bin/offramp.js');
 const KILL = pathToFileURL(path.resolve(import.meta.dirname, 'helpers/kill-at.mjs')).href;
@@ -60,23 +61,34 @@ beforeAll(() => {
  * Then the variant runs to the end over the leftovers of the last stop (a dead writer's lock and
  * scratch) and gives exactly the folder an unstopped run gives.
  */
-function killProperty(name: string, base: (out: string) => string[], variant: (out: string) => string[], points: (log: string[], dir: string) => number[]) {
+interface Prepared { first: string; dir: string; done: string; log: string[]; oldSha: string; newSha: string }
+const prepared = new Map<string, Prepared>();
+
+/**
+ * `first`: `base`'s result; `dir`: where `variant` runs over a copy of it; `done`: the variant's
+ * unstopped result; `log`: the variant's file changes, in order. Made once per name.
+ */
+function prepare(name: string, base: (out: string) => string[], variant: (out: string) => string[]): Prepared {
+  const had = prepared.get(name);
+  if (had) return had;
   const root = path.join(tmp, name);
   fs.mkdirSync(root);
   const first = path.join(root, 'first'), dir = path.join(root, 'out'), done = path.join(root, 'done');
   expect(run(base(first)).code).toBe(0);
   expect(folderProblems(first)).toEqual([]);
-  const oldSha = manifestSha(first);
-
   const logFile = path.join(root, 'log');
   reset(dir, first);
   expect(run(variant(dir), { OFFRAMP_TEST_LOG: logFile }).code).toBe(0);
   expect(folderProblems(dir)).toEqual([]);
-  const newSha = manifestSha(dir);
-  expect(newSha).not.toBe(oldSha);
   fs.cpSync(dir, done, { recursive: true });
-  const log = fs.readFileSync(logFile, 'utf8').trimEnd().split('\n');
+  const p = { first, dir, done, log: fs.readFileSync(logFile, 'utf8').trimEnd().split('\n'), oldSha: manifestSha(first), newSha: manifestSha(dir) };
+  expect(p.newSha).not.toBe(p.oldSha);
+  prepared.set(name, p);
+  return p;
+}
 
+function killProperty(p: Prepared, variant: (out: string) => string[], points: (log: string[], dir: string) => number[]) {
+  const { first, dir, done, log, oldSha, newSha } = p;
   const stops = points(log, dir);
   expect(stops.length).toBeGreaterThanOrEqual(6);
   for (const k of stops) {
@@ -93,11 +105,13 @@ function killProperty(name: string, base: (out: string) => string[], variant: (o
   expect(beside(dir)).toEqual([]);
 }
 
+const build = (extra: string[]) => (out: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '-o', out, ...extra];
+const buildBase = build(['--seed', '1']), buildVariant = build(['--seed', '2', '--max-exits', '1']);
+
 describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
   it('build', () => {
-    const build = (extra: string[]) => (out: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '-o', out, ...extra];
-    // Mostly the changes inside DIR (the commit), a few anywhere (the scratch phase, the lock).
-    killProperty('build', build(['--seed', '1']), build(['--seed', '2', '--max-exits', '1']), (log, dir) => {
+    // Mostly the changes inside DIR (the commit), one anywhere (the scratch phase, the lock).
+    killProperty(prepare('build', buildBase, buildVariant), buildVariant, (log, dir) => {
       const all = log.map((_, i) => i + 1);
       const inDir = all.filter((k) => log[k - 1].split(' ').slice(1).some((p) => p.startsWith(dir + path.sep)));
       const inside = pick(inDir, 5, 11);
@@ -106,23 +120,31 @@ describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
   });
 
   it('split', () => {
-    killProperty('split', (out) => ['split', model, '--at', '20%,50%,80%', '-o', out], (out) => ['split', model, '--at', '40%', '-o', out],
-      (log) => pick(log.map((_, i) => i + 1), 6, 21));
+    const split = (at: string) => (out: string) => ['split', model, '--at', at, '-o', out];
+    killProperty(prepare('split', split('20%,50%,80%'), split('40%')), split('40%'), (log) => pick(log.map((_, i) => i + 1), 6, 21));
+  });
+});
+
+describe('split into a build folder', () => {
+  it('removes the reports and firmware code of the manifest it replaces, keeps files it does not own', () => {
+    const { done } = prepare('build', buildBase, buildVariant);
+    const dir = path.join(tmp, 'resplit');
+    fs.cpSync(done, dir, { recursive: true });
+    fs.writeFileSync(path.join(dir, 'notes.txt'), 'mine');
+    const grafted = fs.readdirSync(dir).find((f) => f.startsWith('model.'))!;
+    // The build's own grafted model, split again into its folder: the source stays.
+    expect(run(['split', path.join(dir, grafted), '-o', dir]).code).toBe(0);
+    expect(folderProblems(dir)).toEqual([]);
+    const left = snapshot(dir).map(([f]) => f);
+    for (const f of ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c']) expect(left).not.toContain(f);
+    expect(left).toContain('notes.txt');
+    expect(left).toContain(grafted);
   });
 });
 
 describe('SIGINT and SIGTERM', () => {
   it('build: stopped while building, DIR is as it was and no scratch, temp or lock file is left; stopped while committing, the commit completes first', () => {
-    const root = path.join(tmp, 'signals');
-    fs.mkdirSync(root);
-    const first = path.join(root, 'first'), dir = path.join(root, 'out');
-    const build = (out: string, seed: string) => ['build', model, '--data', data, '--max-drop', '100', '--candidates', '3', '--seed', seed, '-o', out];
-    expect(run(build(first, '1')).code).toBe(0);
-    const logFile = path.join(root, 'log');
-    reset(dir, first);
-    expect(run(build(dir, '2'), { OFFRAMP_TEST_LOG: logFile }).code).toBe(0);
-    const newSha = manifestSha(dir);
-    const log = fs.readFileSync(logFile, 'utf8').trimEnd().split('\n');
+    const { first, dir, log, newSha } = prepare('build', buildBase, buildVariant);
     const inScratch = log.findIndex((l) => l.includes(`${dir}.partial-`) && l.startsWith('renameSync')) + 1;
     const manifestIn = log.findIndex((l) => l.startsWith('renameSync') && l.endsWith(path.join(dir, 'manifest.json'))) + 1;
     expect(inScratch).toBeGreaterThan(0);
@@ -131,14 +153,14 @@ describe('SIGINT and SIGTERM', () => {
     for (const signal of ['SIGINT', 'SIGTERM']) {
       reset(dir, first);
       const before = snapshot(dir);
-      const r = run(build(dir, '2'), { OFFRAMP_TEST_KILL_AT: String(inScratch), OFFRAMP_TEST_SIGNAL: signal });
+      const r = run(buildVariant(dir), { OFFRAMP_TEST_KILL_AT: String(inScratch), OFFRAMP_TEST_SIGNAL: signal });
       expect(r.signal).toBe(signal);
       expect(snapshot(dir)).toEqual(before);
       expect(beside(dir)).toEqual([]);
       expect(temps(dir)).toEqual([]);
     }
     reset(dir, first);
-    const r = run(build(dir, '2'), { OFFRAMP_TEST_KILL_AT: String(manifestIn - 1), OFFRAMP_TEST_SIGNAL: 'SIGINT' });
+    const r = run(buildVariant(dir), { OFFRAMP_TEST_KILL_AT: String(manifestIn - 1), OFFRAMP_TEST_SIGNAL: 'SIGINT' });
     expect(r.signal).toBe('SIGINT');
     expect(folderProblems(dir)).toEqual([]);
     expect(manifestSha(dir)).toBe(newSha);
@@ -160,6 +182,12 @@ describe('one writer per folder', () => {
     expect(r.stderr).toBe(`offramp: ${dir}: another offramp (pid ${process.pid}) is writing this folder; run again when it has finished\n`);
     expect(snapshot(dir)).toEqual(before);
     expect(fs.readFileSync(`${dir}.lock`, 'utf8')).toBe(`${process.pid}\n`);
+    // build takes the lock before any work: refused at once, DIR untouched, no scratch made.
+    const b = run(['build', model, '--data', data, '--max-drop', '100', '-o', dir]);
+    expect(b.code).toBe(1);
+    expect(b.stderr).toMatch(/is writing this folder/);
+    expect(snapshot(dir)).toEqual(before);
+    expect(beside(dir)).toEqual([`${path.basename(dir)}.lock`]);
 
     const dead = deadPid();
     fs.writeFileSync(`${dir}.lock`, `${dead}\n`);
@@ -171,6 +199,26 @@ describe('one writer per folder', () => {
     expect(folderProblems(dir)).toEqual([]);
     expect(beside(dir)).toEqual([`${path.basename(dir)}.partial-${process.pid}`]);
     expect(temps(dir)).toEqual([]);
+  });
+
+  it('where the file system has no hard links (FAT): O_EXCL with the pid inside; an empty lock is held while fresh', () => {
+    const spy = vi.spyOn(fs, 'linkSync').mockImplementation(() => { throw Object.assign(new Error('operation not permitted'), { code: 'EPERM' }); });
+    try {
+      const dir = path.join(tmp, 'fat');
+      const held = lockFolder(dir);
+      expect(fs.readFileSync(`${dir}.lock`, 'utf8')).toBe(`${process.pid}\n`);
+      expect(() => lockFolder(dir)).toThrow(`another offramp (pid ${process.pid}) is writing this folder`);
+      held.release();
+      expect(fs.existsSync(`${dir}.lock`)).toBe(false);
+      // A writer between its O_EXCL open and writing its pid.
+      fs.writeFileSync(`${dir}.lock`, '');
+      expect(() => lockFolder(dir)).toThrow('another offramp is writing this folder');
+      // Empty for a minute: its writer died there.
+      const old = new Date(Date.now() - 60_000);
+      fs.utimesSync(`${dir}.lock`, old, old);
+      lockFolder(dir).release();
+      expect(fs.readdirSync(tmp).filter((f) => f.startsWith('fat.'))).toEqual([]);
+    } finally { spy.mockRestore(); }
   });
 
   it('two splits into one folder at once: each finishes or is refused, never interleaved', async () => {

@@ -69,7 +69,7 @@ export function buildCommand(program: Command): void {
         describe: (b) => [{ name: 'report.json', data: buildJson(b) }, { name: 'report.html', data: buildHtml(b) }],
       });
       const json = buildJson(r);
-      emit(o.json ? json : buildText(r) + `\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
+      emit(o.json ? json : buildText(r) + `\ngrafted    ${r.model} (stage files and model are named by their content)\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
     }));
 }

@@ -19,8 +19,11 @@ export const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).d
 /** `stage-0` + bytes → `stage-0.<first 16 hex of the SHA-256>.onnx`: same bytes, same name. */
 export const hashedName = (stem: string, bytes: Uint8Array) => `${stem}.${sha256(bytes).slice(0, 16)}.onnx`;
 
-/** Files that describe one manifest: a split removes them, a build writes them anew. */
-export const DESCRIBING = ['report.json', 'report.html'];
+/**
+ * Files that describe one manifest (each names its SHA-256): a split removes them, a build writes
+ * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old.
+ */
+export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c'];
 
 /** Content files of offramp's splits and builds (earlier versions' plain stage names included). */
 const CONTENT = /^(?:stage-\d+|model)\.[0-9a-f]{16}\.onnx$|^stage-\d+\.onnx$/;

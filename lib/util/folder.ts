@@ -27,10 +27,30 @@ export const lockOf = (dir: string) => `${path.resolve(dir)}.lock`;
 export interface FolderLock { file: string; release(): void }
 
 /**
- * Take the lock of `dir`, or refuse if a live process holds it. The lock file is made
- * complete (pid inside) and then hard-linked into place, so it never exists empty and
- * the link fails atomically when another writer got there first (as O_EXCL would).
+ * Place `lock` holding our pid; false if it exists. A complete file (pid inside) is hard-linked
+ * into place, so the lock never exists empty and the link fails atomically when another writer got
+ * there first (as O_EXCL would). Where the file system has no hard links (FAT, some network
+ * mounts), O_EXCL itself, the pid written right after.
  */
+function place(mine: string, lock: string): boolean {
+  try { fs.linkSync(mine, lock); return true; } catch (e) {
+    const code = (e as NodeJS.ErrnoException).code;
+    if (code === 'EEXIST') return false;
+    if (!['EPERM', 'ENOTSUP', 'EOPNOTSUPP', 'ENOSYS'].includes(code ?? '')) throw ioError(e, lock);
+  }
+  let fd: number;
+  try { fd = fs.openSync(lock, 'wx'); } catch (e) {
+    if ((e as NodeJS.ErrnoException).code === 'EEXIST') return false;
+    throw ioError(e, lock);
+  }
+  try { fs.writeSync(fd, `${process.pid}\n`); } finally { fs.closeSync(fd); }
+  return true;
+}
+
+/** A lock still empty: its writer is between O_EXCL and writing its pid, unless that was long ago. */
+const fresh = (file: string) => { try { return Date.now() - fs.statSync(file).mtimeMs < 10_000; } catch { return false; } };
+
+/** Take the lock of `dir`, or refuse if a live process holds it. */
 export function lockFolder(dir: string): FolderLock {
   const lock = lockOf(dir);
   const mine = `${lock}.${process.pid}`;
@@ -39,12 +59,10 @@ export function lockFolder(dir: string): FolderLock {
     fs.writeFileSync(mine, `${process.pid}\n`);
   } catch (e) { throw ioError(e, lock); }
   try {
-    for (let attempt = 0; ; attempt++) {
-      try { fs.linkSync(mine, lock); break; } catch (e) { if ((e as NodeJS.ErrnoException).code !== 'EEXIST') throw ioError(e, lock); }
+    for (let attempt = 0; !place(mine, lock); attempt++) {
       const pid = readPid(lock);
-      if (pid === undefined) continue; // released meanwhile
-      if (alive(pid) || attempt >= 5) throw busy(dir, pid);
-      takeOver(lock, mine, pid, dir);
+      if (attempt >= 5 || (pid !== undefined && (alive(pid) || (pid === 0 && fresh(lock))))) throw busy(dir, pid);
+      if (pid !== undefined) takeOver(lock, mine, pid, dir);
     }
   } finally { fs.rmSync(mine, { force: true }); }
   return {
@@ -53,8 +71,8 @@ export function lockFolder(dir: string): FolderLock {
   };
 }
 
-const busy = (dir: string, pid: number) =>
-  new OfframpError('io', `another offramp (pid ${pid}) is writing this folder; run again when it has finished`, dir);
+const busy = (dir: string, pid: number | undefined) =>
+  new OfframpError('io', `another offramp${pid ? ` (pid ${pid})` : ''} is writing this folder; run again when it has finished`, dir);
 
 /**
  * Remove the lock of a dead writer. A second lock file (the breaker) makes the check and the
@@ -62,8 +80,7 @@ const busy = (dir: string, pid: number) =>
  */
 function takeOver(lock: string, mine: string, stale: number, dir: string): void {
   const breaker = `${lock}.break`;
-  try { fs.linkSync(mine, breaker); } catch (e) {
-    if ((e as NodeJS.ErrnoException).code !== 'EEXIST') throw ioError(e, lock);
+  if (!place(mine, breaker)) {
     const pid = readPid(breaker);
     if (pid !== undefined && alive(pid)) throw busy(dir, pid);
     fs.rmSync(breaker, { force: true }); // its taker died mid-way
