@@ -5,8 +5,9 @@
 // at a scene boundary, settings are searched on the head, and the Pareto front,
 // ordered from cautious to cheap, is certified on the tail by fixed-sequence
 // testing (Learn-then-Test) with a bound on the scene-averaged drop
-// (lib/certify/scenes.ts). A setting passes only with its neighbour threshold
-// (the next bolder one), so a slightly different site does not fall off a cliff.
+// (lib/certify/scenes.ts). A setting passes only together with its bolder
+// neighbour (threshold × BOLDER), so a slightly different site does not fall off
+// a cliff. Every setting carries a refresh period R, tuned with the rest.
 import { OfframpError } from '../errors.js';
 import { fixedSequence } from '../certify/sequence.js';
 import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scenes.js';
@@ -134,7 +135,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const heldScenes = sceneShares(c, parts.held, heldLab, sc.ids, full).n;
   const thens: (FramePolicy | undefined)[] = [undefined, ...(o.then ?? [])];
 
-  // search: every setting on the head; a family is one (kind, distance, exit, then, refresh), its thresholds ascending
+  // search: every (kind, distance, exit, then, refresh, threshold) on the head
   interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; lostOnly: boolean; e: StreamEval; bolder?: Rec }
   const recs: Rec[] = [];
   const searched = (policy: StreamPolicy, kind: string): Rec => {
