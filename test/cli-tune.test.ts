@@ -79,4 +79,13 @@ describe('offramp tune and replay', () => {
     expect(missing.stderr).toContain('none.npy');
     expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"nonsense"}']).code).not.toBe(0);
   });
+  it('stream scenes: --segments needs --stream, and one id per frame', () => {
+    expect(offramp(['tune', split, '--data', x, '--segments', y]).code).toBe(2);
+    const few = offramp(['tune', split, '--data', x, '--segments', short, '--stream', '--no-write']);
+    expect(few.code).toBe(1);
+    expect(few.stderr.trim().split('\n')).toHaveLength(1);
+    expect(few.stderr).toContain(short);
+    expect(few.stderr).toMatch(/segment ids for \d+ frames/);
+    expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"difference","thresholds":[0.1],"distance":"js","exit":0,"refresh":0}']).code).toBe(1);
+  });
 });

@@ -48,18 +48,29 @@ describe('scenes as evidence', () => {
     const n = 120, delta = 0.1, draws = 600;
     const lostOf = () => (rnd() < 0.15 ? 0.1 + 0.4 * rnd() : 0), gainOf = () => (rnd() < 0.1 ? 0.2 * rnd() : 0);
     const trueLost = 0.15 * 0.3, trueGain = 0.1 * 0.1;
-    let brokenL = 0, brokenU = 0;
+    let brokenL = 0, brokenU = 0, brokenO = 0;
     for (let d = 0; d < draws; d++) {
       let l = 0, g = 0;
       for (let i = 0; i < n; i++) { l += lostOf(); g += gainOf(); }
       if (sceneDropBound({ n, lost: l / n, gained: g / n, labelled: true }, delta).bound < trueLost - trueGain) brokenL++;
       if (sceneDropBound({ n, lost: l / n, gained: 0, labelled: false }, delta).bound < trueLost) brokenU++;
+      if (sceneDropBound({ n, lost: l / n, gained: g / n, labelled: true }, delta, true).bound < trueLost - trueGain) brokenO++;
     }
-    console.log(`scene bound coverage: labelled broken ${brokenL}/${draws}, unlabelled ${brokenU}/${draws} (allowed ≈ ${delta * draws})`);
+    console.log(`scene bound coverage: labelled broken ${brokenL}/${draws}, lost share alone ${brokenO}/${draws}, unlabelled ${brokenU}/${draws} (allowed ≈ ${delta * draws})`);
     // binomial slack: 3 standard deviations of a share δ over `draws` draws (common practice)
     const slack = 3 * Math.sqrt((delta * (1 - delta)) / draws);
     expect(brokenL / draws).toBeLessThanOrEqual(delta + slack);
     expect(brokenU / draws).toBeLessThanOrEqual(delta + slack);
+    expect(brokenO / draws).toBeLessThanOrEqual(delta + slack);
+  });
+
+  it('with no loss observed the bound is the closed form 1 − δ^(1/n) (Hoeffding\'s term, Bates et al. 2021)', () => {
+    // h1(0, b) = −ln(1 − b), so exp(−n·h1) = (1 − b)^n ≤ δ at b = 1 − δ^(1/n); Bentkus' e·(1 − b)^n is larger there
+    for (const n of [10, 100, 736]) {
+      expect(sceneDropBound({ n, lost: 0, gained: 0, labelled: false }, 0.05).bound).toBeCloseTo(1 - 0.05 ** (1 / n), 9);
+      expect(sceneDropBound({ n, lost: 0, gained: 0, labelled: true }, 0.05).bound).toBeCloseTo(1 - 0.025 ** (1 / n), 9);
+      expect(sceneDropBound({ n, lost: 0, gained: 0, labelled: true }, 0.05, true).bound).toBeCloseTo(1 - 0.05 ** (1 / n), 9);
+    }
   });
 
   it('scenes needed: the bound reaches the promise there and not one scene before', () => {

@@ -1,12 +1,17 @@
 // offramp tune and replay end to end on the Fashion-MNIST CNN fixture (scripts/train-fmnist.py) with
 // Debian's dataset-fashion-mnist: graft linear heads on training rows, split at the exits, tune on the
-// 10k test set, replay the chosen policy, then a stream made of the test set.
+// 10k test set, replay the chosen policy; then recordings made of test images for the stream policies.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { readIdxImages, readIdxLabels } from '../lib/data/idx.js';
 import { writeNpy } from '../lib/data/npy.js';
+import { loadChain } from '../lib/run/chain.js';
+import { captureCache } from '../lib/tune/chain-capture.js';
+import { reachOf, type ExitCache, type ExitCosts } from '../lib/tune/cache.js';
+import { evalStream, tuneStream, type StreamTuneResult } from '../lib/tune/stream.js';
+import { fullModel, type Policy, type StreamPolicy } from '../lib/policy/index.js';
 import { mulberry32 } from '../lib/graph/build.js';
 import { offramp } from './helpers/cli.js';
 import { loadChain } from '../lib/run/chain.js';
@@ -40,26 +45,6 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     writeNpy(path.join(tmp, 'train_y.npy'), Int32Array.from(trainY.subarray(0, N)), [N]);
     writeNpy(path.join(tmp, 'test.npy'), test.data, [test.count, 1, 28, 28]);
     writeNpy(path.join(tmp, 'test_y.npy'), Int32Array.from(testY), [test.count]);
-    // a stream: runs of 10–40 frames of one test image, each frame with small noise; a shift of up to one
-    // pixel that jitters now and then (a quarter of the frames), as a camera mount does
-    const rnd = mulberry32(3);
-    const frames: number[] = [], labels: number[] = [];
-    const F = 3000;
-    while (labels.length < F) {
-      const src = Math.floor(rnd() * test.count), len = Math.min(10 + Math.floor(rnd() * 31), F - labels.length);
-      let dx = 0, dy = 0;
-      for (let f = 0; f < len; f++) {
-        if (rnd() < 0.25) { dx = Math.floor(rnd() * 3) - 1; dy = Math.floor(rnd() * 3) - 1; }
-        for (let y = 0; y < 28; y++) for (let x = 0; x < 28; x++) {
-          const sx = x - dx, sy = y - dy;
-          const v = sx >= 0 && sx < 28 && sy >= 0 && sy < 28 ? test.data[src * per + sy * 28 + sx] : 0;
-          frames.push(Math.min(1, Math.max(0, v + 0.02 * (rnd() - 0.5))));
-        }
-        labels.push(testY[src]);
-      }
-    }
-    writeNpy(path.join(tmp, 'stream.npy'), Float32Array.from(frames), [F, 1, 28, 28]);
-    writeNpy(path.join(tmp, 'stream_y.npy'), Int32Array.from(labels), [F]);
     const g = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0,/b3/b3.1/Relu_output_0',
       '--data', path.join(tmp, 'train.npy'), '--labels', path.join(tmp, 'train_y.npy'), '-o', path.join(tmp, 'grafted.onnx')]);
     if (g.code !== 0) throw new Error(g.stderr);
@@ -144,17 +129,84 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     expect(heldMacs).toBeCloseTo(chosen.meanMacs, 3);
   });
 
-  it('on a stream of the test set, stream policies spend far fewer MACs than per-frame ones at the same bound', () => {
-    const data = ['--data', path.join(tmp, 'stream.npy'), '--labels', path.join(tmp, 'stream_y.npy')];
-    const frame = json(offramp(['tune', split, ...data, '--no-write', '--json']));
-    const stream = json(offramp(['tune', split, ...data, '--stream', '--json']));
-    expect(['difference', 'agreeing']).toContain(stream.chosen.policy.kind);
-    expect((stream.full.held.accuracy - stream.chosen.held.accuracy) * 100).toBeLessThanOrEqual(1);
-    const r = json(offramp(['replay', split, ...data, '--json']));
-    const pf = json(offramp(['replay', split, ...data, '--policy', JSON.stringify(frame.chosen.policy), '--json']));
-    console.log(`Fashion-MNIST stream (3000 frames): per-frame ${frame.chosen.policy.kind} ${pf.summary.meanMacs.toFixed(0)} MACs at ${(pf.summary.accuracy * 100).toFixed(2)} %; ` +
-      `${stream.chosen.policy.kind} ${r.summary.meanMacs.toFixed(0)} MACs at ${(r.summary.accuracy * 100).toFixed(2)} %, ${r.summary.scenes} scenes; full ${r.summary.fullMacs} MACs`);
-    expect(r.summary.meanMacs).toBeLessThan(0.5 * pf.summary.meanMacs);
-    expect(r.summary.accuracy).toBeGreaterThan(pf.summary.accuracy - 0.02);
+  // Recordings built from test images: scenes of minLen–maxLen frames of one image (images lo…hi−1 only), each
+  // frame with small noise and a one-pixel jitter now and then; a scene id per frame.
+  function recording(name: string, lo: number, hi: number, F: number, seed: number, minLen: number, maxLen: number) {
+    const test = readIdxImages(`${DIR}/t10k-images-idx3-ubyte.gz`), testY = readIdxLabels(`${DIR}/t10k-labels-idx1-ubyte.gz`);
+    const rnd = mulberry32(seed);
+    const x = new Float32Array(F * per), y = new Int32Array(F), seg = new Int32Array(F);
+    let i = 0, id = 0;
+    while (i < F) {
+      const src = lo + Math.floor(rnd() * (hi - lo)), len = minLen + Math.floor(rnd() * (maxLen - minLen + 1));
+      let dx = 0, dy = 0;
+      for (let f = 0; f < len && i < F; f++, i++) {
+        if (rnd() < 0.25) { dx = Math.floor(rnd() * 3) - 1; dy = Math.floor(rnd() * 3) - 1; }
+        for (let r = 0; r < 28; r++) for (let c = 0; c < 28; c++) {
+          const sx = c - dx, sy = r - dy;
+          const v = sx >= 0 && sx < 28 && sy >= 0 && sy < 28 ? test.data[src * per + sy * 28 + sx] : 0;
+          x[i * per + r * 28 + c] = Math.min(1, Math.max(0, v + 0.02 * (rnd() - 0.5)));
+        }
+        y[i] = testY[src]; seg[i] = id;
+      }
+      id++;
+    }
+    const file = path.join(tmp, `${name}.npy`);
+    writeNpy(file, x, [F, 1, 28, 28]);
+    return { file, x, y, seg, F };
+  }
+  type Rec = ReturnType<typeof recording>;
+  async function capture(r: Rec) {
+    const chain = await loadChain(split);
+    try { return await captureCache(chain, r.file, r.y); } finally { await chain.release(); }
+  }
+  /** The chosen policy's drop against the full model on a captured recording, in points, and its saving. */
+  function onNew(c: ExitCache, costs: ExitCosts, p: Policy) {
+    const idx = Int32Array.from({ length: c.samples }, (_, i) => i), reach = reachOf(costs, c.exits);
+    const got = evalStream(c, idx, p as StreamPolicy, reach), full = evalStream(c, idx, fullModel(c.exits), reach);
+    return { drop: (full.accuracy - got.accuracy) * 100, saving: 1 - got.meanMacs / full.meanMacs };
+  }
+  const g = (r: StreamTuneResult) =>
+    `${r.guarantee.certified ? 'certified' : 'full model kept'}, ${r.guarantee.evidence} scenes certify, estimate ${r.guarantee.estimate.toFixed(2)}, bound ${r.guarantee.bound.toFixed(2)}${r.guarantee.needed ? `, would need ${r.guarantee.needed} scenes` : ''} (${r.guarantee.passed} of ${r.guarantee.tested} tested passed)`;
+  let other: { cache: ExitCache } | undefined;
+  const otherCache = async () => (other ??= await capture(recording('other', 5000, 10000, 3000, 22, 10, 40))).cache;
+
+  it('a stream policy tuned on a short recording keeps its promise on a recording of other images', async () => {
+    // issue 9: a 300-frame recording (a dozen scenes) once gave a policy that lost 7.9 points elsewhere
+    const short = recording('short', 0, 5000, 300, 21, 10, 40);
+    const { cache, layout } = await capture(short);
+    const r = tuneStream(cache, layout.costs, { maxDrop: 0.5, segments: short.seg });
+    const p = onNew(await otherCache(), layout.costs, r.chosen.policy);
+    console.log(`Fashion-MNIST stream, short tuning recording (300 frames, ${r.scenes.tune + r.scenes.held} scenes): ${g(r)}; on 3000 frames of other images: drop ${p.drop.toFixed(2)} points, saving ${(p.saving * 100).toFixed(1)} %`);
+    expect(p.drop).toBeLessThanOrEqual(0.5);
+    expect(r.guarantee.unit).toBe('scenes');
+    expect(r.guarantee.certified).toBe(false);
+  });
+
+  it('tuned on a long recording: the promise holds on a second recording, and replay spends what the tuner counted', async () => {
+    const long = recording('long', 0, 5000, 10000, 31, 10, 40);
+    const { cache, layout } = await capture(long);
+    const o = { segments: long.seg, kinds: ['difference'] as const, grid: 12 };
+    const tight = tuneStream(cache, layout.costs, { ...o, maxDrop: 0.5 }), loose = tuneStream(cache, layout.costs, { ...o, maxDrop: 2.5 });
+    const nw = await otherCache();
+    const t = onNew(nw, layout.costs, tight.chosen.policy), l = onNew(nw, layout.costs, loose.chosen.policy);
+    // what the cheapest front setting within 0.5 points on the certification part would have given, uncertified
+    const un = tight.kinds[0].front.filter((p) => (tight.full.held.accuracy - p.held.accuracy) * 100 <= 0.5).sort((a, b) => a.held.meanMacs - b.held.meanMacs)[0];
+    const u = un && onNew(nw, layout.costs, un.policy);
+    console.log(`Fashion-MNIST stream, long tuning recording (10000 frames, ${tight.scenes.tune + tight.scenes.held} scenes), on 3000 frames of other images:\n` +
+      `  max drop 0.5: ${g(tight)}; real drop ${t.drop.toFixed(2)} points, saving ${(t.saving * 100).toFixed(1)} % (target: ≥ 90 % at ≤ 0.5)\n` +
+      `  max drop 2.5: ${g(loose)}; real drop ${l.drop.toFixed(2)} points, saving ${(l.saving * 100).toFixed(1)} %, refresh ${(loose.chosen.policy as StreamPolicy).refresh ?? '-'}\n` +
+      `  uncertified, cheapest within 0.5 on the certification part: ${u ? `real drop ${u.drop.toFixed(2)} points, saving ${(u.saving * 100).toFixed(1)} %` : 'none'}`);
+    expect(t.drop).toBeLessThanOrEqual(0.5);
+    expect(l.drop).toBeLessThanOrEqual(2.5);
+    expect(loose.guarantee.certified).toBe(true);
+    // the honest price: well short of the uncertified saving (printed above), but a real one
+    expect(l.saving).toBeGreaterThan(0.2);
+    // the certification part replayed alone through the staged runner, from a fresh stream: it spends what the tuner counted, refresh included
+    const n = loose.split.tune;
+    writeNpy(path.join(tmp, 'tail.npy'), long.x.slice(n * per), [long.F - n, 1, 28, 28]);
+    writeNpy(path.join(tmp, 'tail_y.npy'), long.y.slice(n), [long.F - n]);
+    const rp = json(offramp(['replay', split, '--data', path.join(tmp, 'tail.npy'), '--labels', path.join(tmp, 'tail_y.npy'), '--policy', JSON.stringify(loose.chosen.policy), '--json'])).summary;
+    expect(rp.meanMacs).toBeCloseTo(loose.chosen.held.meanMacs, 3);
+    expect(rp.accuracy).toBeCloseTo(loose.chosen.held.accuracy, 12);
   });
 });

@@ -22,11 +22,16 @@ export interface SceneShares {
 
 export interface SceneBound { estimate: number; bound: number; delta: number; method: string }
 
-/** Upper confidence bound, as a fraction, on the scene-averaged drop; holds with probability ≥ 1 − δ if scenes are independent. */
-export function sceneDropBound(s: SceneShares, delta: number): SceneBound {
+/**
+ * Upper confidence bound, as a fraction, on the scene-averaged drop; holds with probability ≥ 1 − δ if scenes are
+ * independent. `lostOnly` (labelled): bound the lost share alone at δ, the drop being at most it — tighter when
+ * little is gained; which of the two to use must be fixed before the shares are seen.
+ */
+export function sceneDropBound(s: SceneShares, delta: number, lostOnly = false): SceneBound {
   if (!(delta > 0 && delta < 1)) throw new RangeError(`δ must lie strictly between 0 and 1, not ${delta}`);
   if (s.n <= 0) return { estimate: 0, bound: 1, delta, method: 'no scenes' };
   if (!s.labelled) return { estimate: s.lost, bound: hoeffdingBentkusUpper(s.lost, s.n, delta), delta, method: 'Hoeffding–Bentkus on per-scene disagreement shares' };
+  if (lostOnly) return { estimate: s.lost - s.gained, bound: hoeffdingBentkusUpper(s.lost, s.n, delta), delta, method: 'Hoeffding–Bentkus on per-scene lost shares' };
   const lostU = hoeffdingBentkusUpper(s.lost, s.n, delta / 2);
   // a lower limit on the mean gained share: the upper limit on the mean of 1 − share
   const gainedL = Math.max(0, 1 - hoeffdingBentkusUpper(1 - s.gained, s.n, delta / 2));
@@ -34,10 +39,10 @@ export function sceneDropBound(s: SceneShares, delta: number): SceneBound {
 }
 
 /** Scenes the same shares would need for the bound to reach maxDrop (a fraction); undefined when the estimate itself is not below it. */
-export function scenesNeeded(s: SceneShares, maxDrop: number, delta: number, limit = 1e7): number | undefined {
-  const ok = (n: number) => sceneDropBound({ ...s, n }, delta).bound <= maxDrop;
+export function scenesNeeded(s: SceneShares, maxDrop: number, delta: number, limit = 1e7, lostOnly = false): number | undefined {
+  const ok = (n: number) => sceneDropBound({ ...s, n }, delta, lostOnly).bound <= maxDrop;
   if (s.n > 0 && ok(s.n)) return s.n;
-  if (!(s.lost - s.gained < maxDrop)) return undefined;
+  if (!((lostOnly && s.labelled ? s.lost : s.lost - s.gained) < maxDrop)) return undefined;
   let lo = Math.max(1, s.n), hi = lo * 2;
   while (!ok(hi)) { lo = hi; hi *= 2; if (hi > limit) return undefined; }
   while (hi - lo > 1) { const mid = Math.floor((lo + hi) / 2); if (ok(mid)) hi = mid; else lo = mid; }

@@ -5,8 +5,9 @@
 // at a scene boundary, settings are searched on the head, and the Pareto front,
 // ordered from cautious to cheap, is certified on the tail by fixed-sequence
 // testing (Learn-then-Test) with a bound on the scene-averaged drop
-// (lib/certify/scenes.ts). A setting passes only with its neighbour threshold
-// (the next bolder one), so a slightly different site does not fall off a cliff.
+// (lib/certify/scenes.ts). A setting passes only together with its bolder
+// neighbour (threshold × BOLDER), so a slightly different site does not fall off
+// a cliff. Every setting carries a refresh period R, tuned with the rest.
 import { OfframpError } from '../errors.js';
 import { fixedSequence } from '../certify/sequence.js';
 import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scenes.js';
@@ -134,13 +135,15 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const heldScenes = sceneShares(c, parts.held, heldLab, sc.ids, full).n;
   const thens: (FramePolicy | undefined)[] = [undefined, ...(o.then ?? [])];
 
-  // search: every setting on the head; a family is one (kind, distance, exit, then, refresh), its thresholds ascending
-  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; e: StreamEval; bolder?: Rec }
+  // search: every (kind, distance, exit, then, refresh, threshold) on the head
+  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; lostOnly: boolean; e: StreamEval; bolder?: Rec }
   const recs: Rec[] = [];
   const searched = (policy: StreamPolicy, kind: string): Rec => {
     const e = evalStream(c, parts.tune, policy, reach, tuneLab);
     const s = sceneShares(c, parts.tune, tuneLab, sc.ids, full);
-    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: sceneDropBound(s, delta).bound, e: strip(e) };
+    // with labels, the form of the bound (paired, or the lost share alone) is fixed here, on the search part
+    const paired = sceneDropBound(s, delta).bound, lost = sceneDropBound(s, delta, true).bound;
+    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: Math.min(paired, lost), lostOnly: s.labelled && lost < paired, e: strip(e) };
   };
   // the neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller)
   const bolder = (r: Rec): Rec => (r.bolder ??= searched({ ...r.policy, thresholds: [r.policy.thresholds[0] * BOLDER] }, r.kind));
@@ -175,7 +178,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     return h;
   };
   // intersection–union: the setting and its neighbour are each tested at level δ
-  const bounds = (r: Rec) => [r, bolder(r)].map((x) => sceneDropBound(certify(x).shares, delta));
+  const bounds = (r: Rec) => [r, bolder(r)].map((x) => sceneDropBound(certify(x).shares, delta, x.lostOnly));
   const seq = fixedSequence(ordered, (r) => bounds(r).every((b) => b.bound <= limit));
   // every passed setting is certified together (family-wise); the cheapest of them is kept
   const cheapest = (rs: Rec[]) => rs.reduce<Rec | undefined>((m, r) => (!m || r.cost < m.cost ? r : m), undefined);
@@ -191,7 +194,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   // advice, not a promise: scenes the same per-scene rates would need, for the first setting that failed or, when
   // nothing passed, the front setting closest to passing
   const need = (r: Rec) => {
-    const ns = [r, bolder(r)].map((x) => scenesNeeded(certify(x).shares, limit, delta));
+    const ns = [r, bolder(r)].map((x) => scenesNeeded(certify(x).shares, limit, delta, 1e7, x.lostOnly));
     return ns.some((n) => n === undefined) ? undefined : Math.max(...(ns as number[]));
   };
   let needed = seq.failed && need(seq.failed);
