@@ -252,11 +252,16 @@ function nudge(r: Rec, cands: Float64Array[] | undefined): Float64Array | undefi
   return out;
 }
 
-/** The counts a drop bound reads: paired counts when labelled, agreement counts from the part (and the unlabelled rows). */
+/**
+ * The counts a drop bound reads: paired counts when labelled, agreement counts from the part (and the
+ * unlabelled rows). With labels, the unlabelled rows join only when there are at least as many as labelled
+ * ones: the combined bound splits δ four ways and is looser with few of them. The rule reads sizes only,
+ * never outcomes, so it is fixed before the data speaks.
+ */
 function countsOf(labelled: boolean, n: number, d: Discordant, extra?: { n: number; d: Discordant }): { paired?: PairedCounts; agreement?: AgreementCounts } {
   const agreement = extra ? { n: n + extra.n, disagree: d.disagree + extra.d.disagree } : { n, disagree: d.disagree };
   if (!labelled) return { agreement };
-  return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra ? { agreement } : {}) };
+  return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra && extra.n >= n ? { agreement } : {}) };
 }
 
 const METHOD: Record<DropBound['method'], string> = {
@@ -336,9 +341,9 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const failed = seq.failed && certOf.get(seq.failed)!;
   const neededOf = (x: NonNullable<typeof failed>) => rowsNeeded(x.counts, maxDrop / 100, delta);
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
-  const method = cb ? cb.b.method : c.labelled ? (extraP ? 'paired+disagreement' : 'paired') : 'disagreement';
+  const method = cb ? cb.b.method : c.labelled ? (extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
   const guarantee: Guarantee = {
-    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP?.n ?? 0,
+    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP && (!c.labelled || extraP.n >= heldP.n) ? extraP.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
     method: `${METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
     margin: maxDrop - (cb ? cb.b.bound * 100 : 0), tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
@@ -348,7 +353,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     assumes: [
       'new data comes from the same source as the tuning data, each sample an independent draw (for recordings in time order, tune with --stream)',
       c.labelled ? 'the labels are right' : 'accuracy is agreement with the full model; the bound on disagreement also bounds the drop in accuracy against true labels',
-      ...(extraP ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
+      ...(extraP && (!c.labelled || extraP.n >= heldP.n) ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
     ],
   };
   return {
