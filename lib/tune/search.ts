@@ -264,6 +264,21 @@ function countsOf(labelled: boolean, n: number, d: Discordant, extra?: { n: numb
   return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra && extra.n >= n ? { agreement } : {}) };
 }
 
+/** The observed drop of some counts (what dropBound estimates), without computing a bound. */
+const observed = (o: { paired?: PairedCounts; agreement?: AgreementCounts }): number =>
+  o.paired ? (o.paired.n ? (o.paired.lost - o.paired.gained) / o.paired.n : 0) : o.agreement!.n ? o.agreement!.disagree / o.agreement!.n : 0;
+
+/** dropBound, remembered by its counts: many front points share them, and each bound is a few bisections. */
+function boundMemo(delta: number): (o: { paired?: PairedCounts; agreement?: AgreementCounts }) => DropBound {
+  const seen = new Map<string, DropBound>();
+  return (o) => {
+    const key = `${o.paired ? `${o.paired.n},${o.paired.lost},${o.paired.gained}` : ''};${o.agreement ? `${o.agreement.n},${o.agreement.disagree}` : ''}`;
+    let b = seen.get(key);
+    if (!b) seen.set(key, (b = dropBound(o, delta)));
+    return b;
+  };
+}
+
 const METHOD: Record<DropBound['method'], string> = {
   paired: 'paired drop (Clopper–Pearson on lost and gained rows)',
   disagreement: 'disagreement with the full model (Clopper–Pearson)',
@@ -292,6 +307,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const settings = searched.reduce((a, s) => a + s.recs.length, 0);
 
   // Every front point on the certification part: its figures and its bound.
+  const bound = boundMemo(delta);
   const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space }>();
   const kinds: KindResult[] = [];
   for (const s of searched) {
@@ -301,7 +317,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     for (const r of s.front) {
       const h = heldPool.eval(sp, r.th, r.cap, false);
       const counts = countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, r.th, r.cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, r.th, r.cap) });
-      const b = dropBound(counts, delta);
+      const b = bound(counts);
       const pt: Point = {
         policy: s.k.policy(r, reach, E, c.classes), tune: evalOf(r, tuneP.n), held: evalOf({ ...h, hist: h.hist.slice() }, heldP.n),
         cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
@@ -324,7 +340,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     const nth = nudge(r, x.s.cands);
     if (!nth) return true;
     const counts = countsOf(c.labelled, heldP.n, discordant(x.sp.table, heldP, nth, r.cap), x.xsp && { n: extraP!.n, d: discordant(x.xsp.table, extraP!, nth, r.cap) });
-    const nb = dropBound(counts, delta).estimate * 100;
+    const nb = observed(counts) * 100;
     x.pt.cert!.nudged = nb;
     return !robust || nb <= maxDrop;
   };
@@ -378,11 +394,12 @@ export function forecast(c: ExitCache, costs: ExitCosts, o: TuneOptions & { rows
   const fullCost = reach[E] * part.n;
   const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < fullCost);
   const scale = o.rows / Math.max(part.n, 1), sc = (x: number) => Math.min(Math.round(x * scale), o.rows);
+  const bound = boundMemo(delta);
   const seq = fixedSequence(ordered, (r) => {
     const s = kindOfRec.get(r)!;
     const d = discordant(s.sp.table, part, r.th, r.cap);
     const counts = countsOf(c.labelled, o.rows, { lost: sc(d.lost), gained: sc(d.gained), disagree: sc(d.disagree) });
-    return dropBound(counts, delta).bound * 100 <= maxDrop;
+    return bound(counts).bound * 100 <= maxDrop;
   });
   const best = seq.passed.at(-1);
   if (!best) return { policy: fullModel(E), meanMacs: reach[E], accuracy: part.n ? part.fullCorrect / part.n : 0 };
