@@ -33,6 +33,7 @@ export { loadChain, readManifest, type Chain, type ChainResult } from './run/cha
 export { checkChain } from './run/check.js';
 export * from './policy/index.js';
 export { tune, type TuneResult, type TuneOptions } from './tune/search.js';
+export { dropBound, rowsNeeded, fixedSequence, clopperPearsonUpper, clopperPearsonLower, type Guarantee } from './certify/index.js';
 export { makeCache, type ExitCache, type ExitCosts } from './tune/cache.js';
 export { writeC } from './emit/write.js';
 export { emitC } from './emit/c.js';

@@ -44,6 +44,11 @@ describe('offramp tune and replay', () => {
     const m = JSON.parse(fs.readFileSync(path.join(split, 'manifest.json'), 'utf8'));
     expect(j.policy).toEqual(m.policy.rule);
     expect(m.policy.guarantee).toEqual(t.guarantee);
+    // with labels, replay sets the drop it saw beside the promise: the full model's accuracy over both parts
+    const fullAcc = (t.full.tune.accuracy * t.full.tune.samples + t.full.held.accuracy * t.full.held.samples) / n;
+    expect(j.summary.fullAccuracy).toBeCloseTo(fullAcc, 9);
+    expect(j.summary.drop).toBeCloseTo((fullAcc - j.summary.accuracy) * 100, 9);
+    expect(j.summary.promise).toEqual({ maxDrop: 5, confidence: 0.95, bound: t.guarantee.bound, kept: j.summary.drop <= 5 });
   });
   it('too few samples for the promise: the full model is kept, said in one line with the samples the next setting would need', () => {
     const r = offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '1', '--confidence', '0.99', '--no-write']);

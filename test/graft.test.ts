@@ -82,6 +82,36 @@ describe('pooling follows the layout', () => {
   });
 });
 
+describe('grid heads', () => {
+  it('grid:3 pools each channel over a 3×3 grid of windows (the last one partial) and the exits compute the fitted heads', async () => {
+    const m = net();
+    const r = await graftExits(m, source(), { cuts: ['a', 'b'], head: parseHead('grid:3'), labels, seed: 7 });
+    // 'a' is [4, 8, 8]: windows of ⌈8/3⌉ = 3, covering rows 0–2, 3–5 and 6–7 (ONNX AveragePool, ceil_mode 1, padding not counted)
+    expect(r.heads[0].grid).toEqual([3, 3]);
+    expect(r.heads[0].layers[0].in).toBe(4 * 9);
+    expect(r.heads[1].layers[0].in).toBe(6 * 4); // 'b' is [6, 4, 4]: windows of 2, a 2×2 grid
+    const cap = await captureFeatures(m, r.heads.map((h) => ({ ...h, width: h.layers[0].in })), K, source().batches(60), { input: 'input', sample: SAMPLE, final: 'logits' });
+    // Reference: the plain window means of the runtime's own 'a', channel-major.
+    const raw = await runModel({ ...m, graph: { ...m.graph, outputs: [...m.graph.outputs, { ...m.graph.outputs[0], name: 'a', type: undefined }] } } as Model);
+    const ref = new Float64Array(N * 36);
+    const span = (g: number) => [g * 3, Math.min(8, g * 3 + 3)];
+    for (let i = 0; i < N; i++) for (let c = 0; c < 4; c++) for (let gy = 0; gy < 3; gy++) for (let gx = 0; gx < 3; gx++) {
+      const [y0, y1] = span(gy), [x0, x1] = span(gx);
+      let sum = 0;
+      for (let y = y0; y < y1; y++) for (let x = x0; x < x1; x++) sum += raw.a[((i * 4 + c) * 8 + y) * 8 + x];
+      ref[i * 36 + c * 9 + gy * 3 + gx] = sum / ((y1 - y0) * (x1 - x0));
+    }
+    expect(maxDiff(cap.features[0].X, ref)).toBeLessThan(1e-5);
+    const got = await runModel(r.model);
+    r.heads.forEach((h, k) => expect(maxDiff(got[`exit-${k}`], linearLogits(cap.features[k], h.layers[0].W, h.layers[0].b, K))).toBeLessThan(1e-4));
+    expect(exitRecords(r.model).map((e) => e.head)).toEqual(['grid:3', 'grid:3']);
+  });
+  it('refuses channels-last cuts and a grid without a size', async () => {
+    await expect(graftExits(net(), source(), { cuts: ['a_nhwc'], layout: 'NHWC', head: parseHead('grid:2'), labels })).rejects.toThrow(/channels-first/);
+    expect(() => parseHead('grid')).toThrow(/size/);
+  });
+});
+
 describe('graft', () => {
   for (const head of ['linear', 'mlp:8', 'conv:6']) it(`${head}: exits compute the fitted heads, original output bit-identical`, async () => {
     const m = net();

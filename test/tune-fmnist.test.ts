@@ -1,6 +1,8 @@
 // offramp tune and replay end to end on the Fashion-MNIST CNN fixture (scripts/train-fmnist.py) with
 // Debian's dataset-fashion-mnist: graft linear heads on training rows, split at the exits, tune on the
 // 10k test set, replay the chosen policy; then recordings made of test images for the stream policies.
+// The certification checks use grid:4 heads on the same training rows and judge each tuning on test
+// images it did not see.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import fs from 'node:fs';
 import os from 'node:os';
@@ -34,7 +36,9 @@ const json = (r: { code: number; stdout: string; stderr: string }) => {
 describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-tune-'));
   const split = path.join(tmp, 'split');
-  // every exit of every test image, captured once through the chain and shared by the certification checks
+  // grid:4 heads at the two cheap cuts (6 % and 53 % of the MACs): every exit of every test image,
+  // captured once through that chain and shared by the certification checks
+  const gridSplit = path.join(tmp, 'grid-split');
   let cache: ExitCache, costs: ExitCosts;
   afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
   beforeAll(async () => {
@@ -50,7 +54,12 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     if (g.code !== 0) throw new Error(g.stderr);
     const s = offramp(['split', path.join(tmp, 'grafted.onnx'), '-o', split]);
     if (s.code !== 0) throw new Error(s.stderr);
-    const chain = await loadChain(split);
+    const gg = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0', '--head', 'grid:4',
+      '--data', path.join(tmp, 'train.npy'), '--labels', path.join(tmp, 'train_y.npy'), '-o', path.join(tmp, 'grid.onnx')]);
+    if (gg.code !== 0) throw new Error(gg.stderr);
+    const gs = offramp(['split', path.join(tmp, 'grid.onnx'), '-o', gridSplit]);
+    if (gs.code !== 0) throw new Error(gs.stderr);
+    const chain = await loadChain(gridSplit);
     try {
       const c = await captureCache(chain, path.join(tmp, 'test.npy'), Int32Array.from(testY));
       cache = c.cache; costs = c.layout.costs;
@@ -89,7 +98,7 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     }
   });
 
-  it('tuned on 5000 labelled test images, the real drop on the other 5000 stays within 1 point', () => {
+  it('tuned on 5000 labelled test images, the real drop on the other 5000 stays within 1 point and the saving at least 60 %', () => {
     const first = Array.from({ length: 5000 }, (_, i) => i), second = first.map((i) => i + 5000);
     for (const [tuneOn, newData] of [[first, second], [second, first]]) {
       const r = tune(rowsOf(cache, tuneOn), costs, { maxDrop: 1 });
@@ -98,9 +107,9 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
       console.log(`Fashion-MNIST, tuned on 5000 samples: ${g.certified ? `certified bound ${g.bound.toFixed(2)} pp (observed ${g.estimate.toFixed(2)})` : 'not certified'}; ` +
         `on the other 5000 images real drop ${real.drop.toFixed(2)} pp, real saving ${(real.saving * 100).toFixed(1)} % (${r.chosen.policy.kind})`);
       expect(real.drop).toBeLessThanOrEqual(1);
-      // these linear heads (exits at 6 %, 53 % and 99.7 % of the MACs) certify a modest saving; see the test above for the rule
       expect(g.certified).toBe(true);
-      expect(real.saving).toBeGreaterThan(0.1);
+      // with global-average (linear) heads the same check certified about 22 %: the grid keeps where things are
+      expect(real.saving).toBeGreaterThanOrEqual(0.6);
     }
   });
 

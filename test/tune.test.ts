@@ -154,6 +154,24 @@ describe('tune on synthetic caches', () => {
     expect(r.full.held.accuracy).toBe(1);
   });
 
+  it('unlabelled rows join the disagreement term: the method says so, and without labels they tighten the bound', () => {
+    const lab = syntheticCache(2000, 3, 5, 21), extra = syntheticCache(8000, 3, 5, 22);
+    const u = makeCache(extra.samples, extra.exits, extra.classes, extra.logits);
+    const paired = tune(lab, syntheticCosts(3), { maxDrop: 1, grid: 16, unlabelled: u }).guarantee!;
+    expect(paired.method).toMatch(/unlabelled/);
+    expect([paired.evidence, paired.unlabelled]).toEqual([1000, 8000]);
+    const bare = makeCache(lab.samples, lab.exits, lab.classes, lab.logits);
+    const alone = tune(bare, syntheticCosts(3), { maxDrop: 1, grid: 16 });
+    const more = tune(bare, syntheticCosts(3), { maxDrop: 1, grid: 16, unlabelled: u });
+    expect(alone.guarantee!.method).toMatch(/^disagreement/);
+    // the same fronts (same search part): most points' disagreement bound over 9000 rows is under their bound over 1000
+    const bounds = (r: typeof alone) => r.kinds.flatMap((k) => k.front.map((p) => p.cert!.bound));
+    const [a, m] = [bounds(alone), bounds(more)];
+    expect(m).toHaveLength(a.length);
+    expect(m.filter((b, i) => b < a[i]).length).toBeGreaterThan(0.6 * a.length);
+    expect(more.chosen.held.meanMacs).toBeLessThanOrEqual(alone.chosen.held.meanMacs);
+  });
+
   it('splits deterministically: interleaved for shuffled data, the tail for streams', () => {
     expect([...splitParts(6, 0.5, 'interleave').held]).toEqual([1, 3, 5]);
     expect([...splitParts(10, 0.3, 'interleave').held]).toEqual([3, 6, 9]);

@@ -40,7 +40,7 @@ export function buildCommand(program: Command): void {
     .option('--unlabelled <file>', 'extra inputs without labels (.npy): they tighten the bound on disagreement with the full model')
     .option('--max-exits <n>', 'most exits to place', '3')
     .option('--candidates <n>', 'candidate cuts to fit heads at', '6')
-    .option('--head <kind>', 'linear, mlp:H or conv:C', 'linear')
+    .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G', 'linear')
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
     .option('--json', 'print the report as JSON (schema offramp-build/2)')

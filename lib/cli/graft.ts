@@ -46,7 +46,7 @@ export function graftCommand(program: Command): void {
     .option('--at <fractions>', 'nearest clean cuts to these MAC fractions, e.g. 25%,50%')
     .requiredOption('--data <file>', 'calibration inputs: .npy [N, …] or a folder of test_data_set_*/input_0.pb')
     .option('--labels <file>', 'integer labels .npy [N]; without them heads distil the final output')
-    .option('--head <kind>', 'linear, mlp:H or conv:C', 'linear')
+    .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G', 'linear')
     .requiredOption('-o, --out <file>', 'grafted model to write')
     .option('--seed <n>', 'seed of the held-out split and of any random initialisation', '1')
     .option('--l2 <x>', 'L2 strength on head weights (mean loss + l2/2·‖W‖²)', '1e-5')

@@ -92,6 +92,13 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
     const axes = axesFor(t.shape, o.layout, cut);
     const cin = t.shape[axes.channel], spatial = axes.pool.reduce((a, i) => a * (t.shape![i] as number), 1);
     const proj = o.head.kind === 'conv' ? randomProjection(cin, o.head.channels, (seed * 0x9e3779b1 + k) >>> 0) : undefined;
+    if (o.head.kind === 'grid' && axes.pool.length) {
+      if (axes.channel !== 1) throw new OfframpError('usage', `--head grid pools channels-first tensors; cut '${cut}' is ${axes.layout}`, file);
+      // windows of ⌈dim / cells⌉: at most `cells` per axis, the last one partial when the dim does not divide
+      const n = o.head.cells, grid = axes.pool.map((i) => Math.ceil((t.shape![i] as number) / n));
+      const cells = axes.pool.reduce((a, i, j) => a * Math.ceil((t.shape![i] as number) / grid[j]), 1);
+      return { cut, rank: t.shape.length, axes, grid, width: cin * cells, spatial };
+    }
     return { cut, rank: t.shape.length, axes, proj, width: proj ? proj.out : cin, spatial };
   });
 
@@ -142,7 +149,7 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
         agreement: matchRate(pred, teacher, rows), samples: split.train.length, heldOut: split.held.length,
       },
     };
-    return { cut: h.cut, rank: h.rank, axes: h.axes, proj: h.proj, layers, record };
+    return { cut: h.cut, rank: h.rank, axes: h.axes, proj: h.proj, ...(h.grid ? { grid: h.grid } : {}), layers, record };
   });
   o.progress?.('fit', inputs.length, inputs.length);
   return { model: graftHeads(model, heads, io.batch), heads };

@@ -28,8 +28,8 @@ export interface ExitRecord {
   classes: number; macs: number; params: number; fit: FitStats;
 }
 
-/** Where a head reads and how: the cut tensor's rank and axes, an optional 1×1 projection. */
-export interface HeadInput { cut: string; rank: number; axes: Axes; proj?: Dense }
+/** Where a head reads and how: the cut tensor's rank and axes, an optional 1×1 projection, an optional pooling grid (window per pooled axis). */
+export interface HeadInput { cut: string; rank: number; axes: Axes; proj?: Dense; grid?: number[] }
 
 export interface FittedHead extends HeadInput { layers: Dense[]; record: ExitRecord }
 
@@ -70,7 +70,7 @@ function extend(model: Model, e: Emitter, outputs: { name: string; classes?: num
 /** The capture copy: every head's feature path (projection, pooling) exposed as an output. Returns the feature output names too. */
 export function captureModel(model: Model, inputs: HeadInput[]): { model: Model; features: string[] } {
   const e = emitter(model);
-  const features = inputs.map((h, k) => emitFeatures(e, h.cut, h.axes, h.rank, h.proj, `capture-${k}`));
+  const features = inputs.map((h, k) => emitFeatures(e, h.cut, h.axes, h.rank, h.proj, `capture-${k}`, h.grid));
   return { model: extend(model, e, features.map((name) => ({ name, batch: '' }))), features };
 }
 
@@ -82,7 +82,7 @@ export function graftHeads(model: Model, heads: FittedHead[], batch: Dim = 'N'):
     const out = exitName(k);
     if (model.graph.nodes.some((n) => n.outputs.includes(out)) || model.graph.initializers.has(out) || model.graph.inputs.some((v) => v.name === out))
       throw new OfframpError('graph', `the graph already has a value named '${out}'`, (model as { file?: string }).file);
-    emitClassifier(e, emitFeatures(e, h.cut, h.axes, h.rank, h.proj, out), h.layers, out, out);
+    emitClassifier(e, emitFeatures(e, h.cut, h.axes, h.rank, h.proj, out, h.grid), h.layers, out, out);
   });
   const records = heads.map((h, k) => ({ ...h.record, exit: k, output: exitName(k) }));
   return extend(model, e, heads.map((h, k) => ({ name: exitName(k), classes: h.record.classes, batch })), JSON.stringify(records));

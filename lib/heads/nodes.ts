@@ -58,10 +58,18 @@ function project(e: Emitter, x: string, axes: Axes, rank: number, p: Dense, pref
   return e.node('Relu', [e.node('Add', [y, addInit(e, `${w}.bias`, [p.out], p.b)], `${prefix}/proj_bias`)], `${prefix}/proj_relu`);
 }
 
-/** Pool a cut tensor down to [N, features]: the head's input. Rank-2 tensors pass through. */
-export function emitFeatures(e: Emitter, cut: string, axes: Axes, rank: number, proj: Dense | undefined, prefix: string): string {
+/**
+ * Pool a cut tensor down to [N, features]: the head's input. Rank-2 tensors pass through. With `grid`
+ * (channels first only), average pooling over windows of that size (the last window of an axis may be
+ * partial: ceil_mode, padding not counted), flattened channel-major.
+ */
+export function emitFeatures(e: Emitter, cut: string, axes: Axes, rank: number, proj: Dense | undefined, prefix: string, grid?: number[]): string {
   let x = proj ? project(e, cut, axes, rank, proj, prefix) : cut;
   if (!axes.pool.length) return x;
+  if (grid) {
+    x = e.node('AveragePool', [x], `${prefix}/pool`, [intsAttr('kernel_shape', grid), intsAttr('strides', grid), intAttr('ceil_mode', 1)]);
+    return e.node('Flatten', [x], `${prefix}/flatten`, [intAttr('axis', 1)]);
+  }
   if (axes.channel === 1) {
     x = e.node('GlobalAveragePool', [x], `${prefix}/pool`);
     return e.node('Flatten', [x], `${prefix}/flatten`, [intAttr('axis', 1)]);

@@ -7,24 +7,26 @@ export type HeadKind =
   /** one hidden fully connected layer of `hidden` units with Relu */
   | { kind: 'mlp'; hidden: number }
   /** 1×1 convolution to `channels` channels + Relu, before pooling */
-  | { kind: 'conv'; channels: number };
+  | { kind: 'conv'; channels: number }
+  /** average pooling over a `cells` × `cells` grid of windows instead of globally (where things are, kept coarsely), then linear */
+  | { kind: 'grid'; cells: number };
 
 export type Layout = 'NCHW' | 'NHWC' | 'NCL' | 'NTD';
 export const LAYOUTS: readonly Layout[] = ['NCHW', 'NHWC', 'NCL', 'NTD'];
 
 export function parseHead(s: string): HeadKind {
-  const m = /^(linear|mlp|conv)(?::(\d+))?$/.exec(s.trim());
-  if (!m) throw usageError(`--head takes linear, mlp:H or conv:C, not '${s}'`);
+  const m = /^(linear|mlp|conv|grid)(?::(\d+))?$/.exec(s.trim());
+  if (!m) throw usageError(`--head takes linear, mlp:H, conv:C or grid:G, not '${s}'`);
   if (m[1] === 'linear') {
     if (m[2]) throw usageError(`--head linear takes no size ('${s}')`);
     return { kind: 'linear' };
   }
   const n = Number(m[2]);
   if (!m[2] || !(n > 0) || n > 65536) throw usageError(`--head ${m[1]} needs a size, e.g. ${m[1]}:32 ('${s}')`);
-  return m[1] === 'mlp' ? { kind: 'mlp', hidden: n } : { kind: 'conv', channels: n };
+  return m[1] === 'mlp' ? { kind: 'mlp', hidden: n } : m[1] === 'conv' ? { kind: 'conv', channels: n } : { kind: 'grid', cells: n };
 }
 
-export const headName = (h: HeadKind): string => (h.kind === 'linear' ? 'linear' : h.kind === 'mlp' ? `mlp:${h.hidden}` : `conv:${h.channels}`);
+export const headName = (h: HeadKind): string => (h.kind === 'linear' ? 'linear' : h.kind === 'mlp' ? `mlp:${h.hidden}` : h.kind === 'conv' ? `conv:${h.channels}` : `grid:${h.cells}`);
 
 export function parseLayout(s: string): Layout {
   const l = s.trim().toUpperCase() as Layout;

@@ -252,11 +252,31 @@ function nudge(r: Rec, cands: Float64Array[] | undefined): Float64Array | undefi
   return out;
 }
 
-/** The counts a drop bound reads: paired counts when labelled, agreement counts from the part (and the unlabelled rows). */
+/**
+ * The counts a drop bound reads: paired counts when labelled, agreement counts from the part (and the
+ * unlabelled rows). With labels, the unlabelled rows join only when there are at least as many as labelled
+ * ones: the combined bound splits δ four ways and is looser with few of them. The rule reads sizes only,
+ * never outcomes, so it is fixed before the data speaks.
+ */
 function countsOf(labelled: boolean, n: number, d: Discordant, extra?: { n: number; d: Discordant }): { paired?: PairedCounts; agreement?: AgreementCounts } {
   const agreement = extra ? { n: n + extra.n, disagree: d.disagree + extra.d.disagree } : { n, disagree: d.disagree };
   if (!labelled) return { agreement };
-  return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra ? { agreement } : {}) };
+  return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra && extra.n >= n ? { agreement } : {}) };
+}
+
+/** The observed drop of some counts (what dropBound estimates), without computing a bound. */
+const observed = (o: { paired?: PairedCounts; agreement?: AgreementCounts }): number =>
+  o.paired ? (o.paired.n ? (o.paired.lost - o.paired.gained) / o.paired.n : 0) : o.agreement!.n ? o.agreement!.disagree / o.agreement!.n : 0;
+
+/** dropBound, remembered by its counts: many front points share them, and each bound is a few bisections. */
+function boundMemo(delta: number): (o: { paired?: PairedCounts; agreement?: AgreementCounts }) => DropBound {
+  const seen = new Map<string, DropBound>();
+  return (o) => {
+    const key = `${o.paired ? `${o.paired.n},${o.paired.lost},${o.paired.gained}` : ''};${o.agreement ? `${o.agreement.n},${o.agreement.disagree}` : ''}`;
+    let b = seen.get(key);
+    if (!b) seen.set(key, (b = dropBound(o, delta)));
+    return b;
+  };
 }
 
 const METHOD: Record<DropBound['method'], string> = {
@@ -287,6 +307,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const settings = searched.reduce((a, s) => a + s.recs.length, 0);
 
   // Every front point on the certification part: its figures and its bound.
+  const bound = boundMemo(delta);
   const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space }>();
   const kinds: KindResult[] = [];
   for (const s of searched) {
@@ -296,7 +317,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     for (const r of s.front) {
       const h = heldPool.eval(sp, r.th, r.cap, false);
       const counts = countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, r.th, r.cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, r.th, r.cap) });
-      const b = dropBound(counts, delta);
+      const b = bound(counts);
       const pt: Point = {
         policy: s.k.policy(r, reach, E, c.classes), tune: evalOf(r, tuneP.n), held: evalOf({ ...h, hist: h.hist.slice() }, heldP.n),
         cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
@@ -319,7 +340,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     const nth = nudge(r, x.s.cands);
     if (!nth) return true;
     const counts = countsOf(c.labelled, heldP.n, discordant(x.sp.table, heldP, nth, r.cap), x.xsp && { n: extraP!.n, d: discordant(x.xsp.table, extraP!, nth, r.cap) });
-    const nb = dropBound(counts, delta).estimate * 100;
+    const nb = observed(counts) * 100;
     x.pt.cert!.nudged = nb;
     return !robust || nb <= maxDrop;
   };
@@ -336,9 +357,9 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const failed = seq.failed && certOf.get(seq.failed)!;
   const neededOf = (x: NonNullable<typeof failed>) => rowsNeeded(x.counts, maxDrop / 100, delta);
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
-  const method = cb ? cb.b.method : c.labelled ? (extraP ? 'paired+disagreement' : 'paired') : 'disagreement';
+  const method = cb ? cb.b.method : c.labelled ? (extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
   const guarantee: Guarantee = {
-    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP?.n ?? 0,
+    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP && (!c.labelled || extraP.n >= heldP.n) ? extraP.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
     method: `${METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
     margin: maxDrop - (cb ? cb.b.bound * 100 : 0), tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
@@ -348,7 +369,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     assumes: [
       'new data comes from the same source as the tuning data, each sample an independent draw (for recordings in time order, tune with --stream)',
       c.labelled ? 'the labels are right' : 'accuracy is agreement with the full model; the bound on disagreement also bounds the drop in accuracy against true labels',
-      ...(extraP ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
+      ...(extraP && (!c.labelled || extraP.n >= heldP.n) ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
     ],
   };
   return {
@@ -373,11 +394,12 @@ export function forecast(c: ExitCache, costs: ExitCosts, o: TuneOptions & { rows
   const fullCost = reach[E] * part.n;
   const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < fullCost);
   const scale = o.rows / Math.max(part.n, 1), sc = (x: number) => Math.min(Math.round(x * scale), o.rows);
+  const bound = boundMemo(delta);
   const seq = fixedSequence(ordered, (r) => {
     const s = kindOfRec.get(r)!;
     const d = discordant(s.sp.table, part, r.th, r.cap);
     const counts = countsOf(c.labelled, o.rows, { lost: sc(d.lost), gained: sc(d.gained), disagree: sc(d.disagree) });
-    return dropBound(counts, delta).bound * 100 <= maxDrop;
+    return bound(counts).bound * 100 <= maxDrop;
   });
   const best = seq.passed.at(-1);
   if (!best) return { policy: fullModel(E), meanMacs: reach[E], accuracy: part.n ? part.fullCorrect / part.n : 0 };
