@@ -90,7 +90,7 @@ describe('offramp tune and replay', () => {
     expect(few.code).toBe(1);
     expect(few.stderr.trim().split('\n')).toHaveLength(1);
     expect(few.stderr).toContain(short);
-    expect(few.stderr).toMatch(/segment ids for \d+ frames/);
+    expect(few.stderr).toMatch(/segment ids for \d+ (frames|rows)/);
     expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"difference","thresholds":[0.1],"distance":"js","exit":0,"refresh":0}']).code).toBe(1);
   });
 });
