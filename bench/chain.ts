@@ -2,8 +2,8 @@
 // CNN (7.4 M MACs, 28×28 grey input), each split in 4 stages at the clean cuts nearest 25/50/75 %
 // of the MACs; the Fashion-MNIST fixture CNN (1.9 M MACs) after its blocks, for reference. Both through the same runtime path (openSyncSession,
 // what the runner uses); for comparison also the awaited public session API per stage, as the
-// runner ran before. Runs interleave (whole, chain, whole, chain, …) so the machine's drift hits
-// all alike; medians compared. Then replay's frames per second on the CNN with exit heads.
+// runner ran before. Runs interleave (whole, chain, …, then the reverse order) and each round
+// gives a ratio; the median of those is the figure, so the machine's drift hits both sides alike. Then replay's frames per second on the CNN with exit heads.
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
@@ -85,21 +85,20 @@ async function pair(model: string, file: string, splitDir: string, shape: number
     await f();
     if (i >= warmup) t[k].push(Number(process.hrtime.bigint() - t0) / 1e6);
   };
+  const steps: [keyof typeof t, () => unknown][] = [['w', () => whole.run(feeds)], ['c', () => chain.run(feeds)], ['wa', () => runSession(wholeApi, feeds)], ['ca', chainApi]];
   try {
-    for (let i = 0; i < warmup + runs; i++) {
-      await time('w', i, () => whole.run(feeds));
-      await time('c', i, () => chain.run(feeds));
-      await time('wa', i, () => runSession(wholeApi, feeds));
-      await time('ca', i, chainApi);
-    }
+    // every other round in reverse order, so that neither side always runs first (warm caches)
+    for (let i = 0; i < warmup + runs; i++) for (const [k, f] of i % 2 ? [...steps].reverse() : steps) await time(k, i, f);
   } finally {
     whole.release(); await wholeApi.release(); await chain.release();
     for (const s of stagesApi) await s.release();
   }
-  const [w, c, wa, ca] = [t.w, t.c, t.wa, t.ca].map(median);
+  // a ratio per round, then their median: rounds are close in time, so drift of the machine cancels
+  const ratio = (a: number[], b: number[]) => median(a.map((x, i) => x / b[i]));
   return {
     model, macs: chain.manifest.totals.macs, stages: chain.manifest.stages.length, runs,
-    wholeMs: w, chainMs: c, ratio: c / w, wholeApiMs: wa, chainApiMs: ca, apiRatio: ca / wa,
+    wholeMs: median(t.w), chainMs: median(t.c), ratio: ratio(t.c, t.w),
+    wholeApiMs: median(t.wa), chainApiMs: median(t.ca), apiRatio: ratio(t.ca, t.wa),
   };
 }
 
@@ -149,7 +148,7 @@ export async function benchChain(): Promise<ChainBench> {
       fixture = await pair('Fashion-MNIST CNN', fx.file, fx.split, [1, 1, 28, 28], 1500, 100);
     }
     const rs = await split(dir, 'resnet18', resnet18({ weights: 'random', seed: 7 }), (p) => cutsAtFractions(p, [0.25, 0.5, 0.75]));
-    const resnet = await pair('ResNet-18', rs.file, rs.split, [1, 3, 224, 224], 30, 4);
+    const resnet = await pair('ResNet-18', rs.file, rs.split, [1, 3, 224, 224], 40, 4);
     const rep = await benchReplay(dir, 1000, 5);
     return { resnet, cnn, ...(fixture && { fixture }), replay: rep };
   } finally { fs.rmSync(dir, { recursive: true, force: true }); }

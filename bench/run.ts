@@ -40,12 +40,12 @@ async function parent(): Promise<void> {
     if (chainRun.status !== 0) throw new Error(`bench chain failed: ${chainRun.stderr}`);
     const ch = JSON.parse(chainRun.stdout) as ChainBench;
     const pairLines = (p: ChainPair, target: number, note = '') => {
-      console.log(`\n${p.model}: ${(p.macs / 1e6).toFixed(2)} M MACs in ${p.stages} stages, batch 1, ${p.runs} interleaved runs, medians per frame${note}`);
+      console.log(`\n${p.model}: ${(p.macs / 1e6).toFixed(2)} M MACs in ${p.stages} stages, batch 1, ${p.runs} interleaved rounds, medians per frame${note}`);
       line('whole model', `${p.wholeMs.toFixed(3)} ms`);
       line('staged chain (loadChain().run)', `${p.chainMs.toFixed(3)} ms`, `target ratio ≤ ${target.toFixed(2)}: ratio ${p.ratio.toFixed(3)}`);
       line('both via awaited session API', `${p.wholeApiMs.toFixed(3)} ms`, `chain ${p.chainApiMs.toFixed(3)} ms: ratio ${p.apiRatio.toFixed(3)} (the runner before)`);
     };
-    console.log('\nstaged chain against the whole model (same runtime path; ratios of interleaved medians)');
+    console.log('\nstaged chain against the whole model (same runtime path; median of per-round ratios, rounds interleaved)');
     pairLines(ch.resnet, 1.1);
     pairLines(ch.cnn, 1.5);
     if (ch.fixture) pairLines(ch.fixture, 1.5, '; 4× fewer MACs than the target model, shown for reference');

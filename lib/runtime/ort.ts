@@ -3,8 +3,9 @@
 import * as ort from 'onnxruntime-node';
 // The native session onnxruntime-node's InferenceSession wraps. Its run is synchronous; the public
 // wrapper defers every call to the next event-loop turn and re-checks feeds, which costs more than
-// running a small stage (≈15 µs against ≈5 µs per call, measured by bench/chain.ts). The version is
-// pinned exactly, so this deep import cannot drift under us.
+// running a small stage (≈15 µs against ≈5 µs a call on a one-Relu graph; bench/chain.ts shows what
+// it does to a chain). The version is pinned exactly, so this deep import cannot drift under us;
+// test/chain-runner.test.ts holds it to the public API bit for bit.
 import { binding, initOrt } from 'onnxruntime-node/dist/binding.js';
 import type { Model, TensorType } from '../graph/ir.js';
 import { modelToProto, typeToProto } from '../graph/ir.js';
