@@ -67,14 +67,17 @@ export function samples(n: number, seed: number): { x: Float32Array; y: BigInt64
   return { x, y };
 }
 
-/** A stream in temporal order: scenes of 40–400 frames (10 s – 100 s), each frame the scene with fresh noise. */
+/**
+ * A stream in temporal order: scenes of 10–60 frames (2.5 s – 15 s), each frame the scene with fresh noise.
+ * Certified stream tuning counts scenes, not frames, so the recording holds several hundred of them.
+ */
 export function stream(n: number, seed: number): { x: Float32Array; y: BigInt64Array; segment: BigInt64Array } {
   const rand = mulberry32(seed);
   const x = new Float32Array(n * BINS * FRAMES), y = new BigInt64Array(n), segment = new BigInt64Array(n);
   let i = 0, id = 0;
   while (i < n) {
     const s = randomScene(rand, Math.floor(rand() * CLASSES.length));
-    const len = 40 + Math.floor(rand() * 360);
+    const len = 10 + Math.floor(rand() * 51);
     for (let j = 0; j < len && i < n; j++, i++) {
       spectrogram(s, rand, x, i * BINS * FRAMES);
       y[i] = BigInt(s.cls);
@@ -85,16 +88,19 @@ export function stream(n: number, seed: number): { x: Float32Array; y: BigInt64A
   return { x, y, segment };
 }
 
+/** About 690 scenes: enough for a bound of a point or two on the drop, a scene counting once. */
+export const STREAM_FRAMES = 24000;
+
 export function writeDemoData(dir: string): string[] {
   fs.mkdirSync(dir, { recursive: true });
   const shape = (n: number) => [n, 1, BINS, FRAMES];
   const files: string[] = [];
   const put = (name: string, data: Float32Array | BigInt64Array, dims: number[]) => { const f = path.join(dir, name); writeNpy(f, data, dims); files.push(f); };
-  const train = samples(8000, 101), calib = samples(2000, 202), val = samples(2000, 303), st = stream(3000, 404);
+  const train = samples(8000, 101), calib = samples(6000, 202), val = samples(2000, 303), st = stream(STREAM_FRAMES, 404);
   put('train-x.npy', train.x, shape(8000)); put('train-y.npy', train.y, [8000]);
-  put('calib-x.npy', calib.x, shape(2000)); put('calib-y.npy', calib.y, [2000]);
+  put('calib-x.npy', calib.x, shape(6000)); put('calib-y.npy', calib.y, [6000]);
   put('val-x.npy', val.x, shape(2000)); put('val-y.npy', val.y, [2000]);
-  put('stream-x.npy', st.x, shape(3000)); put('stream-y.npy', st.y, [3000]); put('stream-segments.npy', st.segment, [3000]);
+  put('stream-x.npy', st.x, shape(STREAM_FRAMES)); put('stream-y.npy', st.y, [STREAM_FRAMES]); put('stream-segments.npy', st.segment, [STREAM_FRAMES]);
   return files;
 }
 
