@@ -132,6 +132,25 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(got).toEqual(['exit-0', 'exit-1', 'logits'].map((n) => m.outputs.find((o) => o.name === n)!.quant));
   });
 
+  it('build --int8: the policy tuned on the int8 chain, its firmware, the int8 files judged as stored', () => {
+    const out = f('build8');
+    const r = offramp(['build', MODEL, '--data', f('fit.npy'), '--labels', f('fit_y.npy'), '--candidates', '3', '--max-exits', '2', '--target', 'm4f', '--int8', '-o', out, '--json']);
+    expect(r.code, r.stderr).toBe(0);
+    const b = JSON.parse(r.stdout);
+    const m = JSON.parse(fs.readFileSync(path.join(out, 'int8/manifest.json'), 'utf8')) as Manifest;
+    expect(m.quantization!.calibration).toMatchObject({ method: 'mse', samples: 1000, rows: 'even' });
+    expect(m.policy!.rule).toEqual(b.int8.policy);
+    expect(b.int8.heldOut.dropPoints).toBeLessThanOrEqual(1 + 1e-9);   // points as a float difference of shares
+    console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);
+    // the budget judges the stored int8 files, not a projection of the float ones
+    expect(b.budget.stages.map((s: { stored: { weightBytes: number } }) => s.stored.weightBytes)).toEqual(m.stages.map((s) => s.weightBytes));
+    const c99 = fs.readFileSync(path.join(out, 'firmware/offramp_policy.c'), 'utf8');
+    expect(c99).toMatch(/manifest: \.\.\/int8\/manifest\.json/);
+    expect(c99).toMatch(/offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = /);
+    expect(fs.readdirSync(tmp).filter((n) => n.includes('.partial-'))).toEqual([]);
+    expect(fs.readdirSync(out).filter((n) => n.endsWith('.npy'))).toEqual([]);
+  });
+
   it('bad input: one line naming the file, exit 1, the output folder untouched', () => {
     const out = f('out');
     fs.mkdirSync(out);

@@ -24,7 +24,10 @@ const whole = (v: string, what: string, min: number) => {
 };
 
 export function buildCommand(program: Command): void {
-  targetOptions(program.command('build'))
+  const cmd = targetOptions(program.command('build'));
+  const int8 = cmd.options.find((x) => x.long === '--int8');
+  if (int8) int8.description = 'also quantize the stages to int8 (DIR/int8, calibrated on the fitting rows), tune the policy on the int8 chain, write its firmware, and judge the int8 files as stored';
+  cmd
     .description('place, fit and tune exits, split into stages, check the chain and judge it against a target, in one go')
     .argument('<model>', 'trained ONNX classifier (first output: logits)')
     .requiredOption('--data <file>', 'calibration inputs (.npy [N, …]); even rows fit the heads, odd rows tune the policy')
@@ -39,7 +42,6 @@ export function buildCommand(program: Command): void {
     .option('--json', 'print the report as JSON (schema offramp-build/1)')
     .action(async (file: string, o: BuildFlags) => {
       const target = resolveTarget(o);
-      if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
       const maxDrop = Number(o.maxDrop);
       if (!(maxDrop >= 0)) throw usageError(`--max-drop takes percentage points ≥ 0, not '${o.maxDrop}'`);
       const tty = process.stderr.isTTY && !o.json;

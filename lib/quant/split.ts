@@ -45,6 +45,8 @@ export interface QuantizeOptions {
   percentile?: number;
   /** calibration rows used (the first ones); default all */
   samples?: number;
+  /** use only the even (0) or odd (1) rows of the data (a build calibrates on the rows that fit the heads) */
+  parity?: 0 | 1;
   onProgress?: (done: number, total: number) => void;
 }
 
@@ -77,14 +79,16 @@ function readStages(dir: string, manifest: Manifest, manifestFile: string): { st
 }
 
 /** Calibration rows as batch-1 float32 tensors, checked against the chain input. */
-function* rows(data: string, input: ManifestTensor, limit: number): Generator<OrtTensor> {
+function* rows(data: string, input: ManifestTensor, limit: number, parity?: 0 | 1): Generator<OrtTensor> {
   const h = readNpyHeader(data);
   if (h.rows === 0) throw new OfframpError('data', 'the calibration data has no rows', data);
   const shape = [1, ...sampleShape(h, input.shape, data)];
   let n = 0;
   for (const b of npyBatches(data, 256)) {
     const x = toFloat32(b.data), per = x.length / b.rows;
-    for (let r = 0; r < b.rows && n < limit; r++, n++) {
+    for (let r = 0; r < b.rows && n < limit; r++) {
+      if (parity !== undefined && (b.start + r) % 2 !== parity) continue;
+      n++;
       const row = x.slice(r * per, (r + 1) * per);
       for (let i = 0; i < row.length; i++) if (!Number.isFinite(row[i])) throw new OfframpError('data', `row ${b.start + r} holds a non-finite value (${row[i]}): calibration needs finite data`, data);
       yield tensorFromData(1, shape, row);
@@ -102,10 +106,10 @@ async function instrument(s: Stage): Promise<Session> {
 }
 
 /** One pass of the rows through the float chain; `see` gets every planned value of every stage. */
-async function pass(sessions: Session[], stages: Stage[], data: string, input: ManifestTensor, limit: number,
+async function pass(sessions: Session[], stages: Stage[], data: string, input: ManifestTensor, limit: number, parity: 0 | 1 | undefined,
   see: (name: string, x: Float32Array) => void, onRow?: (n: number) => void): Promise<number> {
   let n = 0;
-  for (const x of rows(data, input, limit)) {
+  for (const x of rows(data, input, limit, parity)) {
     const env = new Map<string, OrtTensor>([[input.name, x]]);
     for (let k = 0; k < stages.length; k++) {
       const feeds: Record<string, OrtTensor> = {};
@@ -135,7 +139,8 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
   const input = src.inputs[0];
   const { stages, folded } = readStages(srcDir, src, srcFile);
   const limit = o.samples ?? Infinity;
-  const total = Math.min(readNpyHeader(o.data).rows, limit);
+  const h = readNpyHeader(o.data);
+  const total = Math.min(o.parity === undefined ? h.rows : Math.floor((h.rows + 1 - o.parity) / 2), limit);
 
   // Calibration: min/max in one pass; percentile and mse histogram over that range in a second.
   const sessions: Session[] = [];
@@ -143,12 +148,13 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
   let samples = 0;
   try {
     for (const s of stages) sessions.push(await instrument(s));
-    samples = await pass(sessions, stages, o.data, input, limit, (v, d) => {
+    samples = await pass(sessions, stages, o.data, input, limit, o.parity, (v, d) => {
       let r = ranges.get(v); if (!r) ranges.set(v, (r = new RangeObserver())); r.add(d);
     }, (n) => o.onProgress?.(n, method === 'minmax' ? total : 2 * total));
+    if (!samples) throw new OfframpError('data', 'the calibration data has no rows', o.data);
     if (method !== 'minmax') {
       for (const [v, r] of ranges) hists.set(v, new Histogram(r.min, r.max));
-      await pass(sessions, stages, o.data, input, limit, (v, d) => hists.get(v)!.add(d), (n) => o.onProgress?.(total + n, 2 * total));
+      await pass(sessions, stages, o.data, input, limit, o.parity, (v, d) => hists.get(v)!.add(d), (n) => o.onProgress?.(total + n, 2 * total));
     }
   } finally { await Promise.all(sessions.map((s) => s.release())); }
 
@@ -217,7 +223,7 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
       quantization: {
         scheme: 'qdq-int8',
         from: { file: rel(final, srcFile), sha256: sha256(srcBytes) },
-        calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, data: { file: rel(final, o.data), sha256: sha256(dataBytes) } },
+        calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, ...(o.parity !== undefined && { rows: o.parity ? 'odd' as const : 'even' as const }), data: { file: rel(final, o.data), sha256: sha256(dataBytes) } },
         weights: 'int8 symmetric per output channel (Conv, Gemm, MatMul)', biases: 'int32, scale s_x·s_w', activations: 'int8 asymmetric per tensor',
         foldedBatchNorms: folded,
       },
