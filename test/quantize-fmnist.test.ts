@@ -12,10 +12,15 @@ import { costModel } from '../lib/cost/report.js';
 import { stageFootprints } from '../lib/chip/budget.js';
 import { tensorFromData } from '../lib/runtime/ort.js';
 import type { Manifest } from '../lib/split/manifest.js';
+import { execFileSync, spawnSync } from 'node:child_process';
+import { captureCache, chainLayout } from '../lib/tune/chain-capture.js';
+import { viewOf } from '../lib/tune/cache.js';
+import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
+const GCC = spawnSync('gcc', ['--version']).status === 0;
 const have = requireFmnist();
 const per = 28 * 28;
 const CUTS = ['/b1/b1.2/MaxPool_output_0', '/b2/b2.2/MaxPool_output_0'];
@@ -149,6 +154,53 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(c99).toMatch(/offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = /);
     expect(fs.readdirSync(tmp).filter((n) => n.includes('.partial-'))).toEqual([]);
     expect(fs.readdirSync(out).filter((n) => n.endsWith('.npy'))).toEqual([]);
+  });
+
+  it.skipIf(!GCC)('the int8 firmware (gcc) decides as lib/policy does on the int8 chain\'s own exit outputs', async () => {
+    // Needs the build --int8 folder of the test before. The chain's float outputs are DequantizeLinear results,
+    // so the int8 values firmware holds are recovered exactly: (q - zp) * scale in float32 gives them back.
+    const dir = f('build8');
+    const chain = await loadChain(path.join(dir, 'int8'));
+    const m = chain.manifest;
+    const { cache, layout } = await (async () => { try { return await captureCache(chain, f('test.npy')); } finally { await chain.release(); } })();
+    const E = layout.exits.length, C = layout.classes, n = cache.samples;
+    const qp = [...layout.exits, layout.final].map((name) => m.outputs.find((o) => o.name === name)!.quant!);
+    const q = new Int8Array(n * (E + 1) * C);
+    for (let i = 0; i < n; i++) for (let k = 0; k <= E; k++) for (let j = 0; j < C; j++) {
+      const at = (i * (E + 1) + k) * C + j, z = cache.logits[at];
+      const v = Math.round(z / qp[k].scale) + qp[k].zeroPoint;
+      expect(Math.fround((v - qp[k].zeroPoint) * qp[k].scale)).toBe(z);
+      q[at] = v;
+    }
+    const policy = m.policy!.rule as FramePolicy;
+    const c = chainFor(policy, chainLayout(m).costs.stage.reduce<number[]>((a, x) => [...a, (a.at(-1) ?? 0) + x], []), E, C);
+    const want = new Int32Array(2 * n);
+    for (let i = 0; i < n; i++) { const r = runFrame(policy, c, viewOf(cache, i)); want[2 * i] = r.exit; want[2 * i + 1] = r.label; }
+    fs.writeFileSync(path.join(dir, 'firmware/main.c'), `#include <stdio.h>
+#include "offramp_policy.h"
+int main(int argc, char **argv) {
+  static int8_t buf[${n * (E + 1) * C}];
+  FILE *in = fopen(argv[1], "rb"), *out = fopen(argv[2], "wb");
+  int32_t i, k;
+  if (argc != 3 || !in || !out || fread(buf, 1, sizeof buf, in) != sizeof buf) return 3;
+  for (i = 0; i < ${n}; i++) {
+    const int8_t *q[OFFRAMP_EXITS + 1];
+    offramp_result_t r;
+    for (k = 0; k <= OFFRAMP_EXITS; k++) q[k] = buf + ((size_t)i * (OFFRAMP_EXITS + 1) + k) * OFFRAMP_CLASSES;
+    r = offramp_run_frame_q8(&offramp_policy, q, offramp_exit_q8, 0);
+    fwrite(&r.exit, 4, 1, out); fwrite(&r.label, 4, 1, out);
+  }
+  return fclose(out) ? 4 : 0;
+}
+`);
+    fs.writeFileSync(path.join(dir, 'q.bin'), q);
+    execFileSync('gcc', ['-std=c99', '-O2', '-ffp-contract=off', '-o', 'decide', 'main.c', 'offramp_policy.c', '-lm'], { cwd: path.join(dir, 'firmware') });
+    execFileSync(path.join(dir, 'firmware/decide'), [path.join(dir, 'q.bin'), path.join(dir, 'd.bin')]);
+    const got = new Int32Array(fs.readFileSync(path.join(dir, 'd.bin')).buffer.slice(0));
+    expect(Array.from(got)).toEqual(Array.from(want));
+    const early = Array.from({ length: n }, (_, i) => want[2 * i]).filter((e) => e < E).length;
+    console.log(`int8 firmware decisions = lib/policy on ${n} cached int8 chain outputs (${early} leave early)`);
+    expect(early).toBeGreaterThan(0);
   });
 
   it('bad input: one line naming the file, exit 1, the output folder untouched', () => {
