@@ -53,6 +53,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     writeNpy(f('calib.npy'), train.images.slice(2000 * per, 2500 * per), [500, 1, 28, 28]);
     writeNpy(f('test.npy'), test.images, [N_TEST, 1, 28, 28]);
     writeNpy(f('test_y.npy'), Int32Array.from(test.labels), [N_TEST]);
+    // fewer rows where a command only has to work on the int8 folder, not measure it
+    writeNpy(f('small.npy'), test.images.slice(0, 600 * per), [600, 1, 28, 28]);
+    writeNpy(f('small_y.npy'), Int32Array.from(test.labels.subarray(0, 600)), [600]);
     for (const args of [
       ['graft', MODEL, '--cuts', CUTS.join(','), '--data', f('fit.npy'), '--labels', f('fit_y.npy'), '-o', f('grafted.onnx')],
       ['split', f('grafted.onnx'), '-o', f('split')],
@@ -106,6 +109,16 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     }
   });
 
+  it('same inputs, same bytes: a second quantize writes identical files', () => {
+    const r = offramp(['quantize', f('split'), '--data', f('calib.npy'), '-o', f('q2')]);
+    expect(r.code, r.stderr).toBe(0);
+    for (const n of fs.readdirSync(f('q'))) {
+      const a = fs.readFileSync(path.join(f('q'), n)), b = fs.readFileSync(path.join(f('q2'), n));
+      // the manifest names the float split and the data relative to itself: same depth, same text
+      expect(a.equals(b), n).toBe(true);
+    }
+  });
+
   it('stage weight bytes within 10 % of the int8 projection of the float stage files (lib/chip/budget.ts)', () => {
     const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
     const rows = m.stages.map((s) => {
@@ -125,7 +138,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(logits.samples).toBe(300);
     expect(logits.agreement).toBeGreaterThanOrEqual(0.97);
     expect(logits.maxAbs).toBeGreaterThan(0);
-    const t = offramp(['tune', f('q'), '--data', f('test.npy'), '--labels', f('test_y.npy'), '--json']);
+    const t = offramp(['tune', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
     expect(t.code, t.stderr).toBe(0);
     const e = offramp(['emit-c', f('q'), '-o', f('fw')]);
     expect(e.code, e.stderr).toBe(0);
@@ -162,7 +175,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const dir = f('build8');
     const chain = await loadChain(path.join(dir, 'int8'));
     const m = chain.manifest;
-    const { cache, layout } = await (async () => { try { return await captureCache(chain, f('test.npy')); } finally { await chain.release(); } })();
+    const { cache, layout } = await (async () => { try { return await captureCache(chain, f('small.npy')); } finally { await chain.release(); } })();
     const E = layout.exits.length, C = layout.classes, n = cache.samples;
     const qp = [...layout.exits, layout.final].map((name) => m.outputs.find((o) => o.name === name)!.quant!);
     const q = new Int8Array(n * (E + 1) * C);
