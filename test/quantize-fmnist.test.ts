@@ -129,7 +129,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     for (const [stored, projected] of rows) expect(Math.abs(stored - projected) / projected).toBeLessThanOrEqual(0.1);
   });
 
-  it('check reports agreement instead of float tolerance; tune and emit-c work on the int8 folder unchanged', () => {
+  it('check reports agreement instead of float tolerance; tune, replay and emit-c work on the int8 folder unchanged', () => {
     const c = offramp(['check', f('q'), '--against', f('grafted.onnx'), '--data', f('test.npy'), '--samples', '300', '--min-agreement', '0.9', '--json']);
     expect(c.code, c.stderr).toBe(0);
     const r = JSON.parse(c.stdout);
@@ -140,6 +140,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(logits.maxAbs).toBeGreaterThan(0);
     const t = offramp(['tune', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
     expect(t.code, t.stderr).toBe(0);
+    const rp = offramp(['replay', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
+    expect(rp.code, rp.stderr).toBe(0);
+    expect(JSON.parse(rp.stdout).summary.frames).toBe(600);
     const e = offramp(['emit-c', f('q'), '-o', f('fw')]);
     expect(e.code, e.stderr).toBe(0);
     // the exits' int8 parameters reach the firmware for the _q8 decision functions, exactly (float32 scales)
