@@ -135,6 +135,7 @@ export function buildHtml(r: BuildResult): string {
 <li>Held out (${h.samples} samples${h.labelled ? '' : ', against the model\u2019s own answers'}): accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop}).</li>
 <li>Mean MACs per sample ${si(Math.round(h.meanMacs))} vs ${si(h.fullMacs)}: <b>${pct(h.saving)} saved</b>.</li>
 <li>Staged chain checked against the grafted model on ${s.check.samples} samples: ${s.check.ok ? 'identical outputs' : 'MISMATCH'} (max abs difference ${s.check.maxAbs}).</li>
+${s.int8 ? `<li>int8 (<code>${esc(s.int8.dir)}</code>, QDQ stage files, ${esc(s.int8.calibration.method)} calibration on ${s.int8.calibration.samples} rows): policy <code>${esc(policyText(s.int8.policy))}</code> tuned on the int8 chain; accuracy ${pct(s.int8.heldOut.accuracy, 2)} vs ${pct(s.int8.heldOut.fullAccuracy, 2)} for the full int8 chain; <b>${pct(s.int8.heldOut.saving)} saved</b> (float32 chain: ${pct(h.saving)}); top-1 agreement with the grafted model ${esc(s.int8.agreement.map((a) => `${a.output} ${pct(a.agreement, 2)}`).join(', '))}. The firmware, and the latency and verdicts below, are those of the int8 files as stored.</li>` : ''}
 <li>Target: ${target}.</li>
 </ul>
 <h2>Stages</h2>
