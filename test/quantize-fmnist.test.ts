@@ -86,7 +86,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const src = JSON.parse(fs.readFileSync(f('split/manifest.json'), 'utf8')) as Manifest;
     expect(m.quantization!.from.file).toBe('../split/manifest.json');
     expect(m.quantization!.from.sha256).toMatch(/^[0-9a-f]{64}$/);
-    expect(m.quantization!.calibration).toMatchObject({ method: 'mse', samples: 500, data: { file: '../calib.npy' } });
+    expect(m.quantization!.calibration).toMatchObject({ method: 'minmax', samples: 500, data: { file: '../calib.npy' } });
     expect(m.source.sha256).toBe(src.source.sha256);
     expect(m.policy).toBeUndefined();
     for (const k of [0, 1]) {
@@ -159,7 +159,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(r.code, r.stderr).toBe(0);
     const b = JSON.parse(r.stdout);
     const m = JSON.parse(fs.readFileSync(path.join(out, 'int8/manifest.json'), 'utf8')) as Manifest;
-    expect(m.quantization!.calibration).toMatchObject({ method: 'mse', samples: 1000, rows: 'even' });
+    expect(m.quantization!.calibration).toMatchObject({ method: 'minmax', samples: 1000, rows: 'even' });
     expect(m.policy!.rule).toEqual(b.int8.policy);
     expect(b.int8.heldOut.dropPoints).toBeLessThanOrEqual(1 + 1e-9);   // points as a float difference of shares
     console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);

@@ -28,14 +28,16 @@ import { chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type Calibra
 import { activationParams } from './linear.js';
 
 /**
- * Default calibration: `mse`, the range with the least expected quantization error on the calibration
- * histogram. `minmax` lets one extreme value widen a whole tensor's int8 step; `percentile` cuts a fixed
- * tail, which on a small tensor (an exit head's pooled features: a few dozen values per row) clips the
- * rare large values that decide the class. Measured on the Fashion-MNIST CNN with two exits (500
- * calibration rows, 10k test rows; see the closing note): top-1 agreement with float at the second exit
- * mse 97.7 %, minmax 97.4 %, percentile 93.2 %; at the final output 99.6 % for all three.
+ * Default calibration: `minmax`. Clipping methods (`percentile`, `mse`) lower the reconstruction error
+ * of most values but clip the rare large activations a class decision rests on. Top-1 agreement with the
+ * float chain, minmax / percentile / mse (see the closing note for the commands):
+ * - Fashion-MNIST CNN, 2 exits, 500 calibration rows, 10k test rows: final output 99.64 / 99.58 / 99.60 %,
+ *   second exit 97.42 / 93.23 / 97.68 %;
+ * - the invented fan-monitor demo, 1000 calibration rows, 2000 validation rows: final output
+ *   99.10 / 91.60 / 96.25 %, second exit 97.95 / 89.65 / 93.80 %.
+ * minmax is best or within 0.3 points everywhere; the others stay available.
  */
-export const DEFAULT_CALIBRATION: CalibrationMethod = 'mse';
+export const DEFAULT_CALIBRATION: CalibrationMethod = 'minmax';
 
 export interface QuantizeOptions {
   data: string;
