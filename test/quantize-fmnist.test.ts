@@ -129,7 +129,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     for (const [stored, projected] of rows) expect(Math.abs(stored - projected) / projected).toBeLessThanOrEqual(0.1);
   });
 
-  it('check reports agreement instead of float tolerance; tune, replay and emit-c work on the int8 folder unchanged', () => {
+  it('check reports agreement instead of float tolerance; cost, tune, replay and emit-c work on the int8 folder unchanged', () => {
     const c = offramp(['check', f('q'), '--against', f('grafted.onnx'), '--data', f('test.npy'), '--samples', '300', '--min-agreement', '0.9', '--json']);
     expect(c.code, c.stderr).toBe(0);
     const r = JSON.parse(c.stdout);
@@ -140,6 +140,14 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(logits.maxAbs).toBeGreaterThan(0);
     const t = offramp(['tune', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
     expect(t.code, t.stderr).toBe(0);
+    // cost reads the QDQ file as an integer interpreter runs it: every MAC (convs, the head's Gemm) is int8, and
+    // activations at 1 byte instead of 4 put the peak near a quarter of the float stage's (a fused Relu saves more)
+    const qc = JSON.parse(offramp(['cost', f('q/stage-1.onnx'), '--json']).stdout).model;
+    const fc = JSON.parse(offramp(['cost', f('split/stage-1.onnx'), '--json']).stdout).model;
+    expect(qc.int8Macs).toBe(qc.macs);
+    expect(qc.macs).toBe(fc.macs);
+    expect(fc.int8Macs).toBe(0);
+    expect(qc.peakActivationBytes).toBeLessThanOrEqual(fc.peakActivationBytes / 4);
     const rp = offramp(['replay', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
     expect(rp.code, rp.stderr).toBe(0);
     expect(JSON.parse(rp.stdout).summary.frames).toBe(600);
