@@ -1,7 +1,13 @@
 // The quantization passes on a small built CNN: BatchNormalization folding against onnxruntime running
 // the unfolded graph (the operator's inference definition), and the QDQ rewrite: structure, stored int8
-// weights, and onnxruntime's int8 output within a few output steps of float.
+// weights, and onnxruntime's int8 output within a few output steps of float; then the CLI on a split of such a model.
 import { describe, expect, it } from 'vitest';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { loadModel, saveModel } from '../lib/graph/io.js';
+import { writeNpy } from '../lib/data/npy.js';
+import { offramp } from './helpers/cli.js';
 import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
 import { modelToProto, type Model } from '../lib/graph/ir.js';
 import { encodeModel } from '../lib/onnx/codec.js';
@@ -109,5 +115,42 @@ describe('QDQ rewrite', () => {
     // Weights as stored: int8 216 + 40 weights, 8 + 5 weight zero points, 4 activation zero points (x, relu = pool,
     // gap = flatten, logits); int32 biases 8·4 + 5·4; float32 scales 8·4 + 5·4 per channel and 4 per tensor.
     expect(c.model.paramBytesByType).toEqual({ int8: 273n, int32: 52n, float32: 68n });
+  });
+});
+
+describe('offramp quantize on a split with BatchNormalization after a bias-free Conv', () => {
+  it('folds it (a bias appears), hands int8 over the cut, and the chain agrees with the model on its own data', async () => {
+    const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-qbn-'));
+    try {
+      const b = modelBuilder({ opset: 13, seed: 3 });
+      const x = b.input('x', FLOAT, ['N', 3, 12, 12]);
+      const c = b.node('Conv', [x, b.init('w', FLOAT, [8, 3, 3, 3])], { pads: [1, 1, 1, 1] });
+      const bn = b.node('BatchNormalization', [c, b.init('gamma', FLOAT, [8], { uniform: [0.5, 2] }), b.init('beta', FLOAT, [8], { uniform: [-0.5, 0.5] }),
+        b.init('mean', FLOAT, [8], { uniform: [-0.3, 0.3] }), b.init('var', FLOAT, [8], { uniform: [0.2, 3] })]);
+      const r = b.node('Relu', [bn], {}, { outputs: ['r'] })[0];
+      const c2 = b.node('Conv', [r, b.init('w2', FLOAT, [4, 8, 3, 3]), b.init('b2', FLOAT, [4])], { pads: [1, 1, 1, 1] });
+      const g = b.node('GlobalAveragePool', [b.node('Relu', [c2])]);
+      const y = b.node('Gemm', [b.node('Flatten', [g]), b.init('fc', FLOAT, [5, 4]), b.init('fcb', FLOAT, [5])], { transB: 1 }, { outputs: ['logits'] })[0];
+      b.output(y, FLOAT, ['N', 5]);
+      saveModel(b.build(), path.join(tmp, 'm.onnx'));
+      const rnd2 = mulberry32(5);
+      writeNpy(path.join(tmp, 'x.npy'), Float32Array.from({ length: 300 * 432 }, () => rnd2() * 2 - 1), [300, 3, 12, 12]);
+      for (const args of [['split', path.join(tmp, 'm.onnx'), '--cuts', 'r', '-o', path.join(tmp, 's')], ['quantize', path.join(tmp, 's'), '--data', path.join(tmp, 'x.npy'), '-o', path.join(tmp, 'q')]]) {
+        const res = offramp(args);
+        expect(res.code, res.stderr).toBe(0);
+      }
+      const m = JSON.parse(fs.readFileSync(path.join(tmp, 'q/manifest.json'), 'utf8'));
+      expect(m.quantization.foldedBatchNorms).toBe(1);
+      expect(m.stages[0].outputs[0]).toMatchObject({ name: 'r', dtype: 'int8', bytes: 8 * 144 });
+      const s0 = loadModel(path.join(tmp, 'q/stage-0.onnx'));
+      expect(s0.graph.nodes.some((n) => n.op === 'BatchNormalization')).toBe(false);
+      expect(s0.graph.initializers.get('w/bias/int32')?.dataType).toBe(6);
+      const chk = offramp(['check', path.join(tmp, 'q'), '--against', path.join(tmp, 'm.onnx'), '--data', path.join(tmp, 'x.npy'), '--samples', '300', '--json']);
+      expect(chk.code, chk.stderr).toBe(0);
+      const a = JSON.parse(chk.stdout).outputs[0];
+      console.log(`built CNN with BatchNormalization, int8 chain vs float on its 300 calibration rows: top-1 agreement ${(a.agreement * 100).toFixed(1)} %, largest error ${a.maxSteps.toFixed(2)} int8 steps`);
+      expect(a.agreement).toBeGreaterThanOrEqual(0.9);
+      expect(a.maxSteps).toBeLessThan(8);
+    } finally { fs.rmSync(tmp, { recursive: true, force: true }); }
   });
 });

@@ -12,10 +12,15 @@ import { costModel } from '../lib/cost/report.js';
 import { stageFootprints } from '../lib/chip/budget.js';
 import { tensorFromData } from '../lib/runtime/ort.js';
 import type { Manifest } from '../lib/split/manifest.js';
+import { execFileSync, spawnSync } from 'node:child_process';
+import { captureCache, chainLayout } from '../lib/tune/chain-capture.js';
+import { viewOf } from '../lib/tune/cache.js';
+import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
+const GCC = spawnSync('gcc', ['--version']).status === 0;
 const have = requireFmnist();
 const per = 28 * 28;
 const CUTS = ['/b1/b1.2/MaxPool_output_0', '/b2/b2.2/MaxPool_output_0'];
@@ -48,6 +53,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     writeNpy(f('calib.npy'), train.images.slice(2000 * per, 2500 * per), [500, 1, 28, 28]);
     writeNpy(f('test.npy'), test.images, [N_TEST, 1, 28, 28]);
     writeNpy(f('test_y.npy'), Int32Array.from(test.labels), [N_TEST]);
+    // fewer rows where a command only has to work on the int8 folder, not measure it
+    writeNpy(f('small.npy'), test.images.slice(0, 600 * per), [600, 1, 28, 28]);
+    writeNpy(f('small_y.npy'), Int32Array.from(test.labels.subarray(0, 600)), [600]);
     for (const args of [
       ['graft', MODEL, '--cuts', CUTS.join(','), '--data', f('fit.npy'), '--labels', f('fit_y.npy'), '-o', f('grafted.onnx')],
       ['split', f('grafted.onnx'), '-o', f('split')],
@@ -78,7 +86,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const src = JSON.parse(fs.readFileSync(f('split/manifest.json'), 'utf8')) as Manifest;
     expect(m.quantization!.from.file).toBe('../split/manifest.json');
     expect(m.quantization!.from.sha256).toMatch(/^[0-9a-f]{64}$/);
-    expect(m.quantization!.calibration).toMatchObject({ method: 'mse', samples: 500, data: { file: '../calib.npy' } });
+    expect(m.quantization!.calibration).toMatchObject({ method: 'minmax', samples: 500, data: { file: '../calib.npy' } });
     expect(m.source.sha256).toBe(src.source.sha256);
     expect(m.policy).toBeUndefined();
     for (const k of [0, 1]) {
@@ -101,6 +109,16 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     }
   });
 
+  it('same inputs, same bytes: a second quantize writes identical files', () => {
+    const r = offramp(['quantize', f('split'), '--data', f('calib.npy'), '-o', f('q2')]);
+    expect(r.code, r.stderr).toBe(0);
+    for (const n of fs.readdirSync(f('q'))) {
+      const a = fs.readFileSync(path.join(f('q'), n)), b = fs.readFileSync(path.join(f('q2'), n));
+      // the manifest names the float split and the data relative to itself: same depth, same text
+      expect(a.equals(b), n).toBe(true);
+    }
+  });
+
   it('stage weight bytes within 10 % of the int8 projection of the float stage files (lib/chip/budget.ts)', () => {
     const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
     const rows = m.stages.map((s) => {
@@ -111,7 +129,7 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     for (const [stored, projected] of rows) expect(Math.abs(stored - projected) / projected).toBeLessThanOrEqual(0.1);
   });
 
-  it('check reports agreement instead of float tolerance; tune and emit-c work on the int8 folder unchanged', () => {
+  it('check reports agreement instead of float tolerance; cost, tune, replay and emit-c work on the int8 folder unchanged', () => {
     const c = offramp(['check', f('q'), '--against', f('grafted.onnx'), '--data', f('test.npy'), '--samples', '300', '--min-agreement', '0.9', '--json']);
     expect(c.code, c.stderr).toBe(0);
     const r = JSON.parse(c.stdout);
@@ -120,8 +138,19 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(logits.samples).toBe(300);
     expect(logits.agreement).toBeGreaterThanOrEqual(0.97);
     expect(logits.maxAbs).toBeGreaterThan(0);
-    const t = offramp(['tune', f('q'), '--data', f('test.npy'), '--labels', f('test_y.npy'), '--json']);
+    const t = offramp(['tune', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
     expect(t.code, t.stderr).toBe(0);
+    // cost reads the QDQ file as an integer interpreter runs it: every MAC (convs, the head's Gemm) is int8, and
+    // activations at 1 byte instead of 4 put the peak near a quarter of the float stage's (a fused Relu saves more)
+    const qc = JSON.parse(offramp(['cost', f('q/stage-1.onnx'), '--json']).stdout).model;
+    const fc = JSON.parse(offramp(['cost', f('split/stage-1.onnx'), '--json']).stdout).model;
+    expect(qc.int8Macs).toBe(qc.macs);
+    expect(qc.macs).toBe(fc.macs);
+    expect(fc.int8Macs).toBe(0);
+    expect(qc.peakActivationBytes).toBeLessThanOrEqual(fc.peakActivationBytes / 4);
+    const rp = offramp(['replay', f('q'), '--data', f('small.npy'), '--labels', f('small_y.npy'), '--json']);
+    expect(rp.code, rp.stderr).toBe(0);
+    expect(JSON.parse(rp.stdout).summary.frames).toBe(600);
     const e = offramp(['emit-c', f('q'), '-o', f('fw')]);
     expect(e.code, e.stderr).toBe(0);
     // the exits' int8 parameters reach the firmware for the _q8 decision functions, exactly (float32 scales)
@@ -130,6 +159,72 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const row = /offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = \{ (.*) \};/.exec(c99)![1];
     const got = [...row.matchAll(/\{ (\S+)f \/\* [^*]+ \*\/, (-?\d+) \}/g)].map((x) => ({ scale: Number(x[1].replace(/^(-?)0x1\.?([0-9a-f]*)p(-?\d+)$/, (_, s, h, e) => String((s ? -1 : 1) * (1 + (h ? parseInt(h, 16) / 16 ** h.length : 0)) * 2 ** Number(e)))), zeroPoint: Number(x[2]) }));
     expect(got).toEqual(['exit-0', 'exit-1', 'logits'].map((n) => m.outputs.find((o) => o.name === n)!.quant));
+  });
+
+  it('build --int8: the policy tuned on the int8 chain, its firmware, the int8 files judged as stored', () => {
+    const out = f('build8');
+    const r = offramp(['build', MODEL, '--data', f('fit.npy'), '--labels', f('fit_y.npy'), '--candidates', '3', '--max-exits', '2', '--target', 'm4f', '--int8', '-o', out, '--json']);
+    expect(r.code, r.stderr).toBe(0);
+    const b = JSON.parse(r.stdout);
+    const m = JSON.parse(fs.readFileSync(path.join(out, 'int8/manifest.json'), 'utf8')) as Manifest;
+    expect(m.quantization!.calibration).toMatchObject({ method: 'minmax', samples: 1000, rows: 'even' });
+    expect(m.policy!.rule).toEqual(b.int8.policy);
+    expect(b.int8.heldOut.dropPoints).toBeLessThanOrEqual(1 + 1e-9);   // points as a float difference of shares
+    console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);
+    // the budget judges the stored int8 files, not a projection of the float ones
+    expect(b.budget.stages.map((s: { stored: { weightBytes: number } }) => s.stored.weightBytes)).toEqual(m.stages.map((s) => s.weightBytes));
+    const c99 = fs.readFileSync(path.join(out, 'firmware/offramp_policy.c'), 'utf8');
+    expect(c99).toMatch(/manifest: \.\.\/int8\/manifest\.json/);
+    expect(c99).toMatch(/offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = /);
+    expect(fs.readdirSync(tmp).filter((n) => n.includes('.partial-'))).toEqual([]);
+    expect(fs.readdirSync(out).filter((n) => n.endsWith('.npy'))).toEqual([]);
+  });
+
+  it.skipIf(!GCC)('the int8 firmware (gcc) decides as lib/policy does on the int8 chain\'s own exit outputs', async () => {
+    // Needs the build --int8 folder of the test before. The chain's float outputs are DequantizeLinear results,
+    // so the int8 values firmware holds are recovered exactly: (q - zp) * scale in float32 gives them back.
+    const dir = f('build8');
+    const chain = await loadChain(path.join(dir, 'int8'));
+    const m = chain.manifest;
+    const { cache, layout } = await (async () => { try { return await captureCache(chain, f('small.npy')); } finally { await chain.release(); } })();
+    const E = layout.exits.length, C = layout.classes, n = cache.samples;
+    const qp = [...layout.exits, layout.final].map((name) => m.outputs.find((o) => o.name === name)!.quant!);
+    const q = new Int8Array(n * (E + 1) * C);
+    for (let i = 0; i < n; i++) for (let k = 0; k <= E; k++) for (let j = 0; j < C; j++) {
+      const at = (i * (E + 1) + k) * C + j, z = cache.logits[at];
+      const v = Math.round(z / qp[k].scale) + qp[k].zeroPoint;
+      expect(Math.fround((v - qp[k].zeroPoint) * qp[k].scale)).toBe(z);
+      q[at] = v;
+    }
+    const policy = m.policy!.rule as FramePolicy;
+    const c = chainFor(policy, chainLayout(m).costs.stage.reduce<number[]>((a, x) => [...a, (a.at(-1) ?? 0) + x], []), E, C);
+    const want = new Int32Array(2 * n);
+    for (let i = 0; i < n; i++) { const r = runFrame(policy, c, viewOf(cache, i)); want[2 * i] = r.exit; want[2 * i + 1] = r.label; }
+    fs.writeFileSync(path.join(dir, 'firmware/main.c'), `#include <stdio.h>
+#include "offramp_policy.h"
+int main(int argc, char **argv) {
+  static int8_t buf[${n * (E + 1) * C}];
+  FILE *in = fopen(argv[1], "rb"), *out = fopen(argv[2], "wb");
+  int32_t i, k;
+  if (argc != 3 || !in || !out || fread(buf, 1, sizeof buf, in) != sizeof buf) return 3;
+  for (i = 0; i < ${n}; i++) {
+    const int8_t *q[OFFRAMP_EXITS + 1];
+    offramp_result_t r;
+    for (k = 0; k <= OFFRAMP_EXITS; k++) q[k] = buf + ((size_t)i * (OFFRAMP_EXITS + 1) + k) * OFFRAMP_CLASSES;
+    r = offramp_run_frame_q8(&offramp_policy, q, offramp_exit_q8, 0);
+    fwrite(&r.exit, 4, 1, out); fwrite(&r.label, 4, 1, out);
+  }
+  return fclose(out) ? 4 : 0;
+}
+`);
+    fs.writeFileSync(path.join(dir, 'q.bin'), q);
+    execFileSync('gcc', ['-std=c99', '-O2', '-ffp-contract=off', '-o', 'decide', 'main.c', 'offramp_policy.c', '-lm'], { cwd: path.join(dir, 'firmware') });
+    execFileSync(path.join(dir, 'firmware/decide'), [path.join(dir, 'q.bin'), path.join(dir, 'd.bin')]);
+    const got = new Int32Array(fs.readFileSync(path.join(dir, 'd.bin')).buffer.slice(0));
+    expect(Array.from(got)).toEqual(Array.from(want));
+    const early = Array.from({ length: n }, (_, i) => want[2 * i]).filter((e) => e < E).length;
+    console.log(`int8 firmware decisions = lib/policy on ${n} cached int8 chain outputs (${early} leave early)`);
+    expect(early).toBeGreaterThan(0);
   });
 
   it('bad input: one line naming the file, exit 1, the output folder untouched', () => {

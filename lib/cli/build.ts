@@ -29,7 +29,10 @@ const setCount = (candidates: number, exits: number) => {
 const MAX_SETS = 5000;
 
 export function buildCommand(program: Command): void {
-  targetOptions(program.command('build'))
+  const cmd = targetOptions(program.command('build'));
+  const int8 = cmd.options.find((x) => x.long === '--int8');
+  if (int8) int8.description = 'also quantize the stages to int8 (DIR/int8, calibrated on the fitting rows), tune the policy on the int8 chain, write its firmware, and judge the int8 files as stored';
+  cmd
     .description('place, fit and tune exits, split into stages, check the chain and judge it against a target, in one go')
     .argument('<model>', 'trained ONNX classifier (first output: logits)')
     .requiredOption('--data <file>', 'calibration inputs (.npy [N, …]); even rows fit the heads, odd rows tune the policy')
@@ -55,7 +58,7 @@ export function buildCommand(program: Command): void {
       if (o.int8 && !target) throw usageError('--int8 chooses how a target budget is judged: give --target or --flash/--ram/--clock-mhz/--macs-per-cycle');
       const model = loadModel(file);
       refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }, { file: o.unlabelled, role: 'unlabelled data' }, { file: targetFile(o.target), role: 'target profile' }], [], [
-        { dir: o.out, names: /^((model|stage-\d+)(\.[0-9a-f]{16})?\.onnx|manifest\.json|report\.(json|html)|firmware)$/ },
+        { dir: o.out, names: /^((model|stage-\d+)(\.[0-9a-f]{16})?\.onnx|manifest\.json|report\.(json|html)|firmware|int8)$/ },
         { dir: path.join(o.out, 'firmware'), names: /^offramp_policy\.[ch]$/ },
       ]);
       checkOutDir(o.out);

@@ -31,6 +31,7 @@ import { scratchOf, withFolder } from '../util/folder.js';
 import { commitFolder, hashedName, sha256 } from '../split/commit.js';
 import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
 import { labelsOfParity, rowsOfParity } from './rows.js';
+import { buildInt8, type Int8Build } from './int8.js';
 
 export interface BuildOptions {
   /** calibration inputs (.npy or a TensorProto folder); even rows fit heads, odd rows tune */
@@ -38,7 +39,7 @@ export interface BuildOptions {
   labels?: string;
   out: string;
   target?: Target;
-  /** judge the budget on the int8 projection */
+  /** quantize the split to int8 (DIR/int8), tune on the int8 chain, write its firmware and judge its stored files */
   int8?: boolean;
   /** accuracy (percentage points) the policy may lose against the full model (default 1) */
   maxDrop?: number;
@@ -80,6 +81,8 @@ export interface BuildResult {
   budget?: Budget;
   /** SHA-256 of the manifest written: what the reports describe */
   manifestSha256: string;
+  /** with --int8: the quantized split, its policy and figures (budget is then the int8 files' as stored) */
+  int8?: Int8Build;
 }
 
 /** the grafted model in DIR is model.<hash>.onnx (named by its content, as stage files are) */
@@ -214,14 +217,22 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   } finally { await chain.release(); }
   if (!check.ok) throw new OfframpError('runtime', `the staged chain does not reproduce the model: ${check.diffs.filter((d) => !d.ok).map((d) => d.name).join(', ')}`, modelFile);
 
+  let int8: Int8Build | undefined;
+  if (o.int8) {
+    say('quantize', `int8 stage files calibrated on ${fitData.rows} rows, policy tuned on the int8 chain`);
+    int8 = await buildInt8({ out: o.out, modelFile, data: o.data, tuneData, tuneLabels, sample: io.sample, maxDrop, target: o.target, checkSamples: o.checkSamples });
+    // The firmware decides on the chain that runs: the int8 one.
+    writeC(int8.dir, path.join(o.out, FIRMWARE_DIR));
+  }
+
   say('budget', o.target ? o.target.name ?? 'target' : 'no target given');
   const staged = stagedOrder(g, split.stages);
   const cost = costModel({ ...staged.model, file: modelFile }, { stageEnds: staged.ends, shapes: await completeShapes(staged.model, { batch: 1 }) });
-  const budget = o.target && budgetOf(staged.model, cost, o.target, o.int8 ? 'int8' : 'stored');
+  const budget = int8 ? int8.budget : o.target && budgetOf(staged.model, cost, o.target, 'stored');
 
   return {
-    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written],
+    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written, ...(int8?.files ?? [])],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
-    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '',
+    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }),
   };
 }

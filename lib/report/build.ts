@@ -54,6 +54,25 @@ export function buildSummary(r: BuildResult) {
     },
     fronts: r.tuned.kinds.map((k) => ({ kind: k.kind, points: k.front.map((p) => ({ meanMacs: p.held.meanMacs, accuracy: p.held.accuracy, bound: p.cert?.bound ?? null, passed: p.cert?.passed ?? false })) })),
     budget: r.budget ?? null,
+    ...(r.int8 && { int8: int8Summary(r) }),
+  };
+}
+
+/** build --int8: the quantized chain's policy and figures, beside the float ones. */
+function int8Summary(r: BuildResult) {
+  const q = r.int8!, t = q.policy.tuned;
+  return {
+    // the folder as moved into DIR (the build ran in a scratch folder beside it)
+    dir: path.basename(q.dir),
+    calibration: q.manifest.quantization!.calibration,
+    policy: q.policy.rule,
+    heldOut: {
+      samples: t.samples, labelled: t.labelled, accuracy: t.accuracy, fullAccuracy: t.fullAccuracy,
+      dropPoints: (t.fullAccuracy - t.accuracy) * 100, maxDrop: t.maxDrop,
+      meanMacs: t.meanMacs, fullMacs: t.fullMacs, saving: t.fullMacs ? 1 - t.meanMacs / t.fullMacs : 0, exitShare: t.exitShare,
+    },
+    agreement: q.agreement.outputs.map((a) => ({ output: a.name, samples: a.samples, agreement: a.agreement, maxAbs: a.maxAbs })),
+    stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, handoverBytes: st.handoverBytes })),
   };
 }
 
@@ -78,7 +97,18 @@ export function buildText(r: BuildResult): string {
     '',
     table(['stage', 'MACs', 'weights', 'peak act.', 'arena', 'hands over', 'exit', 'leave here'], rows),
   ];
-  if (r.budget) lines.push('', budgetText(r.budget, storedLabel(r.cost)).trimEnd());
+  if (r.int8) {
+    const q = int8Summary(r), qh = q.heldOut;
+    lines.push('',
+      `int8       ${path.join(r.dir, q.dir)}: QDQ stage files, ${q.calibration.method} calibration on ${q.calibration.samples} rows; top-1 agreement with the grafted model ${q.agreement.map((a) => `${a.output} ${pct(a.agreement, 2)}`).join(', ')}`,
+      `policy     ${policyText(q.policy)} (tuned on the int8 chain; the firmware uses it)`,
+      `held out   ${qh.samples} samples: accuracy ${pct(qh.accuracy, 2)} vs ${pct(qh.fullAccuracy, 2)} for the full int8 chain (drop ${qh.dropPoints.toFixed(2)} points, allowed ${qh.maxDrop})`,
+      `MACs       ${si(Math.round(qh.meanMacs))} per sample on average vs ${si(qh.fullMacs)}: ${pct(qh.saving)} saved (float32 chain: ${pct(h.saving)})`,
+      '',
+      table(['int8 stage', 'weights', 'peak act.', 'hands over', 'leave here'], q.stages.map((st, k) => [st.file, bytes(st.weightBytes), bytes(st.peakActivationBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-', pct(qh.exitShare[k] ?? 0)])),
+    );
+  }
+  if (r.budget) lines.push('', budgetText(r.budget, r.int8 ? 'int8 as stored' : storedLabel(r.cost)).trimEnd());
   return lines.join('\n') + '\n';
 }
 
@@ -111,6 +141,7 @@ export function buildHtml(r: BuildResult): string {
 ${s.guarantee ? `<li><b>${esc(guaranteeLines(s.guarantee, policyText)[0])}</b>${guaranteeLines(s.guarantee, policyText).slice(1).map((l) => ` ${esc(l.trim())}`).join('')}.</li>` : ''}
 <li>Mean MACs per sample ${si(Math.round(h.meanMacs))} vs ${si(h.fullMacs)}: <b>${pct(h.saving)} saved</b>.</li>
 <li>Staged chain checked against the grafted model on ${s.check.samples} samples: ${s.check.ok ? 'identical outputs' : 'MISMATCH'} (max abs difference ${s.check.maxAbs}).</li>
+${s.int8 ? `<li>int8 (<code>${esc(s.int8.dir)}</code>, QDQ stage files, ${esc(s.int8.calibration.method)} calibration on ${s.int8.calibration.samples} rows): policy <code>${esc(policyText(s.int8.policy))}</code> tuned on the int8 chain; accuracy ${pct(s.int8.heldOut.accuracy, 2)} vs ${pct(s.int8.heldOut.fullAccuracy, 2)} for the full int8 chain; <b>${pct(s.int8.heldOut.saving)} saved</b> (float32 chain: ${pct(h.saving)}); top-1 agreement with the grafted model ${esc(s.int8.agreement.map((a) => `${a.output} ${pct(a.agreement, 2)}`).join(', '))}. The firmware, and the latency and verdicts below, are those of the int8 files as stored.</li>` : ''}
 <li>Target: ${target}.</li>
 <li>Describes <code>${MANIFEST_FILE}</code> with SHA-256 <code class="manifest-sha256">${esc(s.manifest.sha256)}</code>.</li>
 </ul>

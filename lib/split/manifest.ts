@@ -126,6 +126,8 @@ export interface ManifestQuantization {
     percentile?: number;
     /** rows run through the float chain */
     samples: number;
+    /** present when only the even or odd rows of the data were used */
+    rows?: 'even' | 'odd';
     data: { file: string; sha256: string };
   };
   weights: string; biases: string; activations: string;
