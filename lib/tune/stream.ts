@@ -184,7 +184,10 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const cheapest = (rs: Rec[]) => rs.reduce<Rec | undefined>((m, r) => (!m || r.cost < m.cost ? r : m), undefined);
   const last = cheapest(seq.passed);
 
-  const pointOf = (r: Rec): Point<StreamPolicy> => ({ policy: r.policy, tune: r.e, held: certify(r).e });
+  // a point's own bound (it passes only when its bolder neighbour's passes too)
+  const boundOf = (r: Rec) => { const [b] = bounds(r); return { estimate: b.estimate * 100, bound: b.bound * 100 }; };
+  const passedSet = new Set(seq.passed), testedSet = new Set([...seq.passed, ...(seq.failed ? [seq.failed] : [])]);
+  const pointOf = (r: Rec): Point<StreamPolicy> => ({ policy: r.policy, tune: r.e, held: certify(r).e, cert: { ...boundOf(r), tested: testedSet.has(r), passed: passedSet.has(r) } });
   const kinds: KindResult<StreamPolicy>[] = kindList.map((kind) => {
     const mine = cheapest(seq.passed.filter((r) => r.kind === kind));
     return { kind, evaluated: recs.filter((r) => r.kind === kind).length, front: fr.filter((r) => r.kind === kind).map(pointOf), chosen: (mine ? pointOf(mine) : fullPt) as Point<StreamPolicy> };
@@ -198,7 +201,9 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     return ns.some((n) => n === undefined) ? undefined : Math.max(...(ns as number[]));
   };
   let needed = seq.failed && need(seq.failed);
-  if (!last) for (const r of fr) { const n = need(r); if (n !== undefined && (needed === undefined || n < needed)) needed = n; }
+  let nextRec = seq.failed;
+  if (!last) for (const r of fr) { const n = need(r); if (n !== undefined && (needed === undefined || n < needed)) { needed = n; nextRec = r; } }
+  const next = nextRec && { policy: nextRec.policy, ...boundOf(nextRec), ...(needed !== undefined && { needed }) };
   const b = last ? bounds(last)[0] : undefined;
   const guarantee: Guarantee = {
     confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
@@ -206,7 +211,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     method: b ? `${b.method}, fixed-sequence over the front` : 'the full model (nothing cheaper certified)',
     margin: b ? maxDrop - b.bound * 100 : maxDrop,
     tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
-    ...(needed !== undefined && { needed }),
+    ...(needed !== undefined && { needed }), ...(next && { next }),
     assumes: [...STREAM_ASSUMES, `scenes from ${sc.source}: ${tuneScenes} searched, ${heldScenes} certified`],
   };
   return {
