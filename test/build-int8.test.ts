@@ -13,6 +13,7 @@ import { saveModel } from '../lib/graph/io.js';
 import { writeNpy } from '../lib/data/npy.js';
 import type { Manifest } from '../lib/split/manifest.js';
 import { offramp } from './helpers/cli.js';
+import { folderProblems } from './helpers/folder-check.js';
 
 let tmp: string, model: string, data: string, labels: string, free: string;
 const sha = (f: string) => crypto.createHash('sha256').update(fs.readFileSync(f)).digest('hex');
@@ -56,6 +57,11 @@ describe('build --int8', () => {
     expect(b.int8.heldOut.exitShare.at(-1)).toBe(1);
     // the float build's promise is made on the same terms
     expect(b.guarantee).toMatchObject({ confidence: 0.9, unlabelled: 20, certified: false });
+    // DIR/int8 is whole and its stage files are named by their own bytes, not the float stages' (the checker recomputes each SHA-256)
+    expect(folderProblems(out)).toEqual([]);
+    expect(m.stages.map((s) => s.file)).toEqual(m.stages.map((s) => `stage-${s.index}.${sha(path.join(out, 'int8', s.file)).slice(0, 16)}.onnx`));
+    const float = JSON.parse(fs.readFileSync(path.join(out, 'manifest.json'), 'utf8')) as Manifest;
+    for (const s of m.stages) expect(s.file).not.toBe(float.stages[s.index].file);
   });
 
   it('prints the int8 promise as the float one; a certifiable promise is kept', () => {

@@ -18,8 +18,9 @@ import { CERTIFY_SHARE, tune, type TuneResult } from '../tune/search.js';
 import { checkBudget, stageFootprints, type Budget, type StageFootprint } from '../chip/budget.js';
 import type { Target } from '../chip/target.js';
 import { OfframpError } from '../errors.js';
+import { INT8_DIR } from '../split/commit.js';
 
-export const INT8_DIR = 'int8';
+export { INT8_DIR } from '../split/commit.js';
 
 export interface Int8Build {
   dir: string;
@@ -51,7 +52,7 @@ export interface Int8Options {
 export async function buildInt8(o: Int8Options): Promise<Int8Build> {
   if (!fs.statSync(o.data).isFile()) throw new OfframpError('usage', '--int8 calibrates on .npy data, not a TensorProto folder', o.data);
   const dir = path.join(o.out, INT8_DIR);
-  const q = await quantizeSplit(o.out, { data: o.data, out: dir, parity: 0 });
+  const q = await quantizeSplit(o.out, { data: o.data, out: dir, parity: 0, inScratch: true });
 
   // The tuning rows (and the unlabelled ones) as .npy files for the chain's capture pass; removed again at the end.
   const rowsFile = path.join(o.out, `.int8-tune-${process.pid}.npy`), freeFile = path.join(o.out, `.int8-free-${process.pid}.npy`);

@@ -19,7 +19,7 @@ import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
 import { placeTensors } from '../onnx/external.js';
-import { hashedName, removeDescribing, sha256, sweep } from './commit.js';
+import { hashedName, removeDescribing, sha256, sweepAll } from './commit.js';
 import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
@@ -305,6 +305,6 @@ function writeSplitFiles(plan: CutPlan, cuts: Cut[], dir: string, source: string
   writeAtomic(path.join(dir, MANIFEST_FILE), toJson(manifest) + '\n');
   files.push(path.join(dir, MANIFEST_FILE));
   // Stage files of earlier splits would outlive the manifest that named them.
-  sweep(dir, manifest, [source]);
+  sweepAll(dir, manifest, MANIFEST_FILE, [source]);
   return { manifest, dir, files, stages: written };
 }
