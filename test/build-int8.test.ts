@@ -12,6 +12,7 @@ import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
 import { saveModel } from '../lib/graph/io.js';
 import { writeNpy } from '../lib/data/npy.js';
 import type { Manifest } from '../lib/split/manifest.js';
+import { loadModel } from '../lib/graph/io.js';
 import { offramp } from './helpers/cli.js';
 import { folderProblems } from './helpers/folder-check.js';
 
@@ -77,5 +78,57 @@ describe('build --int8', () => {
     expect(m.policy!.guarantee).toMatchObject({ certified: true, maxDrop: 100, confidence: 0.95 });
     const html = fs.readFileSync(path.join(out, 'report.html'), 'utf8');
     expect(html.match(/<b>promise: drop ≤ 100 pp/g)).toHaveLength(2);
+  });
+});
+
+describe('arena plans of a quantized split', () => {
+  it('each QDQ stage file has its own plan: its value names, int8 sizes, no two buffers alive together overlap; emit-c writes that plan', () => {
+    // the build of the first test: DIR/int8 is a quantized split with a policy (emit-c needs one)
+    const split = path.join(tmp, 'a'), q = path.join(tmp, 'a/int8'), fw = path.join(tmp, 'fw');
+    const r = offramp(['emit-c', q, '-o', fw]);
+    expect(r.code, r.stderr).toBe(0);
+    const m = JSON.parse(fs.readFileSync(path.join(q, 'manifest.json'), 'utf8')) as Manifest;
+    const float = JSON.parse(fs.readFileSync(path.join(split, 'manifest.json'), 'utf8')) as Manifest;
+    const rows: string[] = [];
+    for (const s of m.stages) {
+      const g = loadModel(path.join(q, s.file)).graph;
+      // the file's own values: inputs and node outputs (ONNX files list nodes in a topological order: common practice, the spec requires it)
+      const made = new Map<string, number>();
+      for (const v of g.inputs) made.set(v.name, -1);
+      g.nodes.forEach((n, i) => { for (const x of n.inputs) if (x) expect(made.has(x) || g.initializers.has(x), `${s.file}: ${x} before it is made`).toBe(true); for (const o of n.outputs) made.set(o, i); });
+      const a = s.arena!;
+      expect(a.buffers.length).toBeGreaterThan(0);
+      for (const b of a.buffers) {
+        expect(made.has(b.name), `${s.file}: ${b.name}`).toBe(true);
+        expect(g.initializers.has(b.name)).toBe(false);
+        expect(b.offset % a.align).toBe(0);
+        expect(b.offset + b.bytes).toBeLessThanOrEqual(s.arenaBytes!);
+      }
+      // the int8 values a QuantizeLinear makes are held at 1 byte per element (ONNX QuantizeLinear, int8 output)
+      const qOut = new Set(g.nodes.filter((n) => n.op === 'QuantizeLinear').map((n) => n.outputs[0]));
+      const quantized = a.buffers.filter((b) => qOut.has(b.name));
+      expect(quantized.length).toBeGreaterThan(0);
+      for (const b of quantized) {
+        const v = [...g.outputs, ...g.valueInfo.values()].find((x) => x.name === b.name);
+        if (v?.type.shape) expect(b.bytes).toBe(v.type.shape.reduce<number>((p, d) => p * (d as number), 1));
+      }
+      // no float value of a QDQ kernel gets a buffer of its own: MatMul outputs are their QuantizeLinear's int8 buffers
+      for (const n of g.nodes.filter((x) => x.op === 'MatMul')) expect(a.buffers.map((b) => b.name)).not.toContain(n.outputs[0]);
+      // never two buffers in the same bytes while both are needed (the arena plan's contract, DEVELOPERS.md)
+      for (const x of a.buffers) for (const y of a.buffers) {
+        if (x === y || x.last < y.first || y.last < x.first) continue;
+        expect(x.offset + x.bytes <= y.offset || y.offset + y.bytes <= x.offset, `${s.file}: ${x.name} and ${y.name}`).toBe(true);
+      }
+      expect(s.arenaBytes).toBeLessThan(float.stages[s.index].arenaBytes!);
+      for (const b of a.buffers) rows.push(`  { "${b.name}", ${b.offset}u, ${b.bytes}u, ${b.first}u, ${b.last}u },`);
+      rows.push(`#${s.index} ${s.arenaBytes}`);
+    }
+    // the firmware table is that plan, row for row, and its arena the largest stage's
+    const c99 = fs.readFileSync(path.join(fw, 'offramp_policy.c'), 'utf8');
+    const table = c99.slice(c99.indexOf('offramp_buffers[OFFRAMP_BUFFERS + 1] = {'));
+    expect(rows.filter((r) => !r.startsWith('#')).join('\n')).toBe(table.slice(table.indexOf('\n') + 1, table.indexOf('\n  { 0, 0u')));
+    const h = fs.readFileSync(path.join(fw, 'offramp_policy.h'), 'utf8');
+    expect(Number(/#define OFFRAMP_ARENA_BYTES (\d+)u/.exec(h)![1])).toBe(Math.max(...m.stages.map((s) => s.arenaBytes!)));
+    console.log(`QDQ arenas vs float: ${m.stages.map((s) => `${s.arenaBytes} B / ${float.stages[s.index].arenaBytes} B`).join(', ')}`);
   });
 });

@@ -121,8 +121,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
 
   it('stage weight bytes within 10 % of the int8 projection of the float stage files (lib/chip/budget.ts)', () => {
     const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
+    const fl = JSON.parse(fs.readFileSync(f('split/manifest.json'), 'utf8')) as Manifest;
     const rows = m.stages.map((s) => {
-      const fm = loadModel(f(`split/${s.file}`));
+      const fm = loadModel(f(`split/${fl.stages[s.index].file}`));
       return [s.weightBytes, Number(stageFootprints(fm, costModel(fm, { batch: 1 }))[0].int8.weightBytes)];
     });
     console.log(`int8 stage weights as stored vs projected: ${rows.map(([a, b]) => `${a} B / ${b} B`).join(', ')}`);
@@ -142,8 +143,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(t.code, t.stderr).toBe(0);
     // cost reads the QDQ file as an integer interpreter runs it: every MAC (convs, the head's Gemm) is int8, and
     // activations at 1 byte instead of 4 put the peak near a quarter of the float stage's (a fused Relu saves more)
-    const qc = JSON.parse(offramp(['cost', f('q/stage-1.onnx'), '--json']).stdout).model;
-    const fc = JSON.parse(offramp(['cost', f('split/stage-1.onnx'), '--json']).stdout).model;
+    const stage1 = (dir: string) => f(`${dir}/${(JSON.parse(fs.readFileSync(f(`${dir}/manifest.json`), 'utf8')) as Manifest).stages[1].file}`);
+    const qc = JSON.parse(offramp(['cost', stage1('q'), '--json']).stdout).model;
+    const fc = JSON.parse(offramp(['cost', stage1('split'), '--json']).stdout).model;
     expect(qc.int8Macs).toBe(qc.macs);
     expect(qc.macs).toBe(fc.macs);
     expect(fc.int8Macs).toBe(0);

@@ -17,7 +17,7 @@ import { costModel } from '../cost/report.js';
 import { openSession, runSession, tensorFromData, type OrtTensor, type Session } from '../runtime/ort.js';
 import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { readManifest } from '../run/chain.js';
-import { MANIFEST_FILE, type Manifest, type ManifestStage, type ManifestTensor } from '../split/manifest.js';
+import { fileArena, MANIFEST_FILE, type Manifest, type ManifestStage, type ManifestTensor } from '../split/manifest.js';
 import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
@@ -208,6 +208,7 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
       if (!(fs.existsSync(target) && sha256(fs.readFileSync(target)) === sha256(bytes))) { writeAtomic(target, bytes); added.push(target); }
       const sm = parseModel(bytes, target);
       const cost = costModel(sm, { shapes: inferShapes(sm, { batch: 1 }) });
+      const arena = fileArena(sm, cost);
       for (const [name, t] of q.model.graph.initializers) {
         let h = holders.get(name); if (!h) holders.set(name, (h = { bytes: Number(tensorByteSize(t)), stages: [] })); h.stages.push(s.entry.index);
       }
@@ -219,11 +220,15 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
           ...(p && { quant: { scale: p.scale, zeroPoint: p.zeroPoint } }),
         };
       };
+      // The float file's entry, but for what the QDQ file has of its own (a reordering's figures were the float file's).
+      const { reorder: _float, ...entry } = s.entry;
       return {
-        ...s.entry, file, sha256: sha256(bytes), nodes: q.model.graph.nodes.length,
+        ...entry, file, sha256: sha256(bytes), nodes: q.model.graph.nodes.length,
         inputs: s.entry.inputs.map(retype), outputs: s.entry.outputs.map(retype),
         weightBytes: Number([...q.model.graph.initializers.values()].reduce((a, t) => a + tensorByteSize(t), 0n)),
         peakActivationBytes: Number(cost.model.peakActivationBytes),
+        // the QDQ file's own plan: its value names, int8 buffers where an integer interpreter keeps them
+        arenaBytes: arena.bytes, arena: arena.plan,
         handoverBytes: s.entry.cut.reduce((a, n) => a + (handover.has(n) ? (floatBytes.get(n) ?? 0) / 4 : floatBytes.get(n) ?? 0), 0),
       };
     });
