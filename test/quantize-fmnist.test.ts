@@ -17,6 +17,7 @@ import { captureCache, chainLayout } from '../lib/tune/chain-capture.js';
 import { viewOf } from '../lib/tune/cache.js';
 import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
+import { folderProblems } from './helpers/folder-check.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
@@ -172,7 +173,11 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(m.quantization!.calibration).toMatchObject({ method: 'minmax', samples: 1000, rows: 'even' });
     expect(m.policy!.rule).toEqual(b.int8.policy);
     expect(b.int8.heldOut.dropPoints).toBeLessThanOrEqual(1 + 1e-9);   // points as a float difference of shares
-    console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);
+    // the int8 policy is certified on the float build's terms, and the promise is recorded with it
+    expect(m.policy!.guarantee).toMatchObject({ confidence: 0.95, maxDrop: 1, unit: 'samples' });
+    expect(b.int8.guarantee).toEqual(m.policy!.guarantee);
+    expect(folderProblems(out)).toEqual([]);
+    console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows; int8 ${b.int8.guarantee.certified ? `certified bound ${b.int8.guarantee.bound.toFixed(2)} pp` : 'not certified'}); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);
     // the budget judges the stored int8 files, not a projection of the float ones
     expect(b.budget.stages.map((s: { stored: { weightBytes: number } }) => s.stored.weightBytes)).toEqual(m.stages.map((s) => s.weightBytes));
     const c99 = fs.readFileSync(path.join(out, 'firmware/offramp_policy.c'), 'utf8');
