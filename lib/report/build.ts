@@ -74,7 +74,7 @@ function int8Summary(r: BuildResult) {
     },
     guarantee: q.policy.guarantee ?? null,
     agreement: q.agreement.outputs.map((a) => ({ output: a.name, samples: a.samples, agreement: a.agreement, maxAbs: a.maxAbs })),
-    stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, handoverBytes: st.handoverBytes })),
+    stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, arenaBytes: st.arenaBytes ?? null, handoverBytes: st.handoverBytes })),
   };
 }
 
@@ -116,7 +116,7 @@ export function buildText(r: BuildResult): string {
       ...promiseText(q.guarantee),
       `MACs       ${si(Math.round(qh.meanMacs))} per sample on average vs ${si(qh.fullMacs)}: ${pct(qh.saving)} saved (float32 chain: ${pct(h.saving)})`,
       '',
-      table(['int8 stage', 'weights', 'peak act.', 'hands over', 'leave here'], q.stages.map((st, k) => [st.file, bytes(st.weightBytes), bytes(st.peakActivationBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-', pct(qh.exitShare[k] ?? 0)])),
+      table(['int8 stage', 'weights', 'peak act.', 'arena', 'hands over', 'leave here'], q.stages.map((st, k) => [st.file, bytes(st.weightBytes), bytes(st.peakActivationBytes), st.arenaBytes === null ? '-' : bytes(st.arenaBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-', pct(qh.exitShare[k] ?? 0)])),
     );
   }
   if (r.budget) lines.push('', budgetText(r.budget, r.int8 ? 'int8 as stored' : storedLabel(r.cost)).trimEnd());
