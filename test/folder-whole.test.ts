@@ -119,6 +119,25 @@ describe('a folder stopped mid-way stays whole (seeded stop points)', () => {
     });
   });
 
+  it('build --int8 (DIR/int8 moves with its build)', () => {
+    const b8 = (extra: string[]) => build(['--int8', '--target', 'm4f', ...extra]);
+    const base = b8(['--seed', '1']), variant = b8(['--seed', '2', '--max-exits', '1']);
+    killProperty(prepare('build8', base, variant), variant, (log, dir) => {
+      const all = log.map((_, i) => i + 1);
+      const inInt8 = all.filter((k) => log[k - 1].split(' ').slice(1).some((p) => p.startsWith(path.join(dir, 'int8') + path.sep)));
+      const inDir = all.filter((k) => !inInt8.includes(k) && log[k - 1].split(' ').slice(1).some((p) => p.startsWith(dir + path.sep)));
+      // every change inside DIR/int8 (its manifest comes and goes with the firmware that describes it)
+      return [...inInt8, ...pick(inDir, 3, 32)];
+    });
+  });
+
+  it('quantize (QDIR changes as a split folder does)', () => {
+    const split = (at: string) => path.join(tmp, `q-split-${at.replace(/\W/g, '')}`);
+    for (const at of ['30%', '60%']) expect(run(['split', model, '--at', at, '-o', split(at)]).code).toBe(0);
+    const q = (at: string) => (out: string) => ['quantize', split(at), '--data', data, '-o', out];
+    killProperty(prepare('quantize', q('30%'), q('60%')), q('60%'), (log) => pick(log.map((_, i) => i + 1), 6, 41));
+  });
+
   it('split', () => {
     const split = (at: string) => (out: string) => ['split', model, '--at', at, '-o', out];
     killProperty(prepare('split', split('20%,50%,80%'), split('40%')), split('40%'), (log) => pick(log.map((_, i) => i + 1), 6, 21));
@@ -139,6 +158,19 @@ describe('split into a build folder', () => {
     for (const f of ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c']) expect(left).not.toContain(f);
     expect(left).toContain('notes.txt');
     expect(left).toContain(grafted);
+  });
+});
+
+describe('a build folder with DIR/int8, written again without --int8', () => {
+  it('loses its int8 manifest (it describes the manifest replaced) and the int8 stage files', () => {
+    const b8 = (extra: string[]) => build(['--int8', '--target', 'm4f', ...extra]);
+    const { done } = prepare('build8', b8(['--seed', '1']), b8(['--seed', '2', '--max-exits', '1']));
+    const dir = path.join(tmp, 'unint8');
+    fs.cpSync(done, dir, { recursive: true });
+    expect(run(buildBase(dir)).code).toBe(0);
+    expect(folderProblems(dir)).toEqual([]);
+    expect(fs.existsSync(path.join(dir, 'int8'))).toBe(false);
+    expect(fs.readFileSync(path.join(dir, 'firmware/offramp_policy.c'), 'utf8')).toContain(manifestSha(dir));
   });
 });
 

@@ -17,6 +17,7 @@ import { captureCache, chainLayout } from '../lib/tune/chain-capture.js';
 import { viewOf } from '../lib/tune/cache.js';
 import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
+import { folderProblems } from './helpers/folder-check.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
@@ -121,8 +122,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
 
   it('stage weight bytes within 10 % of the int8 projection of the float stage files (lib/chip/budget.ts)', () => {
     const m = JSON.parse(fs.readFileSync(f('q/manifest.json'), 'utf8')) as Manifest;
+    const fl = JSON.parse(fs.readFileSync(f('split/manifest.json'), 'utf8')) as Manifest;
     const rows = m.stages.map((s) => {
-      const fm = loadModel(f(`split/${s.file}`));
+      const fm = loadModel(f(`split/${fl.stages[s.index].file}`));
       return [s.weightBytes, Number(stageFootprints(fm, costModel(fm, { batch: 1 }))[0].int8.weightBytes)];
     });
     console.log(`int8 stage weights as stored vs projected: ${rows.map(([a, b]) => `${a} B / ${b} B`).join(', ')}`);
@@ -142,8 +144,9 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(t.code, t.stderr).toBe(0);
     // cost reads the QDQ file as an integer interpreter runs it: every MAC (convs, the head's Gemm) is int8, and
     // activations at 1 byte instead of 4 put the peak near a quarter of the float stage's (a fused Relu saves more)
-    const qc = JSON.parse(offramp(['cost', f('q/stage-1.onnx'), '--json']).stdout).model;
-    const fc = JSON.parse(offramp(['cost', f('split/stage-1.onnx'), '--json']).stdout).model;
+    const stage1 = (dir: string) => f(`${dir}/${(JSON.parse(fs.readFileSync(f(`${dir}/manifest.json`), 'utf8')) as Manifest).stages[1].file}`);
+    const qc = JSON.parse(offramp(['cost', stage1('q'), '--json']).stdout).model;
+    const fc = JSON.parse(offramp(['cost', stage1('split'), '--json']).stdout).model;
     expect(qc.int8Macs).toBe(qc.macs);
     expect(qc.macs).toBe(fc.macs);
     expect(fc.int8Macs).toBe(0);
@@ -170,7 +173,11 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(m.quantization!.calibration).toMatchObject({ method: 'minmax', samples: 1000, rows: 'even' });
     expect(m.policy!.rule).toEqual(b.int8.policy);
     expect(b.int8.heldOut.dropPoints).toBeLessThanOrEqual(1 + 1e-9);   // points as a float difference of shares
-    console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);
+    // the int8 policy is certified on the float build's terms, and the promise is recorded with it
+    expect(m.policy!.guarantee).toMatchObject({ confidence: 0.95, maxDrop: 1, unit: 'samples' });
+    expect(b.int8.guarantee).toEqual(m.policy!.guarantee);
+    expect(folderProblems(out)).toEqual([]);
+    console.log(`Fashion-MNIST build: per-frame saving ${(b.heldOut.saving * 100).toFixed(1)} % float32, ${(b.int8.heldOut.saving * 100).toFixed(1)} % int8 (policy tuned on each chain; held out ${b.int8.heldOut.samples} rows; int8 ${b.int8.guarantee.certified ? `certified bound ${b.int8.guarantee.bound.toFixed(2)} pp` : 'not certified'}); int8 agreement ${b.int8.agreement.map((a: { output: string; agreement: number }) => `${a.output} ${(a.agreement * 100).toFixed(2)} %`).join(', ')}`);
     // the budget judges the stored int8 files, not a projection of the float ones
     expect(b.budget.stages.map((s: { stored: { weightBytes: number } }) => s.stored.weightBytes)).toEqual(m.stages.map((s) => s.weightBytes));
     const c99 = fs.readFileSync(path.join(out, 'firmware/offramp_policy.c'), 'utf8');

@@ -31,16 +31,16 @@ export function quantizeCommand(program: Command): void {
       const m = r.manifest;
       if (o.json) {
         emit(toJson({ schema: 'offramp-quantize/1', dir: r.dir, quantization: m.quantization, weights: r.weights, biases: r.biases,
-          stages: m.stages.map((s) => ({ index: s.index, file: s.file, weightBytes: s.weightBytes, peakActivationBytes: s.peakActivationBytes, handoverBytes: s.handoverBytes })),
+          stages: m.stages.map((s) => ({ index: s.index, file: s.file, weightBytes: s.weightBytes, peakActivationBytes: s.peakActivationBytes, arenaBytes: s.arenaBytes, handoverBytes: s.handoverBytes })),
           outputs: m.outputs.map((t) => ({ name: t.name, ...(t.quant && { quant: t.quant }) })) }) + '\n');
         return;
       }
       const cal = m.quantization!.calibration;
-      const rows = m.stages.map((s) => [s.file, fmtBytes(s.weightBytes), fmtBytes(s.peakActivationBytes), s.handoverBytes ? fmtBytes(s.handoverBytes) : '-',
+      const rows = m.stages.map((s) => [s.file, fmtBytes(s.weightBytes), fmtBytes(s.peakActivationBytes), s.arenaBytes === undefined ? '-' : fmtBytes(s.arenaBytes), s.handoverBytes ? fmtBytes(s.handoverBytes) : '-',
         s.outputs.filter((t) => t.quant).map((t) => `${t.name} ${t.dtype} s=${t.quant!.scale.toPrecision(4)} z=${t.quant!.zeroPoint}`).join(', ') || '-']);
       emit(`quantized  ${r.dir}: ${m.stages.length} stages, ${r.weights} weights int8 per channel, ${r.biases} biases int32, ${r.folded} batch norms folded\n` +
         `calibrated ${cal.method}${cal.percentile !== undefined ? ` ${cal.percentile} %` : ''} on ${cal.samples} rows of ${o.data}\n\n` +
-        `${table(['stage', 'weights', 'peak act.', 'hands over', 'outputs (int8 parameters)'], rows)}\n\n` +
+        `${table(['stage', 'weights', 'peak act.', 'arena', 'hands over', 'outputs (int8 parameters)'], rows)}\n\n` +
         `next: offramp check ${r.dir} --against <model> --data …, then offramp tune ${r.dir} (the float policy is not carried over)\n`);
     });
 }

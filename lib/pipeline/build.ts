@@ -188,7 +188,8 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
 
   say('tune', `policies on ${tuneData.rows} rows`);
   const captured = await captureExits(g, tuneData, tuneLabels);
-  const unlabelled = o.unlabelled ? (await captureExits(g, dataSource(o.unlabelled, io.declared, io.sample))).cache : undefined;
+  const freeData = o.unlabelled ? dataSource(o.unlabelled, io.declared, io.sample) : undefined;
+  const unlabelled = freeData ? (await captureExits(g, freeData)).cache : undefined;
   const stageMacs = split.manifest.stages.map((s) => s.macs);
   // Heads sit inside their stages, so stage MACs already hold them.
   const tuned = tune(captured.cache, { stage: stageMacs, head: captured.exits.map(() => 0) }, { maxDrop, confidence, unlabelled, heldOut: CERTIFY_SHARE });
@@ -220,7 +221,7 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   let int8: Int8Build | undefined;
   if (o.int8) {
     say('quantize', `int8 stage files calibrated on ${fitData.rows} rows, policy tuned on the int8 chain`);
-    int8 = await buildInt8({ out: o.out, modelFile, data: o.data, tuneData, tuneLabels, sample: io.sample, maxDrop, target: o.target, checkSamples: o.checkSamples });
+    int8 = await buildInt8({ out: o.out, modelFile, data: o.data, tuneData, tuneLabels, unlabelled: freeData, sample: io.sample, maxDrop, confidence, target: o.target, checkSamples: o.checkSamples });
     // The firmware decides on the chain that runs: the int8 one.
     writeC(int8.dir, path.join(o.out, FIRMWARE_DIR));
   }

@@ -2,9 +2,8 @@
 // stage files are int8 QDQ models. BatchNormalization is folded, activation
 // ranges are calibrated by running the rows of the data through the float chain
 // (every stage with its activations exposed), and handover tensors between stages
-// become int8. Everything is written into a scratch folder beside the target and
-// moved in at the end (the manifest last), so the target is never half written.
-import crypto from 'node:crypto';
+// become int8. The target folder changes as a split's does (split/commit.ts): stage
+// files named by their own content first, the manifest last, so it is never half written.
 import fs from 'node:fs';
 import path from 'node:path';
 import type { Model } from '../graph/ir.js';
@@ -18,9 +17,11 @@ import { costModel } from '../cost/report.js';
 import { openSession, runSession, tensorFromData, type OrtTensor, type Session } from '../runtime/ort.js';
 import { npyBatches, readNpyHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { readManifest } from '../run/chain.js';
-import { MANIFEST_FILE, type Manifest, type ManifestStage, type ManifestTensor } from '../split/manifest.js';
+import { fileArena, MANIFEST_FILE, type Manifest, type ManifestStage, type ManifestTensor } from '../split/manifest.js';
 import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
+import { withFolder } from '../util/folder.js';
+import { hashedName, removeDescribing, sha256, sweepAll } from '../split/commit.js';
 import { OfframpError } from '../errors.js';
 import { foldBatchNorm } from './fold-bn.js';
 import { activationPlan, QDQ_OPS, toQdq, type ActivationPlan, type ActParams } from './qdq.js';
@@ -47,6 +48,8 @@ export interface QuantizeOptions {
   percentile?: number;
   /** calibration rows used (the first ones); default all */
   samples?: number;
+  /** `out` is a fresh scratch folder whose writer already holds the lock (offramp build) */
+  inScratch?: boolean;
   /** use only the even (0) or odd (1) rows of the data (a build calibrates on the rows that fit the heads) */
   parity?: 0 | 1;
   onProgress?: (done: number, total: number) => void;
@@ -54,7 +57,6 @@ export interface QuantizeOptions {
 
 export interface QuantizeResult { dir: string; manifest: Manifest; files: string[]; folded: number; weights: number; biases: number; samples: number }
 
-const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
 const rel = (from: string, to: string) => path.relative(path.resolve(from), path.resolve(to)).split(path.sep).join('/');
 
 interface Stage { entry: ManifestStage; file: string; model: Model; plan: ActivationPlan }
@@ -131,11 +133,21 @@ async function pass(sessions: Session[], stages: Stage[], data: string, input: M
   return n;
 }
 
+/**
+ * Quantize the split in `dir` into `o.out`, holding that folder's lock (util/folder.ts) from the
+ * start: stage files named by their own content go in beside the current ones, the manifest last
+ * (the commit point, split/commit.ts), then stage files it does not name are removed.
+ */
 export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<QuantizeResult> {
   const { manifest: src, file: srcFile } = readManifest(dir);
+  const final = path.resolve(o.out);
+  if (final === path.resolve(path.dirname(srcFile))) throw new OfframpError('usage', 'the output folder is the input split: give another -o');
+  return o.inScratch ? quantizeInto(src, srcFile, o) : withFolder(final, () => quantizeInto(src, srcFile, o));
+}
+
+async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions): Promise<QuantizeResult> {
   const srcDir = path.dirname(srcFile);
   const final = path.resolve(o.out);
-  if (final === path.resolve(srcDir)) throw new OfframpError('usage', 'the output folder is the input split: give another -o');
   const method = o.calibration ?? DEFAULT_CALIBRATION, pct = o.percentile ?? DEFAULT_PERCENTILE;
   if (src.inputs.length !== 1 || src.inputs[0].dtype !== 'float32') throw new OfframpError('data', 'quantize calibrates a chain with one float32 input', srcFile);
   const input = src.inputs[0];
@@ -175,9 +187,10 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
   const handParams = new Map<string, ActParams>();
   for (const s of stages) for (const v of s.plan.values) if (handover.has(v)) handParams.set(v, paramsOf(v, s.plan)!);
 
-  const work = `${final}.partial-${process.pid}`;
-  fs.rmSync(work, { recursive: true, force: true });
-  fs.mkdirSync(work, { recursive: true });
+  fs.mkdirSync(final, { recursive: true });
+  const sourceFile = path.resolve(srcDir, src.source.file);
+  // Stage files this call adds: removed again if it fails before its manifest is in.
+  const added: string[] = [];
   try {
     let weights = 0, biases = 0;
     const floatBytes = new Map(src.stages.flatMap((x) => x.outputs).map((t) => [t.name, t.bytes]));
@@ -190,9 +203,12 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
       const q = toQdq(s.model, { params: stageParams, plan: s.plan, int8Inputs, int8Outputs });
       weights += q.weights; biases += q.biases;
       const bytes = encodeModel(modelToProto(q.model));
-      writeAtomic(path.join(work, s.entry.file), bytes);
-      const sm = parseModel(bytes, s.file);
+      // Named by its own bytes: same name, same bytes, so one already there is left as it is.
+      const file = hashedName(`stage-${s.entry.index}`, bytes), target = path.join(final, file);
+      if (!(fs.existsSync(target) && sha256(fs.readFileSync(target)) === sha256(bytes))) { writeAtomic(target, bytes); added.push(target); }
+      const sm = parseModel(bytes, target);
       const cost = costModel(sm, { shapes: inferShapes(sm, { batch: 1 }) });
+      const arena = fileArena(sm, cost);
       for (const [name, t] of q.model.graph.initializers) {
         let h = holders.get(name); if (!h) holders.set(name, (h = { bytes: Number(tensorByteSize(t)), stages: [] })); h.stages.push(s.entry.index);
       }
@@ -204,11 +220,15 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
           ...(p && { quant: { scale: p.scale, zeroPoint: p.zeroPoint } }),
         };
       };
+      // The float file's entry, but for what the QDQ file has of its own (a reordering's figures were the float file's).
+      const { reorder: _float, ...entry } = s.entry;
       return {
-        ...s.entry, sha256: sha256(bytes), nodes: q.model.graph.nodes.length,
+        ...entry, file, sha256: sha256(bytes), nodes: q.model.graph.nodes.length,
         inputs: s.entry.inputs.map(retype), outputs: s.entry.outputs.map(retype),
         weightBytes: Number([...q.model.graph.initializers.values()].reduce((a, t) => a + tensorByteSize(t), 0n)),
         peakActivationBytes: Number(cost.model.peakActivationBytes),
+        // the QDQ file's own plan: its value names, int8 buffers where an integer interpreter keeps them
+        arenaBytes: arena.bytes, arena: arena.plan,
         handoverBytes: s.entry.cut.reduce((a, n) => a + (handover.has(n) ? (floatBytes.get(n) ?? 0) / 4 : floatBytes.get(n) ?? 0), 0),
       };
     });
@@ -216,7 +236,7 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
     const dataBytes = fs.readFileSync(o.data);
     const manifest: Manifest = {
       ...src,
-      source: { file: rel(final, path.resolve(srcDir, src.source.file)), sha256: src.source.sha256 },
+      source: { file: rel(final, sourceFile), sha256: src.source.sha256 },
       outputs: src.outputs.map((t) => { const p = params.get(t.name); return p ? { ...t, quant: { scale: p.scale, zeroPoint: p.zeroPoint } } : t; }),
       stages: entries,
       sharedWeights: [...holders].filter(([, h]) => h.stages.length > 1).sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0)).map(([name, h]) => ({ name, ...h })),
@@ -231,13 +251,15 @@ export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<Qu
       },
     };
     delete manifest.policy;
-    writeAtomic(path.join(work, MANIFEST_FILE), toJson(manifest) + '\n');
-    fs.mkdirSync(final, { recursive: true });
+    // The commit, as a split makes it: what described the old manifest goes, the manifest comes in,
+    // stage files it does not name go last.
+    removeDescribing(final);
+    writeAtomic(path.join(final, MANIFEST_FILE), toJson(manifest) + '\n');
+    added.length = 0;
+    sweepAll(final, manifest, MANIFEST_FILE, [sourceFile]);
     const files = [...entries.map((e) => e.file), MANIFEST_FILE];
-    for (const f of files) fs.renameSync(path.join(work, f), path.join(final, f));
-    for (let k = entries.length; fs.existsSync(path.join(final, `stage-${k}.onnx`)); k++) fs.rmSync(path.join(final, `stage-${k}.onnx`));
     return { dir: o.out, manifest, files: files.map((f) => path.join(o.out, f)), folded, weights, biases, samples };
   } finally {
-    fs.rmSync(work, { recursive: true, force: true });
+    for (const f of added) fs.rmSync(f, { force: true });
   }
 }

@@ -8,6 +8,7 @@ import { esc, lineChart, barChart, type Series } from './svg.js';
 import { budgetText, duration, storedLabel } from './budget.js';
 import { MANIFEST_FILE } from '../split/manifest.js';
 import { frontSeries, guaranteeLines } from './tune.js';
+import type { Guarantee } from '../certify/guarantee.js';
 
 export const BUILD_SCHEMA = 'offramp-build/2';
 
@@ -71,14 +72,23 @@ function int8Summary(r: BuildResult) {
       dropPoints: (t.fullAccuracy - t.accuracy) * 100, maxDrop: t.maxDrop,
       meanMacs: t.meanMacs, fullMacs: t.fullMacs, saving: t.fullMacs ? 1 - t.meanMacs / t.fullMacs : 0, exitShare: t.exitShare,
     },
+    guarantee: q.policy.guarantee ?? null,
     agreement: q.agreement.outputs.map((a) => ({ output: a.name, samples: a.samples, agreement: a.agreement, maxAbs: a.maxAbs })),
-    stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, handoverBytes: st.handoverBytes })),
+    stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, arenaBytes: st.arenaBytes ?? null, handoverBytes: st.handoverBytes })),
   };
 }
 
 export function buildJson(r: BuildResult): string {
   return toJson({ schema: BUILD_SCHEMA, ...buildSummary(r) }) + '\n';
 }
+
+/** The promise (or why there is none) under a `certified` line, aligned with the other rows. */
+const promiseText = (g: Guarantee | null): string[] =>
+  g ? guaranteeLines(g, policyText).map((l, i) => (i ? '           ' + l.trim() : `promise    ${l.replace(/^promise: /, '')}`)) : [];
+
+/** The same for the HTML page: the first line bold. */
+const promiseHtml = (g: Guarantee | null): string =>
+  g ? `<b>${esc(guaranteeLines(g, policyText)[0])}</b>${guaranteeLines(g, policyText).slice(1).map((l) => ` ${esc(l.trim())}`).join('')}.` : '';
 
 export function buildText(r: BuildResult): string {
   const s = buildSummary(r), h = s.heldOut;
@@ -91,7 +101,7 @@ export function buildText(r: BuildResult): string {
     `exits at   ${s.exits.map((e) => `${e.cut} (${e.head})`).join(', ')}`,
     `policy     ${policyText(s.policy)}`,
     `certified  on ${h.samples} held-out samples: accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop})${h.labelled ? '' : ' — against the model\'s own answers'}`,
-    ...(s.guarantee ? guaranteeLines(s.guarantee, policyText).map((l, i) => (i ? '           ' + l.trim() : `promise    ${l.replace(/^promise: /, '')}`)) : []),
+    ...promiseText(s.guarantee),
     `MACs       ${si(Math.round(h.meanMacs))} per sample on average vs ${si(h.fullMacs)}: ${pct(h.saving)} saved`,
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
     '',
@@ -102,10 +112,11 @@ export function buildText(r: BuildResult): string {
     lines.push('',
       `int8       ${path.join(r.dir, q.dir)}: QDQ stage files, ${q.calibration.method} calibration on ${q.calibration.samples} rows; top-1 agreement with the grafted model ${q.agreement.map((a) => `${a.output} ${pct(a.agreement, 2)}`).join(', ')}`,
       `policy     ${policyText(q.policy)} (tuned on the int8 chain; the firmware uses it)`,
-      `held out   ${qh.samples} samples: accuracy ${pct(qh.accuracy, 2)} vs ${pct(qh.fullAccuracy, 2)} for the full int8 chain (drop ${qh.dropPoints.toFixed(2)} points, allowed ${qh.maxDrop})`,
+      `certified  on ${qh.samples} held-out samples: accuracy ${pct(qh.accuracy, 2)} vs ${pct(qh.fullAccuracy, 2)} for the full int8 chain (drop ${qh.dropPoints.toFixed(2)} points, allowed ${qh.maxDrop})${qh.labelled ? '' : ' — against the int8 chain\'s own answers'}`,
+      ...promiseText(q.guarantee),
       `MACs       ${si(Math.round(qh.meanMacs))} per sample on average vs ${si(qh.fullMacs)}: ${pct(qh.saving)} saved (float32 chain: ${pct(h.saving)})`,
       '',
-      table(['int8 stage', 'weights', 'peak act.', 'hands over', 'leave here'], q.stages.map((st, k) => [st.file, bytes(st.weightBytes), bytes(st.peakActivationBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-', pct(qh.exitShare[k] ?? 0)])),
+      table(['int8 stage', 'weights', 'peak act.', 'arena', 'hands over', 'leave here'], q.stages.map((st, k) => [st.file, bytes(st.weightBytes), bytes(st.peakActivationBytes), st.arenaBytes === null ? '-' : bytes(st.arenaBytes), st.handoverBytes ? bytes(st.handoverBytes) : '-', pct(qh.exitShare[k] ?? 0)])),
     );
   }
   if (r.budget) lines.push('', budgetText(r.budget, r.int8 ? 'int8 as stored' : storedLabel(r.cost)).trimEnd());
@@ -138,10 +149,10 @@ export function buildHtml(r: BuildResult): string {
 <ul>
 <li>Exits at ${s.exits.map((e) => `<code>${esc(e.cut)}</code> (${esc(e.head)})`).join(', ')}; policy <code>${esc(policyText(s.policy))}</code>.</li>
 <li>Certification part (${h.samples} held-out samples${h.labelled ? '' : ', against the model\u2019s own answers'}): accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model (drop ${h.dropPoints.toFixed(2)} points, allowed ${h.maxDrop}).</li>
-${s.guarantee ? `<li><b>${esc(guaranteeLines(s.guarantee, policyText)[0])}</b>${guaranteeLines(s.guarantee, policyText).slice(1).map((l) => ` ${esc(l.trim())}`).join('')}.</li>` : ''}
+${s.guarantee ? `<li>${promiseHtml(s.guarantee)}</li>` : ''}
 <li>Mean MACs per sample ${si(Math.round(h.meanMacs))} vs ${si(h.fullMacs)}: <b>${pct(h.saving)} saved</b>.</li>
 <li>Staged chain checked against the grafted model on ${s.check.samples} samples: ${s.check.ok ? 'identical outputs' : 'MISMATCH'} (max abs difference ${s.check.maxAbs}).</li>
-${s.int8 ? `<li>int8 (<code>${esc(s.int8.dir)}</code>, QDQ stage files, ${esc(s.int8.calibration.method)} calibration on ${s.int8.calibration.samples} rows): policy <code>${esc(policyText(s.int8.policy))}</code> tuned on the int8 chain; accuracy ${pct(s.int8.heldOut.accuracy, 2)} vs ${pct(s.int8.heldOut.fullAccuracy, 2)} for the full int8 chain; <b>${pct(s.int8.heldOut.saving)} saved</b> (float32 chain: ${pct(h.saving)}); top-1 agreement with the grafted model ${esc(s.int8.agreement.map((a) => `${a.output} ${pct(a.agreement, 2)}`).join(', '))}. The firmware, and the latency and verdicts below, are those of the int8 files as stored.</li>` : ''}
+${s.int8 ? `<li>int8 (<code>${esc(s.int8.dir)}</code>, QDQ stage files, ${esc(s.int8.calibration.method)} calibration on ${s.int8.calibration.samples} rows): policy <code>${esc(policyText(s.int8.policy))}</code> tuned on the int8 chain; accuracy ${pct(s.int8.heldOut.accuracy, 2)} vs ${pct(s.int8.heldOut.fullAccuracy, 2)} for the full int8 chain (drop ${s.int8.heldOut.dropPoints.toFixed(2)} points, allowed ${s.int8.heldOut.maxDrop}); ${s.int8.guarantee ? `${promiseHtml(s.int8.guarantee)} ` : ''}<b>${pct(s.int8.heldOut.saving)} saved</b> (float32 chain: ${pct(h.saving)}); top-1 agreement with the grafted model ${esc(s.int8.agreement.map((a) => `${a.output} ${pct(a.agreement, 2)}`).join(', '))}. The firmware, and the latency and verdicts below, are those of the int8 files as stored.</li>` : ''}
 <li>Target: ${target}.</li>
 <li>Describes <code>${MANIFEST_FILE}</code> with SHA-256 <code class="manifest-sha256">${esc(s.manifest.sha256)}</code>.</li>
 </ul>

@@ -6,7 +6,8 @@
 //      names the manifest's SHA-256) are removed;
 //   3. the manifest is renamed in;
 //   4. the new describing files are renamed in;
-//   5. content files the new manifest does not name are removed.
+//   5. content files the new manifest does not name are removed (in a nested split folder,
+//      DIR/int8, those its own manifest does not name).
 // Stopped at any point (SIGKILL included), the folder holds one manifest whose files all exist
 // with the SHA-256 it records, and describing files, where present, that describe it.
 import crypto from 'node:crypto';
@@ -19,11 +20,21 @@ export const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).d
 /** `stage-0` + bytes → `stage-0.<first 16 hex of the SHA-256>.onnx`: same bytes, same name. */
 export const hashedName = (stem: string, bytes: Uint8Array) => `${stem}.${sha256(bytes).slice(0, 16)}.onnx`;
 
+/** Where `build --int8` puts the quantized split, inside the build folder. */
+export const INT8_DIR = 'int8';
+
 /**
  * Files that describe one manifest (each names its SHA-256): a split removes them, a build writes
  * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old.
  */
-export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c'];
+export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', `${INT8_DIR}/manifest.json`];
+
+/**
+ * Split folders a build nests in its own (`build --int8` writes the quantized split into DIR/int8).
+ * Their manifest describes the outer one (its `quantization.from` holds the outer manifest's SHA-256),
+ * so it goes and comes as the reports do; their content files are content as the outer ones are.
+ */
+export const NESTED = [INT8_DIR];
 
 /** Content files of offramp's splits and builds (earlier versions' plain stage names included). */
 const CONTENT = /^(?:stage-\d+|model)\.[0-9a-f]{16}\.onnx$|^stage-\d+\.onnx$/;
@@ -33,14 +44,38 @@ interface Named { stages: { file: string }[]; source: { file: string } }
 
 const real = (f: string) => { try { return fs.realpathSync(f); } catch { return path.resolve(f); } };
 
-/** Step 5: remove content files `manifest` does not name; never one of `keep` (the source model, say). */
-export function sweep(dir: string, manifest: Named, keep: string[] = []): void {
-  const named = new Set([...manifest.stages.map((s) => s.file), manifest.source.file]);
+/**
+ * Step 5: remove content files `manifest` does not name; never one of `keep` (the source model, say).
+ * In a nested split folder, the same against its own manifest, or all its content files if it has
+ * none (a build without --int8 over one with it); the folder goes once empty.
+ */
+export function sweep(dir: string, manifest: Named | undefined, keep: string[] = []): void {
+  const named = new Set(manifest ? [...manifest.stages.map((s) => s.file), manifest.source.file] : []);
   const kept = new Set(keep.map(real));
-  for (const f of fs.readdirSync(dir)) {
+  let files: string[];
+  try { files = fs.readdirSync(dir); } catch { return; }
+  for (const f of files) {
     const p = path.join(dir, f);
     if (isContentFile(f) && !named.has(f) && !kept.has(real(p))) fs.rmSync(p, { force: true });
   }
+  if (!manifest) { try { fs.rmdirSync(dir); } catch { /* not empty: files it does not own stay */ } }
+}
+
+/** Step 5 for the nested folders of `dir`. */
+function sweepNested(dir: string, manifestName: string, keep: string[]): void {
+  for (const n of NESTED) {
+    const sub = path.join(dir, n);
+    if (!fs.existsSync(sub)) continue;
+    let m: Named | undefined;
+    try { m = JSON.parse(fs.readFileSync(path.join(sub, manifestName), 'utf8')) as Named; } catch { m = undefined; }
+    sweep(sub, m, keep);
+  }
+}
+
+/** Step 5 for a folder and its nested folders. */
+export function sweepAll(dir: string, manifest: Named, manifestName: string, keep: string[] = []): void {
+  sweep(dir, manifest, keep);
+  sweepNested(dir, manifestName, keep);
 }
 
 /** Step 2. */
@@ -59,13 +94,16 @@ export function commitFolder(from: string, dir: string, files: string[], manifes
     fs.mkdirSync(path.dirname(path.join(dir, f)), { recursive: true });
     fs.renameSync(path.join(from, f), path.join(dir, f));
   };
-  const content = files.filter(isContentFile);
-  const describing = files.filter((f) => f !== manifestName && !isContentFile(f));
+  const content = files.filter((f) => isContentFile(path.posix.basename(f)));
+  // A nested manifest before the files that may describe it (the firmware of an int8 build).
+  const nested = (f: string) => f !== manifestName && path.posix.basename(f) === manifestName;
+  const describing = files.filter((f) => f !== manifestName && !content.includes(f));
+  describing.sort((a, b) => Number(nested(b)) - Number(nested(a)));
   content.forEach(move);
   removeDescribing(dir, describing);
   move(manifestName);
   describing.forEach(move);
-  sweep(dir, JSON.parse(fs.readFileSync(path.join(dir, manifestName), 'utf8')) as Named, keep);
+  sweepAll(dir, JSON.parse(fs.readFileSync(path.join(dir, manifestName), 'utf8')) as Named, manifestName, keep);
 }
 
 /**

@@ -5,8 +5,9 @@
 import fs from 'node:fs';
 import path from 'node:path';
 import type { Model, TensorType } from '../graph/ir.js';
-import { costModel } from '../cost/report.js';
-import { liveRanges } from '../cost/memory.js';
+import { costModel, type CostReport } from '../cost/report.js';
+import { liveRanges, type LiveValue } from '../cost/memory.js';
+import { ioView, qdqView } from '../cost/qdq.js';
 import { planArena, type ArenaMethod } from '../cost/arena.js';
 import { readsOf } from '../graph/links.js';
 import { reorderModel } from '../cost/reorder.js';
@@ -19,7 +20,7 @@ import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
 import { placeTensors } from '../onnx/external.js';
-import { hashedName, removeDescribing, sha256, sweep } from './commit.js';
+import { hashedName, removeDescribing, sha256, sweepAll } from './commit.js';
 import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
@@ -192,16 +193,34 @@ function reorderStage(sm: Model): { model: Model; before: bigint; after: bigint;
   }
 }
 
-/** The arena plan of a stage file as written: its nodes in file order; copied Constant outputs are weights, not activations. */
-function stageArena(sm: Model, s: StagePlan, bytesOf: Map<string, bigint>): { bytes: number; plan: ManifestArena } {
-  const nodes = sm.graph.nodes;
-  const io = nodes.map((n) => ({ inputs: n.inputs, outputs: n.outputs, reads: readsOf(n) }));
-  const ranges = liveRanges(nodes.map((_, i) => i), io, bytesOf, s.inputs.map((i) => i.name), s.outputs.map((o) => o.name));
-  const p = planArena(ranges, { from: 0, to: nodes.length - 1 });
+/** An arena plan in the manifest's form, from a stage file's live ranges over its file order. */
+function manifestArena(ranges: LiveValue[], nodes: number): { bytes: number; plan: ManifestArena } {
+  const p = planArena(ranges, { from: 0, to: nodes - 1 });
   return {
     bytes: Number(p.bytes),
     plan: { align: p.align, method: p.method, buffers: p.slots.map((b) => ({ name: b.name, offset: Number(b.offset), bytes: Number(b.bytes), first: b.birth, last: b.death })) },
   };
+}
+
+/** The arena plan of a stage file as written: its nodes in file order; copied Constant outputs are weights, not activations. */
+function stageArena(sm: Model, s: StagePlan, bytesOf: Map<string, bigint>): { bytes: number; plan: ManifestArena } {
+  const nodes = sm.graph.nodes;
+  const io = nodes.map((n) => ({ inputs: n.inputs, outputs: n.outputs, reads: readsOf(n) }));
+  return manifestArena(liveRanges(nodes.map((_, i) => i), io, bytesOf, s.inputs.map((i) => i.name), s.outputs.map((o) => o.name)), nodes.length);
+}
+
+/**
+ * The arena plan of a stage file sized by its own cost report, in file order. On a QDQ file
+ * (lib/cost/qdq.ts) a float value inside an int8 kernel is its int8 buffer (the buffer takes the
+ * int8 value's name) and values computed from weights alone are weights, not buffers.
+ */
+export function fileArena(sm: Model, report: CostReport): { bytes: number; plan: ManifestArena } {
+  const g = sm.graph, order = g.nodes.map((_, i) => i);
+  const sizes = new Map<string, bigint>();
+  for (const t of report.model.inputs) sizes.set(t.name, t.bytes);
+  for (const n of report.nodes) if (g.nodes[n.index].op !== 'Constant') for (const o of n.outputs) if (o.stored !== 'weight') sizes.set(o.name, o.bytes);
+  const io = ioView(g, order, qdqView(g, order));
+  return manifestArena(liveRanges(order, io, sizes, report.model.inputs.map((t) => t.name), g.outputs.map((o) => o.name)), order.length);
 }
 
 /**
@@ -305,6 +324,6 @@ function writeSplitFiles(plan: CutPlan, cuts: Cut[], dir: string, source: string
   writeAtomic(path.join(dir, MANIFEST_FILE), toJson(manifest) + '\n');
   files.push(path.join(dir, MANIFEST_FILE));
   // Stage files of earlier splits would outlive the manifest that named them.
-  sweep(dir, manifest, [source]);
+  sweepAll(dir, manifest, MANIFEST_FILE, [source]);
   return { manifest, dir, files, stages: written };
 }
