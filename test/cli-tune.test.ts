@@ -6,6 +6,7 @@ import path from 'node:path';
 import { offramp } from './helpers/cli.js';
 import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
+import { writeManifestPolicy } from '../lib/split/manifest.js';
 
 const MODEL = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
 let dir: string, x: string, y: string, short: string, split: string, plain: string;
@@ -92,5 +93,29 @@ describe('offramp tune and replay', () => {
     expect(few.stderr).toContain(short);
     expect(few.stderr).toMatch(/segment ids for \d+ (frames|rows)/);
     expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"difference","thresholds":[0.1],"distance":"js","exit":0,"refresh":0}']).code).toBe(1);
+  });
+});
+
+describe('tune writes the manifest as a writer of the folder', () => {
+  const policy = { rule: { kind: 'confidence' as const, thresholds: [0.9, null] }, tuned: { maxDrop: 1, labelled: true, samples: 1, accuracy: 1, fullAccuracy: 1, meanMacs: 1, fullMacs: 1, exitShare: [1, 0, 0] } };
+  it('refuses while another live process holds the folder lock, and leaves the manifest as it was', () => {
+    const before = fs.readFileSync(path.join(split, 'manifest.json'));
+    // this test process is alive and is not the CLI's: its pid in the lock is a live writer
+    fs.writeFileSync(`${split}.lock`, `${process.pid}\n`);
+    try {
+      const r = offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '5']);
+      expect(r.code).toBe(1);
+      expect(r.stderr).toMatch(/another offramp \(pid \d+\) is writing this folder/);
+      expect(fs.readFileSync(path.join(split, 'manifest.json')).equals(before)).toBe(true);
+    } finally { fs.rmSync(`${split}.lock`, { force: true }); }
+  });
+  it('does not write a policy over stage files other than those it tuned', () => {
+    const file = path.join(split, 'manifest.json');
+    const before = fs.readFileSync(file);
+    const m = JSON.parse(before.toString('utf8'));
+    const other = m.stages.map((st: { sha256: string }, k: number) => ({ sha256: k === 1 ? '0'.repeat(64) : st.sha256 }));
+    expect(() => writeManifestPolicy(split, policy, other)).toThrow(/stage files changed while tuning/);
+    expect(fs.readFileSync(file).equals(before)).toBe(true);
+    expect(() => writeManifestPolicy(split, policy, m.stages.slice(1))).toThrow(/stage files changed while tuning/);
   });
 });

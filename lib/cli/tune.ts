@@ -15,6 +15,7 @@ import type { TuneResult } from '../tune/search.js';
 import { OfframpError, usageError } from '../errors.js';
 import { emit, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
+import { withFolder } from '../util/folder.js';
 
 /** Threshold candidates per exit: the search grows with its square on two exits, so it is bounded. */
 export const MAX_GRID = 1024;
@@ -69,11 +70,12 @@ export function tuneCommand(program: Command): void {
         let written: string | undefined;
         if (o.write) {
           const c = result.chosen, f = result.full;
-          writeManifestPolicy(chain.dir, {
+          // As a writer of the folder: a split or build writing it now is waited out by refusal, never interleaved.
+          withFolder(chain.dir, () => writeManifestPolicy(chain.dir, {
             rule: c.policy,
             tuned: { maxDrop, labelled: result.labelled, samples: c.held.samples, accuracy: c.held.accuracy, fullAccuracy: f.held.accuracy, meanMacs: c.held.meanMacs, fullMacs: f.held.meanMacs, exitShare: c.held.exitShare },
             ...(result.guarantee ? { guarantee: result.guarantee } : {}),
-          });
+          }, chain.manifest.stages));
           written = `${chain.dir}/manifest.json`;
         }
         const report: TuneReport = {

@@ -155,13 +155,17 @@ export interface ManifestPolicy {
 }
 
 /** Write `policy` into the manifest of `dir` (atomically), replacing any earlier one. */
-export function writeManifestPolicy(dir: string, policy: ManifestPolicy): Manifest {
+export function writeManifestPolicy(dir: string, policy: ManifestPolicy, tunedOn?: readonly { sha256: string }[]): Manifest {
   const file = path.join(dir, MANIFEST_FILE);
   let m: Manifest;
   try { m = JSON.parse(fs.readFileSync(file, 'utf8')) as Manifest; } catch (e) {
     throw new OfframpError('io', `cannot read the manifest: ${(e as Error).message}`, file);
   }
   if (m.schema !== MANIFEST_SCHEMA) throw new OfframpError('decode', `manifest schema is '${m.schema}', expected '${MANIFEST_SCHEMA}'`, file);
+  // A policy describes the stage files it was tuned on: a split or build that replaced them meanwhile wins.
+  const now = Array.isArray(m.stages) ? m.stages.map((s) => s?.sha256) : [];
+  if (tunedOn && (now.length !== tunedOn.length || tunedOn.some((s, k) => s.sha256 !== now[k])))
+    throw new OfframpError('io', 'the stage files changed while tuning (another split or build wrote this folder): the policy was not written; tune again', file);
   const out: Manifest = { ...m, policy };
   writeAtomic(file, toJson(out) + '\n');
   return out;
