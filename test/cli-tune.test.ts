@@ -87,6 +87,7 @@ describe('offramp tune and replay', () => {
   });
   it('stream scenes: --segments needs --stream, and one id per frame', () => {
     expect(offramp(['tune', split, '--data', x, '--segments', y]).code).toBe(2);
+    expect(offramp(['tune', split, '--data', x, '--stream', '--unlabelled', x]).code).toBe(2);
     const few = offramp(['tune', split, '--data', x, '--segments', short, '--stream', '--no-write']);
     expect(few.code).toBe(1);
     expect(few.stderr.trim().split('\n')).toHaveLength(1);

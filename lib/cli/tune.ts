@@ -48,6 +48,8 @@ export function tuneCommand(program: Command): void {
       const streamKinds = kinds.filter((k) => STREAM_KINDS.includes(k as StreamPolicy['kind'])) as StreamPolicy['kind'][];
       if (streamKinds.length && !o.stream) throw usageError(`${streamKinds.join(', ')} ${streamKinds.length > 1 ? 'are stream policies' : 'is a stream policy'}: add --stream`);
       if (o.segments && !o.stream) throw usageError('--segments marks the scenes of a stream: add --stream');
+      // A stream's evidence is its scenes; rows without order or labels add none to the scene bound.
+      if (o.unlabelled && o.stream) throw usageError('--unlabelled tightens per-frame bounds; a stream is certified on its scenes: give a longer recording (without --labels, the full model\'s answers serve as labels)');
       const chain = await loadChain(dir);
       try {
         refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.report]);
