@@ -89,18 +89,20 @@ export function stream(n: number, seed: number): { x: Float32Array; y: BigInt64A
 }
 
 /** About 690 scenes: enough for a bound of a point or two on the drop, a scene counting once. */
-export const STREAM_FRAMES = 24000;
+export const STREAM_FRAMES = 24000, LATER_FRAMES = 6000;
 
 export function writeDemoData(dir: string): string[] {
   fs.mkdirSync(dir, { recursive: true });
   const shape = (n: number) => [n, 1, BINS, FRAMES];
   const files: string[] = [];
   const put = (name: string, data: Float32Array | BigInt64Array, dims: number[]) => { const f = path.join(dir, name); writeNpy(f, data, dims); files.push(f); };
-  const train = samples(8000, 101), calib = samples(6000, 202), val = samples(2000, 303), st = stream(STREAM_FRAMES, 404);
+  const train = samples(8000, 101), calib = samples(6000, 202), val = samples(2000, 303), st = stream(STREAM_FRAMES, 404), later = stream(LATER_FRAMES, 505);
   put('train-x.npy', train.x, shape(8000)); put('train-y.npy', train.y, [8000]);
   put('calib-x.npy', calib.x, shape(6000)); put('calib-y.npy', calib.y, [6000]);
   put('val-x.npy', val.x, shape(2000)); put('val-y.npy', val.y, [2000]);
   put('stream-x.npy', st.x, shape(STREAM_FRAMES)); put('stream-y.npy', st.y, [STREAM_FRAMES]); put('stream-segments.npy', st.segment, [STREAM_FRAMES]);
+  // a later recording of the same node, never tuned on: where the stream policy's promise is checked
+  put('later-x.npy', later.x, shape(LATER_FRAMES)); put('later-y.npy', later.y, [LATER_FRAMES]);
   return files;
 }
 

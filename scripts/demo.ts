@@ -1,6 +1,7 @@
 // `npm run demo`: the whole job on the invented fan-vibration scenario (models-demo/).
 // Writes the data, builds exits for the committed model against a generic Cortex-M4F
-// profile, then tunes a stream policy on the ordered stream and replays it frame by frame.
+// profile, replays its per-frame policy on validation windows, tunes a stream policy on an ordered
+// recording and replays it frame by frame on a later recording.
 import path from 'node:path';
 import { main } from '../lib/cli/main.js';
 import { writeDemoData } from './demo-data.js';
@@ -23,8 +24,11 @@ writeDemoData(at('data'));
 await step('build', ['build', at('fan-monitor.onnx'), '--data', data('calib-x.npy'), '--labels', data('calib-y.npy'), '--head', 'grid:4', '--target', 'm4f', '-o', out]);
 // The recording's scenes are annotated (segments): each counts once as evidence. About 350 certifying
 // scenes back a promise of 2 points; 1 point would need about twice the recording.
+// The per-frame policy on 2000 validation windows that neither fitted nor tuned anything.
+await step('per-frame replay on new windows', ['replay', out, '--data', data('val-x.npy'), '--labels', data('val-y.npy')]);
 await step('stream tuning', ['tune', out, '--data', data('stream-x.npy'), '--labels', data('stream-y.npy'), '--segments', data('stream-segments.npy'), '--stream', '--max-drop', '2', '--report', path.join(out, 'stream-tune.html')]);
 await step('firmware code', ['emit-c', out, '-o', path.join(out, 'firmware')]);
-// Replay without the scene annotations: the policy has to notice every change itself, as on the device.
-await step('replay', ['replay', out, '--data', data('stream-x.npy'), '--labels', data('stream-y.npy'), '--csv', path.join(out, 'replay.csv')]);
+// A later recording, never tuned on, without scene annotations: the policy has to notice every change
+// itself, as on the device.
+await step('replay', ['replay', out, '--data', data('later-x.npy'), '--labels', data('later-y.npy'), '--csv', path.join(out, 'replay.csv')]);
 process.stdout.write(`\nreports: ${path.join(out, 'report.html')} (build), ${path.join(out, 'stream-tune.html')} (stream policies)\n`);
