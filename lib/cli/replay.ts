@@ -50,24 +50,24 @@ export function replayCommand(program: Command): void {
     .argument('<dir>', 'split folder (or its manifest.json)')
     .requiredOption('--data <file>', '.npy frames [N, ...] in temporal order')
     .option('--labels <file>', '.npy labels [N], for accuracy')
-    .option('--segments <file>', '.npy segment ids [N]: where the id changes a new stream starts (no scene carries over)')
+    .option('--recordings <file>', '.npy recording id per frame [N], for data that holds several recordings end to end: where the id changes a new stream starts (no scene carries over). Not scene annotations: the policy must find scene changes itself')
     .option('--policy <json|file>', 'policy as JSON (default: the one tune wrote into the manifest)')
     .option('--csv <file>', 'write one CSV row per frame')
     .option('--json', 'machine-readable result (schema offramp-replay/1)')
-    .action(async (dir: string, o: { data: string; labels?: string; segments?: string; policy?: string; csv?: string; json?: boolean }) => {
+    .action(async (dir: string, o: { data: string; labels?: string; recordings?: string; policy?: string; csv?: string; json?: boolean }) => {
       const chain = await loadChain(dir);
       try {
         const policyFile = o.policy !== undefined && !o.policy.trim().startsWith('{') ? o.policy : undefined;
         refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' },
-          { file: o.segments, role: 'segments' }, { file: policyFile, role: 'policy' }], [o.csv]);
+          { file: o.recordings, role: 'recordings' }, { file: policyFile, role: 'policy' }], [o.csv]);
         const layout = chainLayout(chain.manifest, chain.dir);
         const rows = readDataHeader(o.data).rows;
         const labels = o.labels ? readLabels(o.labels, { rows, of: o.data, classes: layout.classes }) : undefined;
-        const segments = o.segments ? readLabels(o.segments, { rows, of: o.data, what: 'segment id' }) : undefined;
+        const recordings = o.recordings ? readLabels(o.recordings, { rows, of: o.data, what: 'recording id' }) : undefined;
         const raw = o.policy ? readPolicy(o.policy) : chain.manifest.policy?.rule;
         if (!raw) throw new OfframpError('usage', 'no policy in the manifest: run offramp tune first, or give --policy', chain.dir);
         const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');
-        let r = await replay(chain, layout, policy, o.data, { labels, segments });
+        let r = await replay(chain, layout, policy, o.data, { labels, recordings });
         if (labels) {
           // the full model's answers on the same frames, batched: the drop the promise is about
           const { cache } = await captureCache(chain, o.data);

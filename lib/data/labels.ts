@@ -9,7 +9,7 @@ export interface LabelExpect {
   /** class count: labels must lie in 0 … classes−1 */
   classes?: number;
   /** 'segment id': any int32, compared for equality only */
-  what?: 'label' | 'segment id';
+  what?: 'label' | 'segment id' | 'recording id';
 }
 
 const INT32 = 2 ** 31;

@@ -30,7 +30,7 @@ export function withDrop(s: ReplaySummary, fullAccuracy: number, g?: Guarantee):
 }
 export interface ReplayResult { policy: Policy; exits: string[]; frames: ReplayFrame[]; summary: ReplaySummary }
 
-export async function replay(chain: Chain, layout: ChainLayout, policy: Policy, data: string, o: { labels?: Int32Array; segments?: Int32Array } = {}): Promise<ReplayResult> {
+export async function replay(chain: Chain, layout: ChainLayout, policy: Policy, data: string, o: { labels?: Int32Array; recordings?: Int32Array } = {}): Promise<ReplayResult> {
   const E = layout.exits.length, C = layout.classes;
   const reach = reachOf(layout.costs, E);
   const index = new Map(layout.exits.map((n, i) => [n, i]));
@@ -40,8 +40,8 @@ export async function replay(chain: Chain, layout: ChainLayout, policy: Policy, 
   const rows: ReplayFrame[] = [];
   let s = streamStart(C), sceneBase = 0, i = 0;
   for (const x of frames(chain.manifest, data)) {
-    // a new segment is a new stream: nothing carries over from the last one
-    if (o.segments && i > 0 && o.segments[i] !== o.segments[i - 1]) { sceneBase += s.scene + 1; s = streamStart(C); }
+    // a new recording is a new stream: nothing carries over from the last one
+    if (o.recordings && i > 0 && o.recordings[i] !== o.recordings[i - 1]) { sceneBase += s.scene + 1; s = streamStart(C); }
     const seen: Float32Array[] = new Array(E + 1);
     const fs = frameStart();
     const k0 = stream ? compareExit(stream, s) : -1, from = Math.max(k0, 0);
@@ -79,7 +79,7 @@ export async function replay(chain: Chain, layout: ChainLayout, policy: Policy, 
     i++;
   }
   if (o.labels && o.labels.length !== rows.length) throw new OfframpError('data', `${o.labels.length} labels for ${rows.length} frames`);
-  if (o.segments && o.segments.length !== rows.length) throw new OfframpError('data', `${o.segments.length} segment ids for ${rows.length} frames`);
+  if (o.recordings && o.recordings.length !== rows.length) throw new OfframpError('data', `${o.recordings.length} recording ids for ${rows.length} frames`);
   const n = rows.length;
   const hist = new Array(E + 1).fill(0);
   let macs = 0, right = 0, reusedN = 0;
