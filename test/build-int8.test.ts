@@ -8,7 +8,8 @@ import crypto from 'node:crypto';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
-import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
+import { mulberry32 } from '../lib/graph/build.js';
+import { tinyMlp } from './helpers/nets.js';
 import { saveModel } from '../lib/graph/io.js';
 import { writeNpy } from '../lib/data/npy.js';
 import type { Manifest } from '../lib/split/manifest.js';
@@ -21,12 +22,8 @@ const sha = (f: string) => crypto.createHash('sha256').update(fs.readFileSync(f)
 
 beforeAll(() => {
   tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-int8b-'));
-  const b = modelBuilder({ opset: 17, seed: 5 });
-  let x = b.input('x', 1, ['N', 16]);
-  for (let i = 0; i < 3; i++) x = b.node('Relu', [b.node('MatMul', [x, b.init(`w${i}`, 1, [i ? 24 : 16, 24])])]);
-  b.output(b.node('MatMul', [x, b.init('wo', 1, [24, 4])]), 1, ['N', 4]);
   model = path.join(tmp, 'mlp.onnx');
-  saveModel(b.build(), model);
+  saveModel(tinyMlp(), model);
   const r = mulberry32(3);
   data = path.join(tmp, 'x.npy');
   writeNpy(data, Float32Array.from({ length: 48 * 16 }, () => r() * 2 - 1), [48, 16]);

@@ -6,7 +6,7 @@ import path from 'node:path';
 import { bytes, si, table, toJson } from './units.js';
 import { esc, lineChart, barChart, type Series } from './svg.js';
 import { budgetText, duration, storedLabel } from './budget.js';
-import { MANIFEST_FILE } from '../split/manifest.js';
+import { MANIFEST_FILE, type ManifestPolicy } from '../split/manifest.js';
 import { frontSeries, guaranteeLines } from './tune.js';
 import type { Guarantee } from '../certify/guarantee.js';
 
@@ -35,11 +35,7 @@ export function buildSummary(r: BuildResult) {
     files: r.files.map((f) => path.relative(r.dir, f).split(path.sep).join('/')),
     exits: r.exits.map((e) => ({ output: e.output, cut: e.cut, head: e.head, macs: e.macs, params: e.params, fit: e.fit })),
     policy: r.policy.rule,
-    heldOut: {
-      samples: t.samples, labelled: t.labelled, accuracy: t.accuracy, fullAccuracy: t.fullAccuracy,
-      dropPoints: (t.fullAccuracy - t.accuracy) * 100, maxDrop: t.maxDrop,
-      meanMacs: t.meanMacs, fullMacs: t.fullMacs, saving: t.fullMacs ? 1 - t.meanMacs / t.fullMacs : 0, exitShare: t.exitShare,
-    },
+    heldOut: heldOutOf(t),
     guarantee: r.policy.guarantee ?? null,
     stages: r.manifest.stages.map((s, k) => ({
       file: s.file, macs: s.macs, weightBytes: r.cost.stages[k]?.paramBytes ?? BigInt(s.weightBytes),
@@ -59,6 +55,13 @@ export function buildSummary(r: BuildResult) {
   };
 }
 
+/** A tuned policy's figures on the certification part, for report.json. */
+const heldOutOf = (t: ManifestPolicy['tuned']) => ({
+  samples: t.samples, labelled: t.labelled, accuracy: t.accuracy, fullAccuracy: t.fullAccuracy,
+  dropPoints: (t.fullAccuracy - t.accuracy) * 100, maxDrop: t.maxDrop,
+  meanMacs: t.meanMacs, fullMacs: t.fullMacs, saving: t.fullMacs ? 1 - t.meanMacs / t.fullMacs : 0, exitShare: t.exitShare,
+});
+
 /** build --int8: the quantized chain's policy and figures, beside the float ones. */
 function int8Summary(r: BuildResult) {
   const q = r.int8!, t = q.policy.tuned;
@@ -67,11 +70,7 @@ function int8Summary(r: BuildResult) {
     dir: path.basename(q.dir),
     calibration: q.manifest.quantization!.calibration,
     policy: q.policy.rule,
-    heldOut: {
-      samples: t.samples, labelled: t.labelled, accuracy: t.accuracy, fullAccuracy: t.fullAccuracy,
-      dropPoints: (t.fullAccuracy - t.accuracy) * 100, maxDrop: t.maxDrop,
-      meanMacs: t.meanMacs, fullMacs: t.fullMacs, saving: t.fullMacs ? 1 - t.meanMacs / t.fullMacs : 0, exitShare: t.exitShare,
-    },
+    heldOut: heldOutOf(t),
     guarantee: q.policy.guarantee ?? null,
     agreement: q.agreement.outputs.map((a) => ({ output: a.name, samples: a.samples, agreement: a.agreement, maxAbs: a.maxAbs })),
     stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, arenaBytes: st.arenaBytes ?? null, handoverBytes: st.handoverBytes })),

@@ -218,3 +218,12 @@ export function shufflenetV2(o: NetOptions = {}): Model {
   x = conv(c, x, 'conv5.0', 'conv5.1', cin, 1024, 1, 1);
   return head(c, x, 1024);
 }
+
+/** A tiny MLP classifier (16 → 24 → 24 → 24 → 4, Relu): a build of it takes about a second. */
+export function tinyMlp(): Model {
+  const b = modelBuilder({ opset: 17, seed: 5 });
+  let x = b.input('x', 1, ['N', 16]);
+  for (let i = 0; i < 3; i++) x = b.node('Relu', [b.node('MatMul', [x, b.init(`w${i}`, 1, [i ? 24 : 16, 24])])]);
+  b.output(b.node('MatMul', [x, b.init('wo', 1, [24, 4])]), 1, ['N', 4]);
+  return b.build();
+}
