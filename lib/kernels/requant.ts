@@ -27,7 +27,7 @@ export function quantizeMultiplier(real: number, what = 'multiplier'): Multiplie
   while (m < 0.5) { m *= 2; e--; }
   let q = Math.round(m * 2 ** 31);
   if (q === 2 ** 31) { q = 2 ** 30; e++; }
-  const shift = -e;
+  const shift = 0 - e;   // not -e: a shift of -0 is not 0 to a deep equality
   // below 2^-32 every int32 accumulator is under half a step: the product rounds to 0
   if (shift > 31) return { mult: 0, shift: 0 };
   if (shift < -31) throw new OfframpError('data', `${what} ${real} is too large for a fixed-point requantization`);
