@@ -1,21 +1,23 @@
 // Requantization by a fixed-point multiplier and shift (Jacob et al. 2018, "Quantization and
 // Training of Neural Networks for Efficient Integer-Arithmetic-Only Inference", section 2.2): a
-// real multiplier M = M0 · 2^-n with M0 in [0.5, 1) held as a Q31 integer, applied to an int32
-// accumulator by a rounding doubling high multiply, then a rounding right shift (ties away from
-// zero). The TypeScript twin of offramp_requant.h, operation for operation: every value stays an
-// exact integer below 2^53, so the C library and this reference agree bit for bit.
+// real multiplier M = M0 · 2^-n with M0 in [0.5, 1) held as a Q31 integer. The int32 accumulator
+// times M0 is exact in 64 bits; it is shifted right by 31 + n with one rounding, to nearest with
+// ties to even (as ONNX QuantizeLinear rounds), so the result is the exact product acc · M
+// rounded once. (Rounding the high word first and the shift after, as some integer pipelines do,
+// rounds twice and lands a step off on about one value in 2^(n+1).) The TypeScript twin of
+// offramp_requant.h: every intermediate is an exact integer below 2^53, so the two agree bit for bit.
 import { OfframpError } from '../errors.js';
 
 export const INT32_MIN = -2147483648, INT32_MAX = 2147483647;
 
-/** M as a Q31 multiplier and a right shift: M ≈ mult · 2^(−31 − shift); shift < 0 shifts left first. */
+/** M as a Q31 multiplier and a right shift: M = mult · 2^(−31 − shift), shift in −15 … 31. */
 export interface Multiplier { mult: number; shift: number }
 
 /**
- * The fixed-point form of a positive real multiplier (computed once, when the model's tables are
- * written; the device never sees the real number). mult = round(m · 2^31) for M = m · 2^e with
+ * The fixed-point form of a non-negative real multiplier (computed once, when the model's tables
+ * are written; the device never sees the real number). mult = round(m · 2^31) for M = m · 2^e with
  * m in [0.5, 1); a rounding up to 2^31 moves to 2^30 and one more power. Multipliers below 2^-32
- * are zero (every int32 accumulator requantizes to 0); 2^31 and above are refused.
+ * are 0 (every int32 accumulator is under half a step); 2^16 and above are refused.
  */
 export function quantizeMultiplier(real: number, what = 'multiplier'): Multiplier {
   if (!Number.isFinite(real) || real < 0) throw new OfframpError('data', `${what} ${real} is not a finite non-negative number`);
@@ -25,43 +27,34 @@ export function quantizeMultiplier(real: number, what = 'multiplier'): Multiplie
   // log2 can be off by one near powers of two: put m back into [0.5, 1)
   while (m >= 1) { m /= 2; e++; }
   while (m < 0.5) { m *= 2; e--; }
-  let q = Math.round(m * 2 ** 31);
+  let q = Math.floor(m * 2 ** 31 + 0.5);
   if (q === 2 ** 31) { q = 2 ** 30; e++; }
   const shift = 0 - e;   // not -e: a shift of -0 is not 0 to a deep equality
-  // below 2^-32 every int32 accumulator is under half a step: the product rounds to 0
   if (shift > 31) return { mult: 0, shift: 0 };
-  if (shift < -31) throw new OfframpError('data', `${what} ${real} is too large for a fixed-point requantization`);
+  if (shift < -15) throw new OfframpError('data', `${what} ${real} is too large for a fixed-point requantization (2^16 or more)`);
   return { mult: q, shift };
 }
 
-/** Saturating rounding doubling high multiply: the high 32 bits of 2·a·b, rounded to nearest (ties up), saturated. */
-export function highMul(a: number, b: number): number {
-  if (a === INT32_MIN && b === INT32_MIN) return INT32_MAX;
-  // a·b + 2^30, floor-divided by 2^31, exactly: b = bh·2^16 + bl splits the 62-bit product into parts below 2^53.
-  const bh = Math.floor(b / 65536), bl = b - bh * 65536;
-  const t = a * bh;                       // |t| < 2^46
-  const u = a * bl + 1073741824;          // |u| < 2^48
-  const uh = Math.floor(u / 65536);
-  return Math.floor((t + uh) / 32768);    // the dropped low 16 bits of u cannot carry past 2^31
-}
-
-/** Arithmetic right shift by e (0…31), rounding to nearest with ties away from zero. */
-export function roundShift(x: number, e: number): number {
-  if (e <= 0) return x;
-  const p = 2 ** e;
-  const q = Math.floor(x / p), r = x - q * p;
-  const half = p / 2;
-  // floor leaves r in [0, p): round up above half, and at exactly half for positive x (away from zero)
-  return r > half || (r === half && x >= 0) ? q + 1 : q;
-}
-
-const sat32 = (x: number) => (x < INT32_MIN ? INT32_MIN : x > INT32_MAX ? INT32_MAX : x);
-
-/** acc · M in the int32 domain, before the output zero point. */
+/**
+ * round(acc · mult / 2^(31 + shift)), ties to even, saturated to int32: exact. The 62-bit product is
+ * taken apart in 16-bit pieces (mult = mh·2^16 + ml), so nothing exceeds 2^53.
+ */
 export function requantize(acc: number, m: Multiplier): number {
   if (m.mult === 0) return 0;
-  if (m.shift < 0) return highMul(sat32(acc * 2 ** -m.shift), m.mult);
-  return roundShift(highMul(acc, m.mult), m.shift);
+  const e = 31 + m.shift;                       // 16 … 62
+  const mh = Math.floor(m.mult / 65536), ml = m.mult - mh * 65536;
+  const b = acc * ml;                           // |b| < 2^47
+  const bh = Math.floor(b / 65536), bl = b - bh * 65536;
+  const t = acc * mh + bh;                      // the product is t·2^16 + bl, 0 ≤ bl < 2^16, |t| < 2^47
+  const p = 2 ** (e - 16);
+  let q = Math.floor(t / p);
+  const r = t - q * p;                          // the product's remainder is r·2^16 + bl, in [0, 2^e)
+  // compare the remainder with half of 2^e = 2^(e−1): with r against 2^(e−17), bl breaking the tie
+  const half = e === 16 ? 0.5 : p / 2;
+  const above = e === 16 ? bl > 32768 : r > half || (r === half && bl > 0);
+  const tie = e === 16 ? bl === 32768 : r === half && bl === 0;
+  if (above || (tie && q % 2 !== 0)) q++;
+  return q < INT32_MIN ? INT32_MIN : q > INT32_MAX ? INT32_MAX : q;
 }
 
 /** The int8 result: zero point added, clamped to [lo, hi] (the activation's range fused into the clamp). */
