@@ -59,12 +59,12 @@ beforeAll(() => {
 afterAll(() => { if (work) fs.rmSync(work, { recursive: true, force: true }); });
 
 describe('the packed package', () => {
-  it('holds the CLI, the library with its declarations and the C sources, and nothing else', () => {
+  it('holds the CLI, the library with its declarations and the C and assembly sources, and nothing else', () => {
     const allowed = [
       /^package\.json$/, /^README\.md$/, /^LICENSE$/,
       /^bin\/offramp\.js$/,
       /^dist\/lib\/.+\.(js|d\.ts)$/,
-      /^lib\/.+\.(c|h|ld)$/,
+      /^lib\/.+\.(c|h|S|ld)$/,
     ];
     const outside = packed.filter((f) => !allowed.some((re) => re.test(f)));
     expect(outside).toEqual([]);
@@ -74,7 +74,7 @@ describe('the packed package', () => {
     const sources = walk(path.join(ROOT, 'lib'));
     const want = [
       ...sources.filter((f) => f.endsWith('.ts')).flatMap((f) => [`dist/lib/${f.replace(/\.ts$/, '.js')}`, `dist/lib/${f.replace(/\.ts$/, '.d.ts')}`]),
-      ...sources.filter((f) => /\.(c|h|ld)$/.test(f)).map((f) => `lib/${f}`),
+      ...sources.filter((f) => /\.(c|h|S|ld)$/.test(f)).map((f) => `lib/${f}`),
       'bin/offramp.js', 'package.json', 'README.md',
     ];
     expect(want.filter((f) => !packed.includes(f))).toEqual([]);
