@@ -30,7 +30,6 @@ export async function completeShapes(model: Model & { file?: string }, opts: Inf
   return shapes;
 }
 
-/** Shapes (static rules, then onnxruntime for what they cannot type) and the cost report: MACs, weights, peak activations and arena, per node and per stage (`cuts`). */
 export async function analyzeModel(model: Model & { file?: string }, opts: CostOptions = {}): Promise<CostReport> {
   const shapes = opts.shapes ?? (await completeShapes(model, opts));
   return costModel(model, { ...opts, shapes });
