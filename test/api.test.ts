@@ -53,6 +53,9 @@ describe("import … from 'offramp'", () => {
       expect(typeof (internals as Record<string, unknown>)[name], name).toBe('function');
     for (const name of ['decodeModel', 'planArena']) expect(name in offramp, name).toBe(false);
   });
+  it("VERSION is package.json's", () => {
+    expect(offramp.VERSION).toBe(JSON.parse(fs.readFileSync(path.join(ROOT, 'package.json'), 'utf8')).version);
+  });
   it('costs the demo model', async () => {
     const m = offramp.loadModel('models-demo/fan-monitor.onnx');
     const r = await offramp.analyzeModel(m, { cuts: ['/b2/b2.3/MaxPool_output_0'] });
