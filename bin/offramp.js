@@ -10,12 +10,15 @@ let main;
 try {
   ({ main } = await import('../dist/lib/cli/main.js'));
 } catch (e) {
-  const text = `${e?.message ?? e}\n${e?.stack ?? ''}`;
-  if (!/onnxruntime/.test(text)) throw e;
-  // A checkout (package-lock.json is never packed) restores its locked packages; an installed package reinstalls itself.
-  // A global install lives in <node's prefix>/lib/node_modules.
   const root = path.dirname(path.dirname(fileURLToPath(import.meta.url)));
+  // A checkout (package-lock.json is never packed) builds and restores its own packages; an installed
+  // package reinstalls itself (a global install lives in <node's prefix>/lib/node_modules).
   const checkout = fs.existsSync(path.join(root, 'package-lock.json'));
+  if (checkout && !fs.existsSync(path.join(root, 'dist', 'lib', 'cli', 'main.js'))) {
+    process.stderr.write('offramp: this checkout is not built yet; run: npm run build\n');
+    process.exit(1);
+  }
+  if (!/onnxruntime/.test(`${e?.message ?? e}\n${e?.stack ?? ''}`)) throw e;
   const global = path.dirname(root) === path.join(path.dirname(path.dirname(process.execPath)), 'lib', 'node_modules');
   const { version } = JSON.parse(fs.readFileSync(path.join(root, 'package.json'), 'utf8'));
   const fix = checkout ? 'npm ci' : `ONNXRUNTIME_NODE_INSTALL=skip npm install${global ? ' -g' : ''} offramp@${version}`;
