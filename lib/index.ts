@@ -33,3 +33,4 @@ export type { Guarantee } from './certify/index.js';
 // int8 and firmware
 export { quantizeSplit, type QuantizeOptions, type QuantizeResult } from './quant/split.js';
 export { writeC, type WriteCOptions } from './emit/write.js';
+export { writeFirmware, type FirmwareOptions, type FirmwareResult } from './firmware/write.js';

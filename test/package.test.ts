@@ -115,7 +115,7 @@ describe('the packed package', () => {
     expect(c.stdout).toContain(`(${macs})`);
   });
 
-  it("runs docs/api.md's example against the installed package: cost, build, chain, replay, C", () => {
+  it("runs docs/api.md's example against the installed package: cost, int8 build, chain, replay, firmware C", () => {
     const app = path.join(work, 'app');
     const doc = fs.readFileSync(path.join(ROOT, 'docs/api.md'), 'utf8');
     const example = /## A whole job in one script[\s\S]*?```js\n([\s\S]*?)```/.exec(doc)?.[1];
@@ -133,7 +133,14 @@ describe('the packed package', () => {
     const m = JSON.parse(fs.readFileSync(path.join(app, 'out/manifest.json'), 'utf8'));
     expect(m.policy.guarantee.certified).toBe(true);
     expect(m.stages.length).toBeGreaterThan(1);
-    for (const f of ['offramp_policy.h', 'offramp_policy.c']) expect(fs.existsSync(path.join(app, 'firmware-src', f)), f).toBe(true);
+    // the fixed C sources come from the installed package's lib/, the rest is generated
+    for (const f of ['offramp_policy.h', 'offramp_policy.c', 'offramp_kernels.h', 'offramp_run.c'])
+      expect(fs.existsSync(path.join(app, 'firmware-src', f)), f).toBe(true);
+    expect(fs.readFileSync(path.join(app, 'firmware-src', 'offramp_kernels.h'))).toEqual(fs.readFileSync(path.join(ROOT, 'lib/kernels/offramp_kernels.h')));
+    for (const f of ['offramp_policy.h', 'offramp_policy.c']) expect(fs.existsSync(path.join(app, 'decision-src', f)), f).toBe(true);
+    const m8 = JSON.parse(fs.readFileSync(path.join(app, 'out/int8/manifest.json'), 'utf8'));
+    expect(m8.quantization).toBeDefined();
+    expect(m8.policy.rule.kind).toBeDefined();
   });
 
   it('its declarations type a consumer, and the package refuses deep imports', () => {
