@@ -37,6 +37,8 @@ export interface MeasureOptions {
   /** A new or empty folder to build and run in, kept afterwards (with fw.elf); default a temporary
    *  folder, removed. The firmware runs there: relative paths it opens through semihosting are in it. */
   workDir?: string;
+  /** Add `timings` (wall-clock ms) to the result; off by default, since timings differ run to run. */
+  timings?: boolean;
 }
 
 export interface Measurement {
@@ -67,6 +69,8 @@ export interface Measurement {
   occurrences: Occurrence[];
   /** The ELF's path, when `workDir` was given. */
   elf?: string;
+  /** Wall-clock ms of compiling and linking, and of the emulator's run; only with `timings: true`. */
+  timings?: { buildMs: number; emulateMs: number };
 }
 
 const usage = (option: string, what: string) => new OfframpError('usage', `${option}: ${what}`);
@@ -94,7 +98,7 @@ function stringList(v: unknown, option: string, check: (s: string) => boolean, w
 
 interface Checked {
   core: Core; sources: string[]; driver: string[]; rowsC?: string; includes: string[]; defines: string[]; cflags: string[];
-  trace: boolean; stackBytes: number; timeoutMs: number; workDir?: string;
+  trace: boolean; stackBytes: number; timeoutMs: number; workDir?: string; timings: boolean;
 }
 
 function check(o: MeasureOptions): Checked {
@@ -117,13 +121,15 @@ function check(o: MeasureOptions): Checked {
     workDir = path.resolve(o.workDir);
     if (fs.existsSync(workDir) && (!fs.statSync(workDir).isDirectory() || fs.readdirSync(workDir).length)) throw usage('workDir', `${o.workDir} is not a new or empty folder`);
   }
-  return { core, sources, driver, rowsC: o.rowsC, includes, defines, cflags, trace: o.trace ?? true, stackBytes, timeoutMs, workDir };
+  if (o.timings !== undefined && typeof o.timings !== 'boolean') throw usage('timings', 'true or false');
+  return { core, sources, driver, rowsC: o.rowsC, includes, defines, cflags, trace: o.trace ?? true, stackBytes, timeoutMs, workDir, timings: o.timings ?? false };
 }
 
 /** The first diagnostic of a compiler's or linker's output, as one line. */
 function firstError(stderr: string): string {
-  const lines = stderr.split('\n').map((l) => l.trim()).filter(Boolean);
-  return (lines.find((l) => /\berror\b/.test(l)) ?? lines[0] ?? 'failed').slice(0, 400);
+  // collect2's "ld returned 1 exit status" says nothing; the linker's own line before it does.
+  const lines = stderr.split('\n').map((l) => l.trim()).filter((l) => l && !l.startsWith('collect2:'));
+  return (lines.find((l) => /\berror\b|undefined reference|overflowed|will not fit|multiple definition/.test(l)) ?? lines[0] ?? 'failed').slice(0, 400);
 }
 
 async function compile(tc: Toolchain, args: string[], src: string): Promise<string> {
@@ -166,6 +172,7 @@ export async function measureFirmware(options: MeasureOptions): Promise<Measurem
   const harness = harnessDir();
   const work = o.workDir ?? fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-measure-'));
   fs.mkdirSync(path.join(work, 'lib'), { recursive: true });
+  const t0 = performance.now();
   try {
     const arch = ['-mthumb', ...o.core.flags];
     const cbase = [...arch, '-O2', '-std=c99', '-ffunction-sections', '-fdata-sections', '-Wall', '-Wextra'];
@@ -214,6 +221,7 @@ export async function measureFirmware(options: MeasureOptions): Promise<Measurem
     const reportPath = path.join(work, 'offramp-harness.txt');
     const pluginArg = [plugin.replaceAll(',', ',,'), `out=${logPath.replaceAll(',', ',,')}`, `trace=${hex(traceLo)}:${hex(traceLo + trace.size)}`,
       `marks=${hex(marks.value)}:${hex(marks.value + marksSize.value)}`].join(',');
+    const tRun = performance.now();
     const run = await runTool(tc.qemu, [
       '-M', o.core.machine, '-nographic', '-monitor', 'none', '-serial', 'none',
       '-semihosting-config', 'enable=on,target=native', '-kernel', elfPath, '-plugin', pluginArg,
@@ -244,6 +252,7 @@ export async function measureFirmware(options: MeasureOptions): Promise<Measurem
       size: berkeley,
       instructions: counts.total, calibration: counts.calibration, frames: counts.frames, regions: counts.regions, occurrences: counts.occurrences,
       ...(o.workDir ? { elf: elfPath } : {}),
+      ...(o.timings ? { timings: { buildMs: tRun - t0, emulateMs: run.ms } } : {}),
     };
   } finally {
     if (!o.workDir) fs.rmSync(work, { recursive: true, force: true });
