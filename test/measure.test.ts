@@ -142,6 +142,32 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
     expect(deep.ram.stackSize).toBe(65536);
   });
 
+  it('reads host files through semihosting (rows as a file)', async () => {
+    const rows = path.join(tmp, 'rows.bin');
+    const bytes = Buffer.from(Array.from({ length: 1000 }, (_, i) => (i * 7) % 251));
+    fs.writeFileSync(rows, bytes);
+    const sum = bytes.reduce((a, b) => a + b, 0);
+    const main = `#include <stdio.h>
+int main(void) {
+  FILE *f = fopen(${JSON.stringify(rows)}, "rb");
+  if (!f) return 10;
+  if (fseek(f, 0, SEEK_END) != 0) return 11;
+  long n = ftell(f);
+  rewind(f);
+  unsigned char buf[256];
+  unsigned long sum = 0;
+  size_t got;
+  while ((got = fread(buf, 1, sizeof buf, f)) > 0) for (size_t i = 0; i < got; i++) sum += buf[i];
+  fclose(f);
+  printf("%ld %lu\\n", n, sum);
+  return 0;
+}
+`;
+    const m = await measureFirmware({ core: 'm4f', sources: [path.join(F, 'lib.c')], rowsC: main });
+    expect(m.exitCode).toBe(0);
+    expect(m.stdout).toBe(`1000 ${sum}\n`);
+  });
+
   it('passes any exit status through and stops on a fault with its pc', async () => {
     const exit = await measureFirmware({ core: 'm7', sources: [path.join(F, 'lib.c')], rowsC: 'int main(void) { return 200; }\n' });
     expect(exit.exitCode).toBe(200);
