@@ -63,7 +63,8 @@ export interface Measurement {
   calibration: number;
   /** Frames marked (frame begin events). */
   frames: number;
-  /** Per kind and index: occurrences, total, min and max instructions. */
+  /** Per stage and per decision index, and for all frames together (index -1): occurrences, total,
+   *  min and max instructions. Mean per frame = the frame summary's total / count. */
   regions: RegionSummary[];
   /** Every region in the order it ended. */
   occurrences: Occurrence[];
@@ -207,14 +208,14 @@ export async function measureFirmware(options: MeasureOptions): Promise<Measurem
     const elfPath = path.join(work, 'fw.elf');
     const link = await runTool(tc.armGcc, [
       ...arch, '--specs=nano.specs', '-nostartfiles', `-L${harness}`, '-T', o.core.memory, '-Wl,--gc-sections',
-      `-Wl,--defsym=offramp_stack_size=${o.stackBytes}`, '-o', elfPath, ...objs, archive,
+      `-Wl,--defsym=offramp_harness_stack_size=${o.stackBytes}`, '-o', elfPath, ...objs, archive,
     ], { timeoutMs: 300_000 });
     if (link.code !== 0) throw new OfframpError('runtime', `linking the firmware failed: ${firstError(link.stderr)}`, elfPath);
 
     const elf = readElf(fs.readFileSync(elfPath), elfPath);
     const trace = symbol(elf, 'offramp_trace', elfPath);
-    const marks = symbol(elf, 'offramp_markers', elfPath);
-    const marksSize = symbol(elf, 'OFFRAMP_MARKS_SIZE', elfPath);
+    const marks = symbol(elf, 'offramp_harness_marks', elfPath);
+    const marksSize = symbol(elf, 'OFFRAMP_HARNESS_MARKS_SIZE', elfPath);
     const traceLo = trace.value & ~1;
     const hex = (n: number) => `0x${n.toString(16)}`;
     const logPath = path.join(work, 'counts.txt');

@@ -28,9 +28,10 @@ export interface Occurrence {
   instructions: number;
 }
 
-/** All occurrences of one region kind and index. */
+/** All occurrences of one stage or decision index, or of all frames together (index -1). */
 export interface RegionSummary {
   kind: RegionKind;
+  /** Stage k, exit k; -1 for the frames, summed whatever their numbers. */
   index: number;
   count: number;
   total: number;
@@ -104,9 +105,10 @@ export function readCountLog(text: string, complete: boolean, file = 'counter lo
   }
   const byKey = new Map<string, RegionSummary>();
   for (const o of occurrences) {
-    const key = `${o.kind} ${o.index}`;
+    const index = o.kind === 'frame' ? -1 : o.index;
+    const key = `${o.kind} ${index}`;
     const s = byKey.get(key);
-    if (!s) byKey.set(key, { kind: o.kind, index: o.index, count: 1, total: o.instructions, min: o.instructions, max: o.instructions });
+    if (!s) byKey.set(key, { kind: o.kind, index, count: 1, total: o.instructions, min: o.instructions, max: o.instructions });
     else { s.count++; s.total += o.instructions; s.min = Math.min(s.min, o.instructions); s.max = Math.max(s.max, o.instructions); }
   }
   const regions = [...byKey.values()].sort((a, b) => ORDER.indexOf(a.kind) - ORDER.indexOf(b.kind) || a.index - b.index);

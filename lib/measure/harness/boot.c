@@ -7,9 +7,9 @@
 extern int main(int argc, char **argv);
 extern void offramp_harness_calibrate(void);
 extern void offramp_harness_files(void);
-extern uintptr_t offramp_heap_peak;
+extern uintptr_t offramp_harness_heap_peak;
 extern uint32_t __stack_limit[], __stack_top[];
-extern char OFFRAMP_STACK_PAINT[];
+extern char OFFRAMP_HARNESS_PAINT[];
 
 void offramp_harness_start(void) __attribute__((noreturn));
 void offramp_harness_fault(uint32_t exception, uint32_t pc) __attribute__((noreturn));
@@ -34,29 +34,29 @@ static void put_number(const char *key, uint32_t v) {
 
 static void report_and_exit(int status, uint32_t exception, uint32_t pc) __attribute__((noreturn));
 static void report_and_exit(int status, uint32_t exception, uint32_t pc) {
-  const uint32_t paint = (uint32_t)(uintptr_t)OFFRAMP_STACK_PAINT;
+  const uint32_t paint = (uint32_t)(uintptr_t)OFFRAMP_HARNESS_PAINT;
   uint32_t *w = __stack_limit;
   while (w < __stack_top && *w == paint) w++;
   used = 0;
   put_number("status", (uint32_t)status);
   put_number("stack", (uint32_t)((uintptr_t)__stack_top - (uintptr_t)w));
   put_number("stack_size", (uint32_t)((uintptr_t)__stack_top - (uintptr_t)__stack_limit));
-  put_number("heap", (uint32_t)offramp_heap_peak);
+  put_number("heap", (uint32_t)offramp_harness_heap_peak);
   if (exception) {
     put_number("fault", exception);
     put_number("pc", pc);
   }
   uint32_t open[3] = {(uint32_t)REPORT, 4, sizeof REPORT - 1};
-  int32_t h = offramp_semihost(SH_OPEN, open);
+  int32_t h = offramp_harness_semihost(SH_OPEN, open);
   if (h != -1) {
     uint32_t write[3] = {(uint32_t)h, (uint32_t)text, used};
-    offramp_semihost(SH_WRITE, write);
+    offramp_harness_semihost(SH_WRITE, write);
     uint32_t close[1] = {(uint32_t)h};
-    offramp_semihost(SH_CLOSE, close);
+    offramp_harness_semihost(SH_CLOSE, close);
   }
   /* SYS_EXIT_EXTENDED passes the whole status to the host; plain SYS_EXIT reports only 0 or 1. */
   uint32_t block[2] = {0x20026u /* ADP_Stopped_ApplicationExit */, (uint32_t)status};
-  for (;;) offramp_semihost(SH_EXIT_EXTENDED, block);
+  for (;;) offramp_harness_semihost(SH_EXIT_EXTENDED, block);
 }
 
 void offramp_harness_exit(int status) { report_and_exit(status, 0, 0); }

@@ -15,11 +15,11 @@ static uint32_t position[FILES];
 
 extern char __heap_start[], __stack_limit[];
 static char *brk_now = __heap_start;
-uintptr_t offramp_heap_peak;
+uintptr_t offramp_harness_heap_peak;
 
 static int sh_open(const char *name, uint32_t mode) {
   uint32_t block[3] = {(uint32_t)name, mode, (uint32_t)strlen(name)};
-  return offramp_semihost(SH_OPEN, block);
+  return offramp_harness_semihost(SH_OPEN, block);
 }
 
 void offramp_harness_files(void) {
@@ -61,7 +61,7 @@ int _close(int fd) {
   }
   uint32_t block[1] = {(uint32_t)handle[fd]};
   handle[fd] = -1;
-  return offramp_semihost(SH_CLOSE, block) == 0 ? 0 : -1;
+  return offramp_harness_semihost(SH_CLOSE, block) == 0 ? 0 : -1;
 }
 
 /* SYS_WRITE and SYS_READ return the number of bytes NOT transferred. */
@@ -71,7 +71,7 @@ int _write(int fd, const void *buf, size_t len) {
     return -1;
   }
   uint32_t block[3] = {(uint32_t)handle[fd], (uint32_t)buf, (uint32_t)len};
-  int32_t left = offramp_semihost(SH_WRITE, block);
+  int32_t left = offramp_harness_semihost(SH_WRITE, block);
   if (left < 0) return -1;
   position[fd] += len - (uint32_t)left;
   return (int)(len - (uint32_t)left);
@@ -83,7 +83,7 @@ int _read(int fd, void *buf, size_t len) {
     return -1;
   }
   uint32_t block[3] = {(uint32_t)handle[fd], (uint32_t)buf, (uint32_t)len};
-  int32_t left = offramp_semihost(SH_READ, block);
+  int32_t left = offramp_harness_semihost(SH_READ, block);
   if (left < 0) return -1;
   position[fd] += len - (uint32_t)left;
   return (int)(len - (uint32_t)left);
@@ -98,7 +98,7 @@ off_t _lseek(int fd, off_t offset, int whence) {
   int32_t base = 0;
   if (whence == SEEK_CUR) base = (int32_t)position[fd];
   else if (whence == SEEK_END) {
-    base = offramp_semihost(SH_FLEN, block);
+    base = offramp_harness_semihost(SH_FLEN, block);
     if (base < 0) {
       errno = ESPIPE;
       return -1;
@@ -110,7 +110,7 @@ off_t _lseek(int fd, off_t offset, int whence) {
     return -1;
   }
   block[1] = (uint32_t)target;
-  if (offramp_semihost(SH_SEEK, block) != 0) {
+  if (offramp_harness_semihost(SH_SEEK, block) != 0) {
     errno = ESPIPE;
     return -1;
   }
@@ -124,7 +124,7 @@ int _isatty(int fd) {
     return 0;
   }
   uint32_t block[1] = {(uint32_t)handle[fd]};
-  return offramp_semihost(SH_ISTTY, block) == 1;
+  return offramp_harness_semihost(SH_ISTTY, block) == 1;
 }
 
 int _fstat(int fd, struct stat *st) {
@@ -140,7 +140,7 @@ void *_sbrk(ptrdiff_t incr) {
   }
   char *old = brk_now;
   brk_now += incr;
-  if ((uintptr_t)(brk_now - __heap_start) > offramp_heap_peak) offramp_heap_peak = (uintptr_t)(brk_now - __heap_start);
+  if ((uintptr_t)(brk_now - __heap_start) > offramp_harness_heap_peak) offramp_harness_heap_peak = (uintptr_t)(brk_now - __heap_start);
   return old;
 }
 

@@ -1,6 +1,6 @@
 /* Arm semihosting calls (Arm "Semihosting for AArch32 and AArch64", version 2.0): BKPT 0xAB on M-profile. */
-#ifndef OFFRAMP_SEMIHOST_H
-#define OFFRAMP_SEMIHOST_H
+#ifndef OFFRAMP_HARNESS_SEMIHOST_H
+#define OFFRAMP_HARNESS_SEMIHOST_H
 #include <stdint.h>
 
 enum {
@@ -8,7 +8,7 @@ enum {
   SH_FLEN = 0x0C, SH_EXIT_EXTENDED = 0x20
 };
 
-static inline int32_t offramp_semihost(uint32_t op, const void *block) {
+static inline int32_t offramp_harness_semihost(uint32_t op, const void *block) {
   register uint32_t r0 __asm__("r0") = op;
   register const void *r1 __asm__("r1") = block;
   __asm__ volatile("bkpt 0xAB" : "+r"(r0) : "r"(r1) : "memory");

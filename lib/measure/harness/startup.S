@@ -5,19 +5,19 @@
         .thumb
 
         .section .vectors, "a", %progbits
-        .global offramp_vectors
-offramp_vectors:
+        .global offramp_harness_vectors
+offramp_harness_vectors:
         .word   __stack_top
-        .word   offramp_reset
+        .word   offramp_harness_reset
         .rept   14                      /* NMI .. SysTick: all faults and traps stop the run */
-        .word   offramp_fault_entry
+        .word   offramp_harness_fault_entry
         .endr
 
-        .section .text.offramp_reset, "ax", %progbits
-        .global offramp_reset
-        .type   offramp_reset, %function
+        .section .text.offramp_harness_reset, "ax", %progbits
+        .global offramp_harness_reset
+        .type   offramp_harness_reset, %function
         .thumb_func
-offramp_reset:
+offramp_harness_reset:
         /* Full access to CP10 and CP11 (the FPU, and MVE on the M55) before any floating-point
          * instruction, since the C code may use them from its first line (CPACR, Armv7-M ARM B3.2.20). */
         ldr     r0, =0xE000ED88
@@ -46,21 +46,21 @@ offramp_reset:
          * the ones never used (the high-water mark, read in boot.c). */
 4:      ldr     r1, =__stack_limit
         mov     r2, sp
-        ldr     r3, =OFFRAMP_STACK_PAINT
+        ldr     r3, =OFFRAMP_HARNESS_PAINT
 5:      cmp     r1, r2
         bhs     6f
         str     r3, [r1], #4
         b       5b
 6:      bl      offramp_harness_start
         b       .
-        .size   offramp_reset, . - offramp_reset
+        .size   offramp_harness_reset, . - offramp_harness_reset
 
         /* A fault, NMI or unexpected trap: report the exception number and the stacked PC. */
-        .section .text.offramp_fault_entry, "ax", %progbits
-        .global offramp_fault_entry
-        .type   offramp_fault_entry, %function
+        .section .text.offramp_harness_fault_entry, "ax", %progbits
+        .global offramp_harness_fault_entry
+        .type   offramp_harness_fault_entry, %function
         .thumb_func
-offramp_fault_entry:
+offramp_harness_fault_entry:
         mrs     r0, ipsr
         tst     lr, #4
         ite     eq
@@ -68,7 +68,7 @@ offramp_fault_entry:
         mrsne   r2, psp
         ldr     r1, [r2, #24]
         b       offramp_harness_fault
-        .size   offramp_fault_entry, . - offramp_fault_entry
+        .size   offramp_harness_fault_entry, . - offramp_harness_fault_entry
 
-        .set    OFFRAMP_STACK_PAINT, 0x5AA5C33C
-        .global OFFRAMP_STACK_PAINT
+        .set    OFFRAMP_HARNESS_PAINT, 0x5AA5C33C
+        .global OFFRAMP_HARNESS_PAINT

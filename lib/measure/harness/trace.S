@@ -19,8 +19,8 @@
 offramp_trace:
         ubfx    r1, r1, #0, #9
         orr     r1, r1, r0, lsl #9
-        movw    r2, #:lower16:offramp_markers
-        movt    r2, #:upper16:offramp_markers
+        movw    r2, #:lower16:offramp_harness_marks
+        movt    r2, #:upper16:offramp_harness_marks
         str     r0, [r2, r1, lsl #2]
         bx      lr
         .size   offramp_trace, . - offramp_trace
