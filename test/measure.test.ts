@@ -101,7 +101,7 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
       expect(m.exitCode).toBe(3);
       // 1.5 × (0.5 + 1 + 1.5 + 2) = 7.5, truncated: the float code ran, so the FPU was on.
       expect(m.stdout).toBe('scale 7\n');
-      // trace.S: bx lr | movs | movs | bl | ubfx | orr | movw | movt | str between two stores.
+      // trace.c: bx lr | movs | movs | bl | ubfx | orr | movw | movt | str between two stores.
       expect(m.calibration).toBe(9);
       expect(m.occurrences.map(({ kind, index, instructions }) => ({ kind, index, instructions }))).toEqual(EXPECTED);
       expect(m.occurrences.map((o) => o.frame)).toEqual([-1, -1, -1, -1, -1, 0, 0, 0]);

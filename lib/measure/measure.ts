@@ -158,7 +158,7 @@ const EXCEPTIONS: Record<number, string> = { 2: 'NMI', 3: 'HardFault', 4: 'MemMa
  * qemu-system-arm with semihosting and the counter plugin, and measure it.
  *
  * The driver supplies `int main(void)`; its return value (or exit()'s status) is `exitCode`. The
- * library marks regions by calling `offramp_trace(event, index)` (harness/trace.S): 1/2 stage begin
+ * library marks regions by calling `offramp_trace(event, index)` (harness/trace.c): 1/2 stage begin
  * and end, 3/4 decision begin and end (index = exit), 5/6 frame begin and end. Instructions per
  * region are exact and repeatable: the same inputs give the same figures, bit for bit.
  *
@@ -191,7 +191,7 @@ export async function measureFirmware(options: MeasureOptions): Promise<Measurem
     for (const name of HARNESS_SOURCES) {
       const src = path.join(harness, name);
       const obj = path.join(work, `harness-${name.replace(/\.\w+$/, '')}.o`);
-      await compile(tc, name.endsWith('.c') ? [...cbase, '-Werror', '-c', src, '-o', obj] : [...arch, '-c', src, '-o', obj], src);
+      await compile(tc, [...cbase, '-Werror', '-c', src, '-o', obj], src);
       objs.push(obj);
     }
     const driver = [...o.driver];

@@ -1,7 +1,7 @@
 // From the counter's log (instruction count at each marker store) to instructions per region.
 //
 // The log holds "E <event> <index> <count>" per marker, then "T <count>" (the run's total). Events
-// come in begin/end pairs (harness/trace.S): 1/2 stage k, 3/4 decision on exit k, 5/6 frame, 7/8 the
+// come in begin/end pairs (harness/trace.c): 1/2 stage k, 3/4 decision on exit k, 5/6 frame, 7/8 the
 // harness's empty calibration region. Between two marker stores with nothing between, the marker
 // itself executes `calibration` instructions (9 with the harness's call sequence), so a region's
 // figure is its raw difference less one calibration per marker inside it and one for its own end:

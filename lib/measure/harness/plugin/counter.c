@@ -2,13 +2,13 @@
  *
  * Every executed guest instruction adds one to a counter (an inline add before the instruction,
  * so an instruction is counted once it starts; exact whatever way a translation block is left).
- * The firmware marks regions with stores into a marker block (harness/trace.S): the word written
+ * The firmware marks regions with stores into a marker block (harness/trace.c): the word written
  * names the event and its index. Only stores made by instructions inside the marker function are
  * watched, so the rest of the program runs without memory callbacks. Each marker store appends
  * "E <event> <index> <count>" to the output file, and the run's total ends it as "T <count>".
  *
  * Arguments: out=<file>, trace=<lo>:<hi> (the marker function's code), marks=<lo>:<hi> (the block).
- * Layout of the block (shared with trace.S): word = (event << 9) | (index & 511). */
+ * Layout of the block (shared with trace.c): word = (event << 9) | (index & 511). */
 #include <inttypes.h>
 #include <stdio.h>
 #include <stdlib.h>
