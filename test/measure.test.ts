@@ -11,7 +11,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { OfframpError } from '../lib/errors.js';
-import { coreOf, measureFirmware, readCountLog, toolchainStatus, type Measurement, type MeasureOptions } from '../lib/measure/index.js';
+import { coreOf, measureFirmware, readCountLog, readElf, toolchainStatus, type Measurement, type MeasureOptions } from '../lib/measure/index.js';
 
 const status = toolchainStatus();
 if (!status.ready && process.env.CI) throw new Error(`the measuring tests need the Arm toolchain under CI: ${status.message}`);
@@ -134,6 +134,23 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
       expect(of('.lib.bss')).toBe(64);
       expect(of('.lib.data')).toBe(4);
       expect(of('.lib.text')).toBeGreaterThan(0);
+    }
+  });
+
+  it('reads the ELF symbol table as binutils nm does', () => {
+    const m = runs.get('m55')!;
+    const r = spawnSync('arm-none-eabi-nm', ['-S', '--defined-only', m.elf!], { encoding: 'utf8' });
+    expect(r.status).toBe(0);
+    // nm -S: value, size, type letter, name, for symbols with a size.
+    const nm = r.stdout.split('\n').map((l) => l.trim().split(/\s+/)).filter((f) => f.length === 4)
+      .map(([v, sz, t, name]) => ({ name: name!, value: parseInt(v!, 16), size: parseInt(sz!, 16), global: t! === t!.toUpperCase() }));
+    expect(nm.length).toBeGreaterThan(50);
+    const elf = readElf(fs.readFileSync(m.elf!));
+    for (const s of nm.filter((x) => x.global)) {
+      const mine = elf.symbols.filter((x) => x.name === s.name && x.bind !== 0);
+      expect(mine.length, s.name).toBe(1);
+      // nm prints Thumb function addresses without bit 0, as the ELF for Arm ABI's T bit means.
+      expect({ value: mine[0]!.type === 2 ? mine[0]!.value & ~1 : mine[0]!.value, size: mine[0]!.size }, s.name).toEqual({ value: s.value, size: s.size });
     }
   });
 
