@@ -1,5 +1,5 @@
-// `npm run bench` part: instructions per MAC of a plain C int8 3×3 convolution on the emulated
-// cores (exact counts from the counter plugin), and the emulator's speed with the counter on.
+// `npm run bench` part: instructions per MAC of plain C int8 and float32 3×3 convolutions on the
+// emulated cores (exact counts from the counter plugin), and the emulator's speed with the counter on.
 // Prints JSON for bench/run.ts; prints {"skipped": "<why>"} without the toolchain.
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -12,8 +12,12 @@ const SRC = [path.join(HERE, 'measure'), path.join(HERE, '..', '..', 'bench', 'm
 export interface ConvBench {
   core: MeasuredCore;
   macs: number;
+  /** int8 convolution (stage 0). */
   instructions: number;
   perMac: number;
+  /** float32 convolution (stage 1). */
+  floatInstructions: number;
+  floatPerMac: number;
   /** Wall time of building the firmware, of one emulated run (1 frame), and of one more frame. */
   buildMs: number;
   runMs: number;
@@ -27,15 +31,21 @@ const MACS = 14 * 14 * 16 * 9 * 8;
 const EXTRA = 200;
 
 async function bench(core: MeasuredCore, dir: string): Promise<ConvBench> {
-  const opts = { core, sources: [path.join(dir, 'conv3x3.c')], driverSources: [path.join(dir, 'driver.c')], timings: true };
+  const opts = { core, sources: [path.join(dir, 'conv3x3.c'), path.join(dir, 'conv3x3f.c')], driverSources: [path.join(dir, 'driver.c')], timings: true };
   const one = await measureFirmware(opts);
   const many = await measureFirmware({ ...opts, defines: [`BENCH_FRAMES=${1 + EXTRA}`] });
-  const conv = one.regions.find((r) => r.kind === 'stage' && r.index === 0)!;
-  const convMany = many.regions.find((r) => r.kind === 'stage' && r.index === 0)!;
-  if (convMany.min !== conv.total || convMany.max !== conv.total) throw new Error(`${core}: the convolution's count varies between frames`);
+  const stage = (m: typeof one, k: number) => {
+    const r = m.regions.find((x) => x.kind === 'stage' && x.index === k);
+    if (!r) throw new Error(`${core}: no count for stage ${k}`);
+    return r;
+  };
+  const conv = stage(one, 0), convf = stage(one, 1);
+  for (const [a, b] of [[conv, stage(many, 0)], [convf, stage(many, 1)]] as const) {
+    if (b.count !== 1 + EXTRA || b.min !== a.total || b.max !== a.total) throw new Error(`${core}: a convolution's count varies between frames`);
+  }
   const frameMs = (many.timings!.emulateMs - one.timings!.emulateMs) / EXTRA;
   return {
-    core, macs: MACS, instructions: conv.total, perMac: conv.total / MACS, buildMs: one.timings!.buildMs, runMs: one.timings!.emulateMs, frameMs,
+    core, macs: MACS, instructions: conv.total, perMac: conv.total / MACS, floatInstructions: convf.total, floatPerMac: convf.total / MACS, buildMs: one.timings!.buildMs, runMs: one.timings!.emulateMs, frameMs,
     emulatedPerSec: (many.instructions - one.instructions) / EXTRA / (frameMs / 1000),
   };
 }

@@ -81,12 +81,12 @@ function measureSection(): void {
   const r = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'measure.js')], { encoding: 'utf8' });
   if (r.status !== 0) throw new Error(`bench measure failed: ${r.stderr}`);
   const got = JSON.parse(r.stdout) as ConvBench[] | { skipped: string };
-  console.log('\nplain C int8 3×3 convolution on the emulated cores (16×16×8 → 14×14×16, gcc -O2; exact instruction counts)');
+  console.log('\nplain C 3×3 convolutions on the emulated cores (16×16×8 → 14×14×16, gcc -O2; exact instruction counts)');
   if (!Array.isArray(got)) { console.log(`  skipped: ${got.skipped}`); return; }
   for (const c of got) {
-    const rate = BUILTIN_TARGETS[c.core]!.int8MacsPerCycle;
-    line(`${c.core}: instructions per MAC`, `${c.perMac.toFixed(3)}`, `${c.instructions} instructions for ${c.macs} MACs`);
-    line(`${c.core}: MACs per instruction`, `${(1 / c.perMac).toFixed(3)}`, `from-memory int8 rate ${ratioText(rate)} MAC/cycle`);
+    const t = BUILTIN_TARGETS[c.core]!;
+    line(`${c.core} int8: instructions per MAC`, `${c.perMac.toFixed(3)}`, `${c.instructions} for ${c.macs} MACs; ${(1 / c.perMac).toFixed(3)} MAC/instruction, from-memory rate ${ratioText(t.int8MacsPerCycle)} MAC/cycle`);
+    line(`${c.core} float32: instructions per MAC`, `${c.floatPerMac.toFixed(3)}`, `${c.floatInstructions} for ${c.macs} MACs; ${(1 / c.floatPerMac).toFixed(3)} MAC/instruction, from-memory rate ${ratioText(t.macsPerCycle)} MAC/cycle`);
   }
   const m4 = got.find((c) => c.core === 'm4f')!;
   line('one measurement, m4f: build', `${m4.buildMs.toFixed(0)} ms`, 'compile and link with the harness');
