@@ -11,7 +11,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { afterAll, describe, expect, it } from 'vitest';
 import { OfframpError } from '../lib/errors.js';
-import { coreOf, measureFirmware, readCountLog, readElf, toolchainStatus, type Measurement, type MeasureOptions } from '../lib/measure/index.js';
+import { coreOf, frameProfiles, measureFirmware, readCountLog, readElf, toolchainStatus, type Measurement, type MeasureOptions } from '../lib/measure/index.js';
 
 const status = toolchainStatus();
 if (!status.ready && process.env.CI) throw new Error(`the measuring tests need the Arm toolchain under CI: ${status.message}`);
@@ -86,6 +86,10 @@ describe('without the toolchain', () => {
       { kind: 'stage', index: 1, count: 1, total: 21, min: 21, max: 21 },
       { kind: 'frame', index: -1, count: 2, total: 104, min: 31, max: 73 },
     ]);
+    expect(frameProfiles(c.occurrences)).toEqual([
+      { frame: 0, index: 0, instructions: 73, stages: [{ index: 1, instructions: 21 }], decisions: [] },
+      { frame: 1, index: 1, instructions: 31, stages: [], decisions: [] },
+    ]);
     expect(() => readCountLog('E 7 0 10\nE 8 0 19\nE 1 1 20\nE 4 1 30\nT 40\n', true)).toThrow(/end of decision 1 inside stage 1/);
     expect(() => readCountLog('E 7 0 10\nE 8 0 19\nE 1 1 20\nT 40\n', true)).toThrow(/stage 1 still open/);
   });
@@ -106,6 +110,9 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
       expect(m.occurrences.map(({ kind, index, instructions }) => ({ kind, index, instructions }))).toEqual(EXPECTED);
       expect(m.occurrences.map((o) => o.frame)).toEqual([-1, -1, -1, -1, -1, 0, 0, 0]);
       expect(m.frames).toBe(1);
+      expect(frameProfiles(m.occurrences)).toEqual([
+        { frame: 0, index: 9, instructions: 43, stages: [{ index: 5, instructions: 2 }], decisions: [{ index: 1, instructions: 41 }] },
+      ]);
     });
   }
 

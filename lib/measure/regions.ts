@@ -114,3 +114,31 @@ export function readCountLog(text: string, complete: boolean, file = 'counter lo
   const regions = [...byKey.values()].sort((a, b) => ORDER.indexOf(a.kind) - ORDER.indexOf(b.kind) || a.index - b.index);
   return { total, calibration, occurrences, regions, frames };
 }
+
+/** One frame as it ran: its instructions (markers inside subtracted), and the stages and decisions
+ *  it ran, in order, with their own figures. */
+export interface FrameProfile {
+  frame: number;
+  index: number;
+  instructions: number;
+  stages: { index: number; instructions: number }[];
+  decisions: { index: number; instructions: number }[];
+}
+
+/** The frames of a run, each with what ran inside it; the exit path of a frame is its list of stages
+ *  (and the last decision taken), so grouping these by path gives instructions per exit path. */
+export function frameProfiles(occurrences: Occurrence[]): FrameProfile[] {
+  const frames = new Map<number, FrameProfile>();
+  const get = (f: number) => {
+    let p = frames.get(f);
+    if (!p) frames.set(f, p = { frame: f, index: -1, instructions: 0, stages: [], decisions: [] });
+    return p;
+  };
+  for (const o of occurrences) {
+    if (o.frame < 0) continue;
+    const p = get(o.frame);
+    if (o.kind === 'frame') { p.index = o.index; p.instructions = o.instructions; }
+    else (o.kind === 'stage' ? p.stages : p.decisions).push({ index: o.index, instructions: o.instructions });
+  }
+  return [...frames.values()].sort((a, b) => a.frame - b.frame);
+}
