@@ -199,6 +199,18 @@ int main(void) {
     expect(m.stdout).toBe(`1000 ${sum}\n`);
   });
 
+  it('names the source that does not compile, and the missing symbol that does not link', async () => {
+    const broken = path.join(tmp, 'broken.c');
+    fs.writeFileSync(broken, 'int measured_broken(void) { return missing_name; }\n');
+    const e = await measureFirmware(base({ sources: [path.join(F, 'lib.c'), broken] })).catch((x: unknown) => x) as OfframpError;
+    expect(e).toBeInstanceOf(OfframpError);
+    expect(e.kind).toBe('data');
+    expect(e.file).toBe(broken);
+    expect(e.message).toMatch(/missing_name/);
+    await expect(measureFirmware({ core: 'm4f', sources: [path.join(F, 'lib.c')], rowsC: 'void absent(void);\nint main(void) { absent(); return 0; }\n' }))
+      .rejects.toThrow(/linking the firmware failed: .*undefined reference to `absent'/);
+  });
+
   it('passes any exit status through and stops on a fault with its pc', async () => {
     const exit = await measureFirmware({ core: 'm7', sources: [path.join(F, 'lib.c')], rowsC: 'int main(void) { return 200; }\n' });
     expect(exit.exitCode).toBe(200);

@@ -139,6 +139,20 @@ async function compile(tc: Toolchain, args: string[], src: string): Promise<stri
   return r.stderr;
 }
 
+/** Run the tasks two at a time; each task's error (or undefined) in the tasks' order. */
+async function inPairs(tasks: (() => Promise<unknown>)[]): Promise<(unknown | undefined)[]> {
+  const errors: (unknown | undefined)[] = new Array(tasks.length).fill(undefined);
+  let next = 0;
+  const worker = async () => {
+    while (next < tasks.length) {
+      const k = next++;
+      try { await tasks[k]!(); } catch (e) { errors[k] = e; }
+    }
+  };
+  await Promise.all([worker(), worker()]);
+  return errors;
+}
+
 const sectionSize = (sections: ElfSection[], names: string[]) => sections.filter((s) => names.includes(s.name)).reduce((a, s) => a + s.size, 0);
 
 function readReport(file: string): Record<string, number> | undefined {
@@ -178,33 +192,37 @@ export async function measureFirmware(options: MeasureOptions): Promise<Measurem
     const arch = ['-mthumb', ...o.core.flags];
     const cbase = [...arch, '-O2', '-std=c99', '-ffunction-sections', '-fdata-sections', '-Wall', '-Wextra'];
     const user = [...o.defines.map((d) => `-D${d}`), ...o.includes.map((d) => `-I${d}`), ...o.cflags];
-    const libObjs: string[] = [];
-    for (const [i, src] of o.sources.entries()) {
-      const obj = path.join(work, 'lib', `${i}-${path.basename(src, '.c')}.o`);
-      await compile(tc, [...cbase, ...(o.trace ? ['-DOFFRAMP_TRACE'] : []), ...user, '-c', src, '-o', obj], src);
-      libObjs.push(obj);
-    }
-    const archive = path.join(work, 'libofframp-measured.a');
-    const ar = await runTool(tc.armAr, ['rcsD', archive, ...libObjs], { timeoutMs: 60_000 });
-    if (ar.code !== 0) throw new OfframpError('runtime', `arm-none-eabi-ar: ${firstError(ar.stderr)}`, archive);
-    const objs: string[] = [];
-    for (const name of HARNESS_SOURCES) {
-      const src = path.join(harness, name);
-      const obj = path.join(work, `harness-${name.replace(/\.\w+$/, '')}.o`);
-      await compile(tc, [...cbase, '-Werror', '-c', src, '-o', obj], src);
-      objs.push(obj);
-    }
     const driver = [...o.driver];
     if (o.rowsC !== undefined) {
       const rows = path.join(work, 'rows.c');
       fs.writeFileSync(rows, o.rowsC);
       driver.push(rows);
     }
-    for (const [i, src] of driver.entries()) {
-      const obj = path.join(work, `driver-${i}-${path.basename(src).replace(/\.\w+$/, '')}.o`);
-      await compile(tc, src.endsWith('.c') ? [...cbase, ...user, '-c', src, '-o', obj] : [...arch, ...user, '-c', src, '-o', obj], src);
-      objs.push(obj);
-    }
+    // Every compile, in a fixed order of objects; two at a time (the error reported is the first
+    // source's in that order, whichever finished first).
+    const jobs: { src: string; obj: string; args: string[] }[] = [
+      ...o.sources.map((src, i) => {
+        const obj = path.join(work, 'lib', `${i}-${path.basename(src, '.c')}.o`);
+        return { src, obj, args: [...cbase, ...(o.trace ? ['-DOFFRAMP_TRACE'] : []), ...user, '-c', src, '-o', obj] };
+      }),
+      ...HARNESS_SOURCES.map((name) => {
+        const src = path.join(harness, name);
+        const obj = path.join(work, `harness-${name.replace(/\.\w+$/, '')}.o`);
+        return { src, obj, args: [...cbase, '-Werror', '-c', src, '-o', obj] };
+      }),
+      ...driver.map((src, i) => {
+        const obj = path.join(work, `driver-${i}-${path.basename(src).replace(/\.\w+$/, '')}.o`);
+        return { src, obj, args: src.endsWith('.c') ? [...cbase, ...user, '-c', src, '-o', obj] : [...arch, ...user, '-c', src, '-o', obj] };
+      }),
+    ];
+    const failures = await inPairs(jobs.map((j) => () => compile(tc, j.args, j.src)));
+    const failed = failures.find((f) => f !== undefined);
+    if (failed) throw failed;
+    const libObjs = jobs.slice(0, o.sources.length).map((j) => j.obj);
+    const objs = jobs.slice(o.sources.length).map((j) => j.obj);
+    const archive = path.join(work, 'libofframp-measured.a');
+    const ar = await runTool(tc.armAr, ['rcsD', archive, ...libObjs], { timeoutMs: 60_000 });
+    if (ar.code !== 0) throw new OfframpError('runtime', `arm-none-eabi-ar: ${firstError(ar.stderr)}`, archive);
     const elfPath = path.join(work, 'fw.elf');
     const link = await runTool(tc.armGcc, [
       ...arch, '--specs=nano.specs', '-nostartfiles', `-L${harness}`, '-T', o.core.memory, '-Wl,--gc-sections',
