@@ -123,6 +123,28 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
     expect(strip(again)).toBe(strip(first));
   });
 
+  it('counts the whole run as QEMU\'s own execution log does', () => {
+    // Without the plugin: `-d in_asm,exec,nochain` logs each translated block's instructions and
+    // every block executed (chaining off, so none is skipped); their sum is the run's instructions.
+    const m = runs.get('m4f')!;
+    const log = path.join(tmp, 'exec.log');
+    const r = spawnSync('qemu-system-arm', ['-M', 'mps2-an386', '-nographic', '-monitor', 'none', '-serial', 'none',
+      '-semihosting-config', 'enable=on,target=native', '-kernel', m.elf!, '-d', 'in_asm,exec,nochain', '-D', log], { cwd: tmp, encoding: 'utf8' });
+    expect(r.status).toBe(3);
+    const lengths = new Map<number, number>();
+    let block: number | undefined, n = 0, total = 0;
+    const close = () => { if (block !== undefined) lengths.set(block, n); block = undefined; n = 0; };
+    for (const line of fs.readFileSync(log, 'utf8').split('\n')) {
+      const insn = /^0x([0-9a-f]+):\s+[0-9a-f]{4}/.exec(line);
+      if (line.startsWith('IN:')) { close(); block = -1; }
+      else if (insn && block !== undefined) { if (block === -1) block = parseInt(insn[1]!, 16); n++; }
+      else if (line.startsWith('Trace ')) { close(); total += lengths.get(parseInt(line.split('[')[1]!.split('/')[1]!, 16))!; }
+      else if (line.trim() === '') close();
+    }
+    fs.rmSync(log);
+    expect(total).toBe(m.instructions);
+  });
+
   it('reports flash and RAM as arm-none-eabi-size reads the same ELF', async () => {
     for (const m of runs.values()) {
       // Berkeley format: text dec data bss dec hex filename.
