@@ -38,7 +38,8 @@ function onPath(name: string, env: NodeJS.ProcessEnv): string | undefined {
 /** Newlib-nano beside the cross compiler (Debian's libnewlib-arm-none-eabi puts it under
  *  <prefix>/lib/arm-none-eabi/newlib/). */
 function haveNewlibNano(armGcc: string): boolean {
-  const prefix = path.dirname(path.dirname(fs.realpathSync(armGcc)));
+  let prefix: string;
+  try { prefix = path.dirname(path.dirname(fs.realpathSync(armGcc))); } catch { return false; }
   return fs.existsSync(path.join(prefix, 'lib', 'arm-none-eabi', 'newlib', 'nano.specs'))
     || fs.existsSync(path.join(prefix, 'arm-none-eabi', 'lib', 'nano.specs'));
 }
