@@ -17,8 +17,8 @@ export interface Core {
 export type MeasuredCore = 'm4f' | 'm7' | 'm55';
 
 export const CORES: Readonly<Record<MeasuredCore, Core>> = {
-  m4f: { name: 'm4f', machine: 'mps2-an386', flags: ['-mcpu=cortex-m4', '-mfloat-abi=hard', '-mfpu=fpv4-sp-d16'], memory: 'memory-mps2.ld', clockHz: 25_000_000 },
-  m7: { name: 'm7', machine: 'mps2-an500', flags: ['-mcpu=cortex-m7', '-mfloat-abi=hard', '-mfpu=fpv5-d16'], memory: 'memory-mps2.ld', clockHz: 25_000_000 },
+  m4f: { name: 'm4f', machine: 'mps2-an386', flags: ['-mcpu=cortex-m4', '-mfloat-abi=hard', '-mfpu=fpv4-sp-d16'], memory: 'memory-an386.ld', clockHz: 25_000_000 },
+  m7: { name: 'm7', machine: 'mps2-an500', flags: ['-mcpu=cortex-m7', '-mfloat-abi=hard', '-mfpu=fpv5-d16'], memory: 'memory-an500.ld', clockHz: 25_000_000 },
   m55: { name: 'm55', machine: 'mps3-an547', flags: ['-mcpu=cortex-m55', '-mfloat-abi=hard'], memory: 'memory-an547.ld', clockHz: 32_000_000 },
 };
 

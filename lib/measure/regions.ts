@@ -21,7 +21,7 @@ const KINDS: Record<number, RegionKind | 'calibration'> = { 1: 'stage', 3: 'deci
 /** One executed region, in the order the regions ended. */
 export interface Occurrence {
   kind: RegionKind;
-  /** The firmware's index (stage k, exit k, frame number), its low 9 bits as the marker carries them. */
+  /** The firmware's index (stage k, exit k, frame number), its low 16 bits as the marker carries them. */
   index: number;
   /** Which frame it belongs to: the frame's position among the run's frames (0, 1, …); -1 outside any frame. */
   frame: number;

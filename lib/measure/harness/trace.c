@@ -2,7 +2,7 @@
  *   void offramp_trace(int32_t event, int32_t index);
  * at the edges of what it wants counted (1/2 stage begin/end, 3/4 decision begin/end,
  * 5/6 frame begin/end; 7/8 are the harness's calibration region). Each call makes one store
- * into the marker block, at word (event << 9) | (index & 511); the counter plugin watches only
+ * into the marker block, at word (event << 16) | (index & 0xffff); the counter plugin watches only
  * the stores made by this function and records the instruction count at each.
  *
  * Written in assembly so that its cost is fixed and known: from one marker store to the next
@@ -20,8 +20,8 @@ __asm__(
     "        .type   offramp_trace, %function\n"
     "        .thumb_func\n"
     "offramp_trace:\n"
-    "        ubfx    r1, r1, #0, #9\n"
-    "        orr     r1, r1, r0, lsl #9\n"
+    "        ubfx    r1, r1, #0, #16\n"
+    "        orr     r1, r1, r0, lsl #16\n"
     "        movw    r2, #:lower16:offramp_harness_marks\n"
     "        movt    r2, #:upper16:offramp_harness_marks\n"
     "        str     r0, [r2, r1, lsl #2]\n"

@@ -8,7 +8,7 @@
  * "E <event> <index> <count>" to the output file, and the run's total ends it as "T <count>".
  *
  * Arguments: out=<file>, trace=<lo>:<hi> (the marker function's code), marks=<lo>:<hi> (the block).
- * Layout of the block (shared with trace.c): word = (event << 9) | (index & 511). */
+ * Layout of the block (shared with trace.c): word = (event << 16) | (index & 0xffff). */
 #include <inttypes.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -31,7 +31,7 @@ static void on_marker(unsigned int vcpu, qemu_plugin_meminfo_t info, uint64_t va
     return;
   }
   uint64_t word = (vaddr - marks_lo) >> 2;
-  fprintf(out, "E %" PRIu64 " %" PRIu64 " %" PRIu64 "\n", word >> 9, word & 511u, executed);
+  fprintf(out, "E %" PRIu64 " %" PRIu64 " %" PRIu64 "\n", word >> 16, word & 0xffffu, executed);
 }
 
 static void on_translate(qemu_plugin_id_t id, struct qemu_plugin_tb *tb) {
