@@ -146,6 +146,7 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
   });
 
   it('reports flash and RAM as arm-none-eabi-size reads the same ELF', async () => {
+    expect([...runs.keys()]).toEqual(['m4f', 'm7', 'm55']);
     for (const m of runs.values()) {
       // Berkeley format: text dec data bss dec hex filename.
       const [text, data, bss] = size(m.elf!, 'B').split('\n')[1]!.trim().split(/\s+/).map(Number) as [number, number, number];
