@@ -1,8 +1,9 @@
 // The measuring harness on emulated Cortex-M cores (QEMU 7.2: mps2-an386 = M4F, mps2-an500 = M7,
 // mps3-an547 = M55). The instruction counter is checked against Thumb-2 loops whose executed
 // instruction counts follow from the Arm architecture's instruction behaviour (Armv7-M Architecture
-// Reference Manual, A7.7, and for IT blocks A7.3.2: an instruction failing its condition executes as
-// a NOP; each count is worked out beside its loop in fixtures/measure/loops.S); flash and RAM are
+// Reference Manual, chapter A7's instruction descriptions and its conditional execution rules, from
+// memory: an instruction in an IT block whose condition fails still executes, as a NOP; each count is
+// worked out beside its loop in fixtures/measure/loops.S); flash and RAM are
 // checked against binutils' `arm-none-eabi-size` of the same ELF. Needs Debian's gcc-arm-none-eabi,
 // libnewlib-arm-none-eabi and qemu-system-arm: skipped without them, a failure under CI.
 import { spawnSync } from 'node:child_process';
