@@ -1,6 +1,6 @@
 /* Reset and exception entry for the bare-metal harness (Armv7-M and Armv8-M mainline).
  * The vector table sits at address 0, where the three QEMU machines start the core
- * (Armv7-M ARM B1.5.3: SP_main from word 0, the reset handler from word 1). Assembly, since nothing
+ * (Armv7-M ARM, the vector table: SP_main from word 0, the reset handler from word 1). Assembly, since nothing
  * may run before the FPU is on (gcc may use FP or vector registers in any C loop, and the M55's MVE
  * needs CP10 too); kept in a .c file as file-scope asm. */
 __asm__(
@@ -23,7 +23,7 @@ __asm__(
     "        .thumb_func\n"
     "offramp_harness_reset:\n"
     /* Full access to CP10 and CP11 (the FPU, and MVE on the M55) before any floating-point
-     * instruction, since the C code may use them from its first line (CPACR, Armv7-M ARM B3.2.20). */
+     * instruction, since the C code may use them from its first line (CPACR in the Armv7-M ARM). */
     "        ldr     r0, =0xE000ED88\n"
     "        ldr     r1, [r0]\n"
     "        orr     r1, r1, #(0xF << 20)\n"
