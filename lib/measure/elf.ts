@@ -47,6 +47,7 @@ function cString(buf: Buffer, at: number): string {
 
 /** Parse an Arm ELF32 file; `file` names it in errors. */
 export function readElf(buf: Buffer, file = 'ELF file'): Elf {
+  if (!Buffer.isBuffer(buf)) throw new OfframpError('usage', 'buf: the ELF file\'s bytes as a Buffer');
   const bad = (what: string) => new OfframpError('decode', what, file);
   if (buf.length < 52 || buf.readUInt32BE(0) !== 0x7f454c46) throw bad('not an ELF file');
   if (buf[4] !== 1 || buf[5] !== 1) throw bad('not a 32-bit little-endian ELF file');

@@ -60,6 +60,8 @@ const ORDER: RegionKind[] = ['stage', 'decision', 'frame'];
 
 /** Read the counter's log. `complete`: the firmware ended normally, so every region must be closed. */
 export function readCountLog(text: string, complete: boolean, file = 'counter log'): CountLog {
+  if (typeof text !== 'string') throw new OfframpError('usage', 'text: the counter log as a string');
+  if (typeof complete !== 'boolean') throw new OfframpError('usage', 'complete: true or false');
   const bad = (line: number, what: string) => new OfframpError('runtime', what, file, `line ${line}`);
   const open: Open[] = [];
   const occurrences: Occurrence[] = [];
@@ -128,6 +130,7 @@ export interface FrameProfile {
 /** The frames of a run, each with what ran inside it; the exit path of a frame is its list of stages
  *  (and the last decision taken), so grouping these by path gives instructions per exit path. */
 export function frameProfiles(occurrences: Occurrence[]): FrameProfile[] {
+  if (!Array.isArray(occurrences)) throw new OfframpError('usage', 'occurrences: an array (Measurement.occurrences)');
   const frames = new Map<number, FrameProfile>();
   const get = (f: number) => {
     let p = frames.get(f);
