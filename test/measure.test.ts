@@ -70,6 +70,14 @@ describe('without the toolchain', () => {
     await expect(measureFirmware(base({ sources: [path.join(F, 'missing.c')] }))).rejects.toThrow(/sources\[0\]: no such file/);
   });
 
+  it('refuses what is not a 32-bit little-endian Arm ELF file, naming it', () => {
+    expect(() => readElf(Buffer.from('not an elf file at all, just text of some length to pass the header size'), 'x.elf')).toThrow(/not an ELF file/);
+    // ELF magic, 64-bit class (System V ABI e_ident[EI_CLASS] = 2).
+    const elf64 = Buffer.alloc(64); elf64.write('\x7fELF', 0, 'latin1'); elf64[4] = 2; elf64[5] = 1;
+    expect(() => readElf(elf64, 'y.elf')).toThrow(/not a 32-bit little-endian/);
+    expect(() => readElf('path' as unknown as Buffer)).toThrow(/^buf: /);
+  });
+
   it('pairs markers and subtracts one calibration per marker (worked example)', () => {
     // Calibration 9; frame 0 from 100 to 200 holds stage 1 from 120 to 150: stage = 30 − 9 = 21,
     // frame = 100 − 9 × (1 + 2 inner markers) = 73; frame 1 from 300 to 340, empty: 40 − 9 = 31.
