@@ -11,9 +11,13 @@ import path from 'node:path';
 import { offramp } from './helpers/cli.js';
 import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureDevice } from '../lib/measure/device.js';
 import { GCC, compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
 
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the firmware tests need it under CI');
+const EMU = toolchainStatus().ready;
+if (!EMU && process.env.CI) throw new Error(`the emulated Cortex-M tests need the toolchain under CI: ${toolchainStatus().message}`);
 const MODEL = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-fw-demo-'));
 const f = (n: string) => path.join(tmp, n);
@@ -66,4 +70,24 @@ describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
     expect(Math.max(...o.steps.keys())).toBeLessThanOrEqual(1);
     expect(agree).toBeGreaterThanOrEqual(0.995);
   });
+});
+
+describe.skipIf(!EMU)('int8 firmware of the demo model on emulated Cortex-M cores', () => {
+  for (const core of ['m4f', 'm7', 'm55']) {
+    it(`${core}: every answer equal to the TypeScript reference (the DSP kernels where the core has them); exact, repeatable counts`, async () => {
+      const r = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core, rows: 60 });
+      expect(r.answers.equalToReference).toBe(r.frames);
+      expect(r.frames).toBe(60);
+      // whole-network frames run every stage: their instructions equal the stages' sum plus the input and the final argmax
+      const stageSum = r.stages.reduce((a, s) => a + s.instructions, 0);
+      expect(r.perFrame.full).toBeGreaterThan(stageSum);
+      expect(r.perFrame.full).toBeLessThan(stageSum * 1.05);
+      expect(r.perFrame.policy).toBeLessThan(r.perFrame.full);
+      console.log(`demo int8 firmware on ${core}: ${r.perFrame.policy} instructions per frame with the policy, ${r.perFrame.full} whole network (${(r.perFrame.savedShare * 100).toFixed(1)} % saved); per MAC by stage ${r.stages.map((s) => s.instructionsPerMac.toFixed(2)).join(' / ')}; flash ${r.flash.libraryBytes} B, RAM ${r.ram.libraryBytes} B + stack ${r.ram.stackPeakBytes} B; ${r.answers.equalToOnnxruntime}/${r.frames} equal to onnxruntime`);
+      if (core === 'm4f') {
+        const again = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core, rows: 60 });
+        expect(JSON.stringify(again)).toBe(JSON.stringify(r));
+      }
+    });
+  }
 });

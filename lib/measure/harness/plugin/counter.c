@@ -26,7 +26,12 @@ static void on_marker(unsigned int vcpu, qemu_plugin_meminfo_t info, uint64_t va
   (void)vcpu;
   (void)udata;
   if (!qemu_plugin_mem_is_store(info)) return;
-  if (vaddr < marks_lo || vaddr >= marks_hi || (vaddr & 3u) != 0) {
+  /* QEMU 7.2 leaves an instruction's memory callbacks armed for the accesses a helper makes after it
+   * (the M-profile vector stores of a Cortex-M55 among them): such a store lands here although no
+   * marker made it. Only a store into the block is a marker; anything else is ignored. A misaligned
+   * store into the block is no marker of trace.c's either, and is flagged. */
+  if (vaddr < marks_lo || vaddr >= marks_hi) return;
+  if ((vaddr & 3u) != 0) {
     bad_store = 1;
     return;
   }
@@ -49,7 +54,7 @@ static void on_translate(qemu_plugin_id_t id, struct qemu_plugin_tb *tb) {
 static void on_end(qemu_plugin_id_t id, void *udata) {
   (void)id;
   (void)udata;
-  if (bad_store) fprintf(out, "X marker store outside the marker block\n");
+  if (bad_store) fprintf(out, "X misaligned store into the marker block\n");
   fprintf(out, "T %" PRIu64 "\n", executed);
   fclose(out);
 }
