@@ -6,7 +6,7 @@
 import { OfframpError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { hexDouble } from '../emit/c.js';
-import type { Multiplier } from '../kernels/requant.js';
+import { mulInitializer, type Multiplier } from '../kernels/requant.js';
 import type { ConvParams, DenseParams, PoolParams, RescaleParams } from '../kernels/types.js';
 import type { Program, Step, Tensor8 } from './program.js';
 
@@ -44,7 +44,7 @@ export const scratchOf = (p: Program) => Math.max(4, ...p.stages.flatMap((s) => 
 
 const int32 = (v: number) => (v === -2147483648 ? '(-2147483647 - 1)' : String(v));
 const muls = (name: string, m: Multiplier[]) =>
-  `static const offramp_mul_t ${name}[${Math.max(1, m.length)}] = {\n${m.length ? m.map((x) => `  { ${int32(x.mult)}, ${x.shift} }`).join(',\n') : '  { 0, 0 }'}\n};\n`;
+  `static const offramp_mul_t ${name}[${Math.max(1, m.length)}] = {\n${m.length ? m.map((x) => `  ${mulInitializer(x)}`).join(',\n') : '  { 0, 0, 0u, 0u }'}\n};\n`;
 
 export interface NetInput { program: Program; manifestName: string; manifestSha256: string }
 
@@ -136,7 +136,7 @@ function stepParams(s: Step, id: string, out: string[]): string {
     }
     case 'rescale': {
       const p: RescaleParams = s.p;
-      out.push(`static const offramp_rescale_t ${id} = { ${p.n}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, { ${int32(p.mul.mult)}, ${p.mul.shift} } };\n`);
+      out.push(`static const offramp_rescale_t ${id} = { ${p.n}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, ${mulInitializer(p.mul)} };\n`);
       return `&${id}`;
     }
     case 'copy': return '0';

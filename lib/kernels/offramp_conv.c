@@ -24,9 +24,14 @@ static void gather(const window_t *w, const int8_t *x, int32_t cin, int32_t iy0,
   if (iy0 >= 0 && iy0 + (k_h - 1) * dil_h < in_h && ix0 >= 0 && ix0 + (k_w - 1) * dil_w < in_w) {
     for (c = 0; c < cin; c++) {
       const int8_t *row = x + c * hw + iy0 * in_w + ix0;
-      for (ky = 0; ky < k_h; ky++, row += dil_h * in_w) {
-        if (dil_w == 1) for (kx = 0; kx < k_w; kx++) *col++ = row[kx];
-        else for (kx = 0; kx < k_w; kx++) *col++ = row[kx * dil_w];
+      if (k_w == 3 && dil_w == 1) {
+        /* the common 3-wide window, unrolled: a row costs its loads and stores */
+        for (ky = 0; ky < k_h; ky++, row += dil_h * in_w, col += 3) { col[0] = row[0]; col[1] = row[1]; col[2] = row[2]; }
+      } else {
+        for (ky = 0; ky < k_h; ky++, row += dil_h * in_w) {
+          if (dil_w == 1) for (kx = 0; kx < k_w; kx++) *col++ = row[kx];
+          else for (kx = 0; kx < k_w; kx++) *col++ = row[kx * dil_w];
+        }
       }
     }
   } else {

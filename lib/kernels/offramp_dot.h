@@ -22,19 +22,24 @@ extern int16_t *const offramp_conv_scratch;
 
 static inline uint32_t offramp_load32(const void *p) { uint32_t v; memcpy(&v, p, 4); return v; }
 
-/* acc = { a.p, b.p, a.q, b.q } */
+/* acc = { a.p, b.p, a.q, b.q }; b = a + n and q = p + n, as offramp_conv lays rows and columns out
+ * (one base pointer each, so the four accumulators, two weight words and their halves fit in the
+ * core's registers). */
 static inline void offramp_dot_2x2(const int8_t *a, const int8_t *b, const int16_t *p, const int16_t *q, int32_t n, int32_t acc[4]) {
-  int32_t ap = 0, bp = 0, aq = 0, bq = 0, k;
-  for (k = 0; k < n; k += 4) {
-    const uint32_t wa = offramp_load32(a + k), wb = offramp_load32(b + k);
-    const int32_t a02 = __sxtb16((int32_t)wa), a13 = __sxtb16((int32_t)(wa >> 8));
-    const int32_t b02 = __sxtb16((int32_t)wb), b13 = __sxtb16((int32_t)(wb >> 8));
-    const int32_t p02 = (int32_t)offramp_load32(p + k), p13 = (int32_t)offramp_load32(p + k + 2);
-    const int32_t q02 = (int32_t)offramp_load32(q + k), q13 = (int32_t)offramp_load32(q + k + 2);
-    ap = __smlad(a02, p02, ap); ap = __smlad(a13, p13, ap);
-    bp = __smlad(b02, p02, bp); bp = __smlad(b13, p13, bp);
-    aq = __smlad(a02, q02, aq); aq = __smlad(a13, q13, aq);
-    bq = __smlad(b02, q02, bq); bq = __smlad(b13, q13, bq);
+  int32_t ap = 0, bp = 0, aq = 0, bq = 0;
+  const int8_t *end = a + n;
+  const int32_t wb = (int32_t)(b - a), cq = (int32_t)(q - p);
+  while (a < end) {
+    const uint32_t wa0 = offramp_load32(a), wb0 = offramp_load32(a + wb);
+    const int32_t p02 = (int32_t)offramp_load32(p), p13 = (int32_t)offramp_load32(p + 2);
+    const int32_t q02 = (int32_t)offramp_load32(p + cq), q13 = (int32_t)offramp_load32(p + cq + 2);
+    int32_t w01 = __sxtb16((int32_t)wa0), w23 = __sxtb16((int32_t)(wa0 >> 8));
+    ap = __smlad(w01, p02, ap); ap = __smlad(w23, p13, ap);
+    aq = __smlad(w01, q02, aq); aq = __smlad(w23, q13, aq);
+    w01 = __sxtb16((int32_t)wb0); w23 = __sxtb16((int32_t)(wb0 >> 8));
+    bp = __smlad(w01, p02, bp); bp = __smlad(w23, p13, bp);
+    bq = __smlad(w01, q02, bq); bq = __smlad(w23, q13, bq);
+    a += 4; p += 4;
   }
   acc[0] = ap; acc[1] = bp; acc[2] = aq; acc[3] = bq;
 }

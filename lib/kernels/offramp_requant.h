@@ -16,8 +16,10 @@
 #endif
 
 typedef struct {
-  int32_t mult;   /* Q31, 0 for a multiplier that rounds every accumulator to 0 */
-  int32_t shift;  /* M = mult * 2^(-31 - shift); -15 ... 31 */
+  int32_t mult;        /* Q31, 0 for a multiplier that rounds every accumulator to 0 */
+  int32_t shift;       /* M = mult * 2^(-31 - shift); -15 ... 31 */
+  uint32_t nudge_lo;   /* for shift >= 1: 2^(30 + shift) - 1, the rounding's addend, as two words */
+  uint32_t nudge_hi;   /* (the tables hold it, so no output pays for the 64-bit shift that makes it) */
 } offramp_mul_t;
 
 /* round(acc * mult / 2^(31 + shift)) with ties to even, saturated to int32: the exact product, rounded
@@ -34,9 +36,7 @@ static inline int32_t offramp_requantize(int32_t acc, offramp_mul_t m) {
     const int32_t s = m.shift - 1;
     const int64_t prod = (int64_t)acc * (int64_t)m.mult;
     const uint32_t b = (uint32_t)(((int32_t)(prod >> 32) >> s) & 1);
-    const uint32_t nl = s ? 0xffffffffu : 0x7fffffffu;           /* 2^(e-1) - 1, low word */
-    const uint32_t nh = s ? (UINT32_C(1) << (s - 1)) - 1u : 0u;  /* and high word */
-    const uint64_t u = (uint64_t)prod + ((uint64_t)nh << 32 | nl) + b;
+    const uint64_t u = (uint64_t)prod + ((uint64_t)m.nudge_hi << 32 | m.nudge_lo) + b;
     return (int32_t)(uint32_t)(u >> 32) >> s;
   }
   if (m.mult == 0) return 0;
