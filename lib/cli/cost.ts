@@ -14,11 +14,12 @@ import { usageError } from '../errors.js';
 import { collect, emit, nameList, parseBatch, parseDims, OverBudget, modelAction } from './common.js';
 import { modelReads, refuseInputsAsOutputs } from './guard.js';
 import { targetFile, targetOptions } from './target-options.js';
+import { costMeasured } from './cost-measured.js';
 
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
   target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string; int8MacsPerCycle?: string; int8?: boolean;
-  reorder?: boolean; saveReordered?: string;
+  reorder?: boolean; saveReordered?: string; measured?: string;
 }
 
 export function costCommand(program: Command): void {
@@ -34,7 +35,9 @@ export function costCommand(program: Command): void {
     .option('-o, --out <file>', 'write the report to a file instead of stdout')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
+    .option('--measured <file>', 'offramp measure --json output for the quantized folder given: latency, flash and RAM as measured, beside the planned figures (the target defaults to the measured core\'s profile)')
     .action(modelAction(async (file: string, o: CostFlags) => {
+      if (o.measured !== undefined) return costMeasured(file, { ...o, measured: o.measured }, resolveTarget(o));
       // Target options are checked before the model is read, so a typo fails fast.
       const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const target = resolveTarget(o);
