@@ -59,19 +59,21 @@ function quantized(tmp: string, name: Network['name'], model: string, graft: str
   return { name, model: path.relative(ROOT, model), dir: f('q'), data: f('rows.npy') };
 }
 
-/** The demo model (invented scenario, scripts/demo-data.ts) and the Fashion-MNIST CNN fixture, quantized in `tmp`. */
-export function prepareNetworks(tmp: string): Network[] {
-  const demo = (n: number, seed: number) => samples(n, seed);
-  const dfit = demo(2000, 101), dcal = demo(500, 202), drows = demo(ROWS, 303);
-  const dshape = (n: number) => [n, 1, BINS, FRAMES];
-  const out = [quantized(tmp, 'fan-monitor', path.join(ROOT, 'models-demo', 'fan-monitor.onnx'), ['--at', '30%,60%'],
-    [dfit.x, dfit.y, dshape(2000)], [dcal.x, dshape(500)], [drows.x, dshape(ROWS)])];
+/** The demo model (invented scenario, scripts/demo-data.ts), quantized in `tmp`. */
+export function demoNetwork(tmp: string): Network {
+  const fit = samples(2000, 101), cal = samples(500, 202), rows = samples(ROWS, 303);
+  const shape = (n: number) => [n, 1, BINS, FRAMES];
+  return quantized(tmp, 'fan-monitor', path.join(ROOT, 'models-demo', 'fan-monitor.onnx'), ['--at', '30%,60%'],
+    [fit.x, fit.y, shape(2000)], [cal.x, shape(500)], [rows.x, shape(ROWS)]);
+}
+
+/** The Fashion-MNIST CNN fixture (Debian's dataset-fashion-mnist), quantized in `tmp`. */
+export function fmnistNetwork(tmp: string): Network {
   if (!haveFmnist) throw new Error('Fashion-MNIST is missing: apt-get install dataset-fashion-mnist');
   const per = 28 * 28, train = loadFmnist('train', 2500), test = loadFmnist('test', ROWS);
-  const fshape = (n: number) => [n, 1, 28, 28];
-  out.push(quantized(tmp, 'fmnist-cnn', path.join(ROOT, 'test', 'fixtures', 'fmnist', 'cnn.onnx'), ['--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0'],
-    [train.images.slice(0, 2000 * per), train.labels.subarray(0, 2000), fshape(2000)], [train.images.slice(2000 * per, 2500 * per), fshape(500)], [test.images.slice(0, ROWS * per), fshape(ROWS)]));
-  return out;
+  const shape = (n: number) => [n, 1, 28, 28];
+  return quantized(tmp, 'fmnist-cnn', path.join(ROOT, 'test', 'fixtures', 'fmnist', 'cnn.onnx'), ['--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0'],
+    [train.images.slice(0, 2000 * per), train.labels.subarray(0, 2000), shape(2000)], [train.images.slice(2000 * per, 2500 * per), shape(500)], [test.images.slice(0, ROWS * per), shape(ROWS)]);
 }
 
 /** The whole int8 network of `net` on `core`: Σ stage instructions over Σ stage MACs. */
@@ -115,7 +117,7 @@ async function main(): Promise<void> {
   if (!status.ready) throw new Error(status.message);
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-rates-'));
   try {
-    const nets = prepareNetworks(tmp);
+    const nets = [demoNetwork(tmp), fmnistNetwork(tmp)];
     const int8: NetworkRate[] = [], float32: { core: MeasuredCore; macs: number; instructions: number }[] = [];
     for (const core of CORES) {
       for (const n of nets) {
