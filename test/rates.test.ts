@@ -141,6 +141,17 @@ describe.skipIf(!EMU)('measured again on the emulated m4f', () => {
       expect(text).toMatch(/latency\s+projected: MACs \/ the MAC rate measured/);
     });
 
+    it('judges flash and RAM as measured (exit 3 a byte short), at the clock given over the measured core\'s profile', () => {
+      const need = m.ram.libraryBytes + m.ram.stackPeakBytes;
+      const over = offramp(['cost', dir, '--measured', f('m.json'), '--ram', String(need - 1)]);
+      expect(over.code).toBe(3);
+      expect(over.stderr).toBe(`offramp: over budget as measured on m4f: RAM needs ${need} B of ${need - 1} B\n`);
+      const r = offramp(['cost', dir, '--measured', f('m.json'), '--ram', String(need), '--clock-mhz', '120', '--json']);
+      expect(r.code).toBe(0);
+      const last = JSON.parse(r.stdout).measured.stages.at(-1);
+      expect(last.cumulativeNs).toBe(Math.ceil((Math.ceil((last.cumulativeInstructions * 13) / 10) * 1000) / 120));
+    });
+
     it('refuses a measurement of other stage files in one line (exit 1), and another core\'s profile (exit 2)', () => {
       // the same split quantized on other calibration rows: other int8 files
       const q = offramp(['quantize', f('fan-monitor-split'), '--data', f('fan-monitor-fit.npy'), '-o', f('other')]);

@@ -8,7 +8,7 @@ import { loadModel } from '../graph/io.js';
 import { completeShapes } from '../cost/analyze.js';
 import { costModel } from '../cost/report.js';
 import { checkBudget, stageFootprints, type Budget, type StageFootprint } from '../chip/budget.js';
-import { BUILTIN_TARGETS, type Target } from '../chip/target.js';
+import { BUILTIN_TARGETS, resolveTarget, type TargetOptions } from '../chip/target.js';
 import { measuredBudget, type MeasuredBudget } from '../chip/measured.js';
 import { budgetMarkdown, budgetText, duration } from '../report/budget.js';
 import { bytes, mdTable, si, table, toJson } from '../report/units.js';
@@ -25,8 +25,8 @@ import { targetFile } from './target-options.js';
 
 export const COST_MEASURED_SCHEMA = 'offramp-cost-measured/1';
 
-export interface MeasuredFlags {
-  measured: string; json?: boolean; md?: boolean; out?: string; target?: string;
+export interface MeasuredFlags extends TargetOptions {
+  measured: string; json?: boolean; md?: boolean; out?: string;
   cuts?: string; reorder?: boolean; saveReordered?: string; dim: string[]; int8?: boolean;
 }
 
@@ -91,14 +91,16 @@ async function plannedStages(manifest: Manifest, file: string): Promise<StageFoo
   return out;
 }
 
-export async function costMeasured(where: string, o: MeasuredFlags, given: Target | undefined): Promise<void> {
+export async function costMeasured(where: string, o: MeasuredFlags): Promise<void> {
   for (const [set, name] of [[o.cuts, '--cuts'], [o.reorder, '--reorder'], [o.saveReordered, '--save-reordered'], [o.dim.length ? 1 : undefined, '--dim'], [o.int8, '--int8']] as const)
     if (set !== undefined && set !== false) throw usageError(`${name} does not apply with --measured: the measured folder's stage files are costed as written, in int8`);
+  resolveTarget({ ...o, target: o.target ?? 'm4f' }); // a typo in a target option fails before any file is read
   const m = readMeasurement(o.measured);
-  const builtin = given?.name && Object.hasOwn(BUILTIN_TARGETS, given.name) && o.target === given.name;
-  if (builtin && given!.name !== m.core) throw usageError(`--target ${given!.name}: ${o.measured} was measured on ${m.core}, whose instructions and cycles per instruction these are (give --target ${m.core}, or a profile file of your ${m.core} part)`);
-  const target = given ?? BUILTIN_TARGETS[m.core];
-  if (!target) throw new OfframpError('data', `core '${m.core}' has no built-in profile: give --target`, o.measured);
+  if (o.target !== undefined && Object.hasOwn(BUILTIN_TARGETS, o.target) && o.target !== m.core)
+    throw usageError(`--target ${o.target}: ${o.measured} was measured on ${m.core}, whose instructions and cycles per instruction these are (give --target ${m.core}, or a profile file of your ${m.core} part)`);
+  // The measured core's profile is the default, and the base the other target options override.
+  if (o.target === undefined && !Object.hasOwn(BUILTIN_TARGETS, m.core)) throw new OfframpError('data', `core '${m.core}' has no built-in profile`, o.measured);
+  const target = resolveTarget({ ...o, target: o.target ?? m.core })!;
   const chainFile = measuredChain(where);
   const { manifest, bytes } = readManifestFile(chainFile);
   refuseInputsAsOutputs([...splitReads(chainFile, manifest), { file: o.measured, role: 'measurement' }, { file: targetFile(o.target), role: 'target profile' }], [o.out]);

@@ -37,7 +37,7 @@ export function costCommand(program: Command): void {
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
     .option('--measured <file>', 'offramp measure --json output for the quantized folder given: latency, flash and RAM as measured, beside the planned figures (the target defaults to the measured core\'s profile)')
     .action(modelAction(async (file: string, o: CostFlags) => {
-      if (o.measured !== undefined) return costMeasured(file, { ...o, measured: o.measured }, resolveTarget(o));
+      if (o.measured !== undefined) return costMeasured(file, { ...o, measured: o.measured });
       // Target options are checked before the model is read, so a typo fails fast.
       const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const target = resolveTarget(o);
