@@ -164,6 +164,11 @@ describe.skipIf(!EMU)('measured again on the emulated m4f', () => {
       expect(r.stderr).toContain(f('m.json'));
       expect(r.stderr).toMatch(/measured on other stage files than the folder given \(stage 0: 'stage-0\.[0-9a-f]{16}\.onnx' measured/);
       expect(fs.readFileSync(f('m.json'))).toEqual(before);
+      // a manifest rewritten since (another policy) over the same stage files: accepted, and said
+      fs.writeFileSync(f('m2.json'), JSON.stringify({ ...JSON.parse(before.toString('utf8')), manifestSha256: '0'.repeat(64) }));
+      const same = offramp(['cost', dir, '--measured', f('m2.json')]);
+      expect(same.code).toBe(0);
+      expect(same.stdout).toContain('the manifest changed since the measurement (same stage files)');
       const w = offramp(['cost', dir, '--measured', f('m.json'), '--target', 'm7']);
       expect(w.code).toBe(2);
       expect(w.stderr).toMatch(/--target m7: .* was measured on m4f/);
