@@ -63,6 +63,8 @@ export function cyclesOfInstructions(instructions: number, cyclesPerInstruction:
 /** The measured budget on `t` (its clock and limits); `planned` puts the budget's own flash and RAM beside. */
 export function measuredBudget(m: MeasuredFigures, t: Target, planned?: Budget): MeasuredBudget {
   if (!m || !Array.isArray(m.stages) || !m.stages.length) throw bad('stages: the measured stages, at least one');
+  if (!Array.isArray(m.decisions) || !Array.isArray(m.exitStage)) throw bad('decisions, exitStage: arrays (the measured decisions; the stage of each exit)');
+  if (!t || typeof t.clockMhz?.num !== 'bigint' || typeof t.flashBytes !== 'bigint' || typeof t.ramBytes !== 'bigint') throw bad('target: a Target (resolveTarget)');
   if (!(m.cyclesPerInstruction > 0) || !/^\d+(\.\d+)?$/.test(String(m.cyclesPerInstruction))) throw bad(`cyclesPerInstruction: ${m.cyclesPerInstruction} is not a positive plain decimal`);
   const decision = new Map(m.decisions.map((d) => [d.exit, d.meanInstructions]));
   let cum = 0;
