@@ -84,6 +84,24 @@ describe('the measured rates file', () => {
   });
 });
 
+describe('cost\'s budget text names each latency\'s basis', () => {
+  const model = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
+  it('projected on m4f, from memory on m0plus and for a rate given, in the table, the words under it and the JSON', () => {
+    const m4 = offramp(['cost', model, '--no-nodes', '--target', 'm4f']);
+    expect(m4.code).toBe(0);
+    expect(m4.stdout).toMatch(/m4f: .* — MAC rates measured on the emulated core, cycles per instruction estimated; flash, RAM and clock ROUGH FIGURES, FROM MEMORY/);
+    expect(m4.stdout).toMatch(/latency is\s+verdict/);
+    expect(m4.stdout).toMatch(/\bprojected\s+fits/);
+    expect(m4.stdout).toMatch(/\nlatency    projected: MACs \/ the MAC rate measured on the emulated core/);
+    const m0 = offramp(['cost', model, '--no-nodes', '--target', 'm0plus']);
+    expect(m0.stdout).toMatch(/\bfrom memory\s+(fits|OVER)/);
+    expect(m0.stdout).not.toMatch(/\bprojected\s+(fits|OVER)/);
+    const given = JSON.parse(offramp(['cost', model, '--json', '--target', 'm4f', '--macs-per-cycle', '0.5']).stdout).budget;
+    expect(given.target.rateBasis).toEqual({ float: 'from memory', int8: 'measured' });
+    expect([given.stages[0].stored.latencyBasis, given.stages[0].int8.latencyBasis]).toEqual(['from memory', 'projected from the measured rate']);
+  });
+});
+
 describe.skipIf(!EMU)('measured again on the emulated m4f', () => {
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-rates-test-'));
   const f = (n: string) => path.join(tmp, n);
