@@ -32,6 +32,7 @@ import { commitFolder, hashedName, sha256 } from '../split/commit.js';
 import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
 import { labelsOfParity, rowsOfParity } from './rows.js';
 import { buildInt8, type Int8Build } from './int8.js';
+import { measureDevice, type DeviceReport } from '../measure/device.js';
 
 export interface BuildOptions {
   /** calibration inputs (.npy or a TensorProto folder); even rows fit heads, odd rows tune */
@@ -58,6 +59,8 @@ export interface BuildOptions {
   reorder?: boolean;
   /** samples the staged chain is checked on against the model (default 16) */
   checkSamples?: number;
+  /** with int8: measure the int8 firmware on an emulated core, on the first `rows` rows of `data` in file order */
+  measure?: { core: string; rows: number };
   progress?: (step: string, detail: string) => void;
   /** files that describe the build (the reports), committed with it */
   describe?: (r: BuildResult) => DescribingFile[];
@@ -83,6 +86,8 @@ export interface BuildResult {
   manifestSha256: string;
   /** with --int8: the quantized split, its policy and figures (budget is then the int8 files' as stored) */
   int8?: Int8Build;
+  /** with measure: the int8 firmware measured on the emulated core */
+  device?: DeviceReport;
 }
 
 /** the grafted model in DIR is model.<hash>.onnx (named by its content, as stage files are) */
@@ -225,6 +230,13 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
     // The firmware decides on the chain that runs: the int8 one.
     writeC(int8.dir, path.join(o.out, FIRMWARE_DIR));
   }
+  let device: DeviceReport | undefined;
+  if (o.measure) {
+    if (!int8) throw new OfframpError('usage', 'measuring runs the int8 firmware: give --int8 with --measure');
+    say('measure', `the int8 firmware on an emulated ${o.measure.core}, ${o.measure.rows} rows`);
+    const clock = o.target ? Number(o.target.clockMhz.num) / Number(o.target.clockMhz.den) : undefined;
+    device = await measureDevice({ dir: int8.dir, data: o.data, labels: o.labels, core: o.measure.core, rows: o.measure.rows, clockMhz: clock });
+  }
 
   say('budget', o.target ? o.target.name ?? 'target' : 'no target given');
   const staged = stagedOrder(g, split.stages);
@@ -234,6 +246,6 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   return {
     dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written, ...(int8?.files ?? [])],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
-    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }),
+    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }), ...(device && { device }),
   };
 }
