@@ -4,7 +4,7 @@ import { OfframpError } from '../errors.js';
 import { writeC } from '../emit/write.js';
 import { emit } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
-import { readManifestFile } from '../split/read.js';
+import { chooseChain, readManifestFile } from '../split/read.js';
 import { checkOutDir, readRegular } from '../util/fsx.js';
 import { parseJsonText } from '../util/json.js';
 
@@ -24,13 +24,16 @@ export function emitCCommand(program: Command): void {
     .argument('<dir>', 'split folder (or its manifest.json)')
     .requiredOption('-o, --out <dir>', 'folder for the C files')
     .option('--policy <json|file>', "policy JSON (inline or a file); required while the manifest holds none")
-    .action((dir: string, o: { out: string; policy?: string }) => {
+    .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
+    .action((where: string, o: { out: string; policy?: string; float?: boolean }) => {
+      const choice = chooseChain(where, { float: o.float });
+      const dir = choice.file;
       const { manifest } = readManifestFile(dir);
       const policyFile = o.policy !== undefined && !o.policy.trimStart().startsWith('{') ? o.policy : undefined;
       refuseInputsAsOutputs([...splitReads(dir, manifest), { file: policyFile, role: 'policy' }], [], [{ dir: o.out, names: /^offramp_policy\.[ch]$/ }]);
       checkOutDir(o.out);
       const r = writeC(dir, o.out, o.policy !== undefined ? { policy: readPolicy(o.policy) } : {});
       const t = r.table;
-      emit(`wrote ${r.written.join(', ')}\n${t.stages.length} stages, ${t.exits} exits, ${t.classes} classes; policy from ${r.policyFrom}\n`);
+      emit(`${choice.line}\nwrote ${r.written.join(', ')}\n${t.stages.length} stages, ${t.exits} exits, ${t.classes} classes; policy from ${r.policyFrom}\n`);
     });
 }

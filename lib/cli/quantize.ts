@@ -6,6 +6,12 @@ import { toJson, table, bytes as fmtBytes } from '../report/units.js';
 import { usageError } from '../errors.js';
 import { emit } from './common.js';
 import { progressBar } from './progress.js';
+import { refuseInputsAsOutputs, splitReads } from './guard.js';
+import { readManifestFile } from '../split/read.js';
+import path from 'node:path';
+
+/** What a quantize commit writes or removes in QDIR (split/commit.ts): none of it may be an input. */
+const COMMITTED = /^(stage-\d+(\.[0-9a-f]{16})?\.onnx|manifest\.json|report\.(json|html)|int8)$/;
 
 export function quantizeCommand(program: Command): void {
   program.command('quantize')
@@ -23,6 +29,11 @@ export function quantizeCommand(program: Command): void {
       if (!(pct > 50 && pct <= 100)) throw usageError(`--percentile takes a number above 50 and at most 100, not '${o.percentile}'`);
       const samples = o.samples === undefined ? undefined : Number(o.samples);
       if (samples !== undefined && !(Number.isInteger(samples) && samples > 0)) throw usageError(`--samples takes a positive whole number, not '${o.samples}'`);
+      const { manifest } = readManifestFile(dir);
+      refuseInputsAsOutputs([...splitReads(dir, manifest), { file: o.data, role: 'data' }], [], [
+        { dir: o.out, names: COMMITTED }, { dir: path.join(o.out, 'int8'), names: COMMITTED },
+        { dir: path.join(o.out, 'firmware'), names: /^offramp_policy\.[ch]$/ },
+      ]);
       const bar = progressBar(!o.json && !!process.stderr.isTTY);
       const r = await quantizeSplit(dir, {
         data: o.data, out: o.out, calibration: o.calibration as CalibrationMethod, percentile: pct, samples,

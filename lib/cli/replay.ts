@@ -11,6 +11,7 @@ import { OfframpError } from '../errors.js';
 import { emit } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
 import { readDataHeader } from '../data/npy.js';
+import { chooseChain } from '../split/read.js';
 import { readRegular } from '../util/fsx.js';
 import { parseJsonText } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
@@ -54,7 +55,10 @@ export function replayCommand(program: Command): void {
     .option('--policy <json|file>', 'policy as JSON (default: the one tune wrote into the manifest)')
     .option('--csv <file>', 'write one CSV row per frame')
     .option('--json', 'machine-readable result (schema offramp-replay/1)')
-    .action(async (dir: string, o: { data: string; labels?: string; recordings?: string; policy?: string; csv?: string; json?: boolean }) => {
+    .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
+    .action(async (where: string, o: { data: string; labels?: string; recordings?: string; policy?: string; csv?: string; json?: boolean; float?: boolean }) => {
+      const choice = chooseChain(where, { float: o.float });
+      const dir = choice.file;
       const chain = await loadChain(dir);
       try {
         const policyFile = o.policy !== undefined && !o.policy.trim().startsWith('{') ? o.policy : undefined;
@@ -78,7 +82,7 @@ export function replayCommand(program: Command): void {
         }
         if (o.csv) writeAtomic(o.csv, replayCsv(r));
         // per-frame rows go to --csv: a JSON of every frame would dwarf the summary scripts read
-        emit(o.json ? toJson({ schema: 'offramp-replay/1', data: o.data, policy: r.policy, exits: r.exits, summary: r.summary }) + '\n' : replayText(r));
+        emit(o.json ? toJson({ schema: 'offramp-replay/1', chain: { manifest: choice.file, precision: choice.precision }, data: o.data, policy: r.policy, exits: r.exits, summary: r.summary }) + '\n' : `${choice.line}\n${replayText(r)}`);
       } finally { await chain.release(); }
     });
 }

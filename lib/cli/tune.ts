@@ -37,7 +37,8 @@ export function tuneCommand(program: Command): void {
     .option('--report <file>', 'write a self-contained HTML report')
     .option('--json', 'machine-readable result (schema offramp-tune/2)')
     .option('--no-write', 'leave the manifest as it is')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string }) => {
+    .option('--replace', 'write the tuned policy even over a certified one when this tuning certified nothing')
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
       const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
@@ -52,7 +53,8 @@ export function tuneCommand(program: Command): void {
       if (o.unlabelled && o.stream) throw usageError('--unlabelled tightens per-frame bounds; a stream is certified on its scenes: give a longer recording (without --labels, the full model\'s answers serve as labels)');
       const chain = await loadChain(dir);
       try {
-        refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.report]);
+        refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' },
+          { file: o.unlabelled, role: 'unlabelled data' }, { file: o.segments, role: 'segments' }], [o.report]);
         const layout0 = chainLayout(chain.manifest, chain.dir);
         const total = readDataHeader(o.data).rows;
         const labels = o.labels ? readLabels(o.labels, { rows: total, of: o.data, classes: layout0.classes }) : undefined;
@@ -69,8 +71,15 @@ export function tuneCommand(program: Command): void {
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
           return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments });
         });
-        let written: string | undefined;
-        if (o.write) {
+        let written: string | undefined, manifestNote: string | undefined;
+        // A certified policy is never replaced by one that certifies nothing (the full model, or an
+        // uncertified setting) unless asked: firmware emitted from it would lose the promise.
+        const before = chain.manifest.policy;
+        const demotes = before?.guarantee?.certified === true && result.guarantee?.certified !== true;
+        if (o.write && demotes && !o.replace) {
+          manifestNote = `manifest not changed: ${chain.dir}/manifest.json keeps its certified ${before!.rule && typeof before!.rule === 'object' ? `${(before!.rule as { kind?: string }).kind} ` : ''}policy ` +
+            `(drop ≤ ${before!.guarantee!.maxDrop} pp at ${+(before!.guarantee!.confidence * 100).toFixed(4)} % confidence), since this tuning certified nothing; add --replace to write this one over it`;
+        } else if (o.write) {
           const c = result.chosen, f = result.full;
           // As a writer of the folder: a split or build writing it now is waited out by refusal, never interleaved.
           withFolder(chain.dir, () => writeManifestPolicy(chain.dir, {
@@ -79,9 +88,10 @@ export function tuneCommand(program: Command): void {
             ...(result.guarantee ? { guarantee: result.guarantee } : {}),
           }, chain.manifest.stages));
           written = `${chain.dir}/manifest.json`;
+          if (demotes) manifestNote = `replaced the certified ${(before!.rule as { kind?: string }).kind} policy that was there (--replace)`;
         }
         const report: TuneReport = {
-          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written,
+          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, manifestNote,
           stages: chain.manifest.stages.map((s) => ({ index: s.index, macs: s.macs, exits: s.exits })),
         };
         if (o.report) writeAtomic(o.report, tuneHtml(report));

@@ -21,11 +21,11 @@ import { fileArena, MANIFEST_FILE, type Manifest, type ManifestStage, type Manif
 import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
-import { hashedName, removeDescribing, sha256, sweepAll } from '../split/commit.js';
+import { hashedName, NESTED, ownedBefore, removeDescribing, sha256, sweepAll } from '../split/commit.js';
 import { OfframpError } from '../errors.js';
 import { foldBatchNorm } from './fold-bn.js';
 import { activationPlan, QDQ_OPS, toQdq, type ActivationPlan, type ActParams } from './qdq.js';
-import { chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type CalibrationMethod } from './calibrate.js';
+import { CALIBRATION_METHODS, chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type CalibrationMethod } from './calibrate.js';
 import { activationParams } from './linear.js';
 
 /**
@@ -139,10 +139,37 @@ async function pass(sessions: Session[], stages: Stage[], data: string, input: M
  * (the commit point, split/commit.ts), then stage files it does not name are removed.
  */
 export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<QuantizeResult> {
+  checkQuantizeOptions(o);
   const { manifest: src, file: srcFile } = readManifest(dir);
   const final = path.resolve(o.out);
-  if (final === path.resolve(path.dirname(srcFile))) throw new OfframpError('usage', 'the output folder is the input split: give another -o');
+  refuseOverInput(path.dirname(srcFile), final);
   return o.inScratch ? quantizeInto(src, srcFile, o) : withFolder(final, () => quantizeInto(src, srcFile, o));
+}
+
+/** The options, checked as the CLI checks them: a wrong one is an error naming it, never a manifest recording it. */
+function checkQuantizeOptions(o: QuantizeOptions): void {
+  const bad = (opt: string, what: string, v: unknown) => new OfframpError('usage', `${opt} takes ${what}, not ${JSON.stringify(v) ?? String(v)}`);
+  if (!o || typeof o !== 'object') throw new OfframpError('usage', 'quantizeSplit needs options { data, out, … }');
+  if (typeof o.data !== 'string' || !o.data) throw bad('data', 'the .npy calibration file', o.data);
+  if (typeof o.out !== 'string' || !o.out) throw bad('out', 'the output folder', o.out);
+  if (o.calibration !== undefined && !CALIBRATION_METHODS.includes(o.calibration)) throw bad('calibration', CALIBRATION_METHODS.join(', '), o.calibration);
+  if (o.percentile !== undefined && !(typeof o.percentile === 'number' && o.percentile > 50 && o.percentile <= 100)) throw bad('percentile', 'a number above 50 and at most 100', o.percentile);
+  if (o.samples !== undefined && !(Number.isSafeInteger(o.samples) && o.samples > 0)) throw bad('samples', 'a positive whole number', o.samples);
+  if (o.parity !== undefined && o.parity !== 0 && o.parity !== 1) throw bad('parity', '0 or 1', o.parity);
+}
+
+const sameDir = (a: string, b: string) => {
+  try { const x = fs.statSync(a), y = fs.statSync(b); return x.dev === y.dev && x.ino === y.ino; } catch { return false; }
+};
+
+/**
+ * The output folder's commit removes what describes its manifest (its nested int8/manifest.json among
+ * them) and sweeps the content files of it and its nested folders: the input split must be none of
+ * them, under whatever path or link names it (compared by device and inode).
+ */
+function refuseOverInput(srcDir: string, out: string): void {
+  if (sameDir(srcDir, out)) throw new OfframpError('usage', `${out}: refusing to write over an input (the split being quantized)`);
+  for (const n of NESTED) if (sameDir(srcDir, path.join(out, n))) throw new OfframpError('usage', `${out}: refusing to write over an input (the split being quantized is its ${n}/ folder, which the commit replaces)`);
 }
 
 async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions): Promise<QuantizeResult> {
@@ -253,10 +280,11 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
     delete manifest.policy;
     // The commit, as a split makes it: what described the old manifest goes, the manifest comes in,
     // stage files it does not name go last.
+    const owned = ownedBefore(final, MANIFEST_FILE);
     removeDescribing(final);
     writeAtomic(path.join(final, MANIFEST_FILE), toJson(manifest) + '\n');
     added.length = 0;
-    sweepAll(final, manifest, MANIFEST_FILE, [sourceFile]);
+    sweepAll(final, manifest, MANIFEST_FILE, [sourceFile, o.data], owned);
     const files = [...entries.map((e) => e.file), MANIFEST_FILE];
     return { dir: o.out, manifest, files: files.map((f) => path.join(o.out, f)), folded, weights, biases, samples };
   } finally {

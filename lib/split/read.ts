@@ -1,6 +1,7 @@
 // Reading a manifest back: every command that takes a split folder (check, tune,
 // replay, emit-c) reads it here, so a hand-edited or truncated manifest fails as
 // one line naming the file and the field, before anything indexes into it.
+import crypto from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
 import { OfframpError } from '../errors.js';
@@ -59,4 +60,54 @@ export function checkManifest(m: unknown, file: string): Manifest {
     });
   });
   return m as unknown as Manifest;
+}
+
+/** Which chain of a folder a command runs: the one a build deploys unless told otherwise. */
+export interface ChainChoice {
+  /** the manifest file to read */
+  file: string;
+  precision: 'int8' | 'float';
+  /** the first line of the command's output: which chain, and why */
+  line: string;
+}
+
+const NESTED_INT8 = 'int8';
+
+/** The SHA-256 a quantized manifest records of the float split it came from, if it reads as one. */
+function quantizedFrom(file: string): { file: string; sha256: string } | undefined {
+  try {
+    const q = (JSON.parse(fs.readFileSync(file, 'utf8')) as Partial<Manifest>).quantization?.from;
+    return q && typeof q.file === 'string' && typeof q.sha256 === 'string' ? q : undefined;
+  } catch { return undefined; }
+}
+
+const hex = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
+
+/**
+ * On a build folder, the chain that will be deployed: after `build --int8`, DIR/int8 (its manifest
+ * quantized from DIR's as it is now). `float`: the float chain instead (for DIR/int8 given directly,
+ * the float split it was quantized from). Anything else is the folder's own chain.
+ */
+export function chooseChain(where: string, o: { float?: boolean } = {}): ChainChoice {
+  const file = manifestPath(where);
+  const dir = path.dirname(file);
+  const nested = path.join(dir, NESTED_INT8, MANIFEST_FILE);
+  const own = quantizedFrom(file);
+  const floatFlag = '--float for the float chain';
+  let deploys: string | undefined;
+  if (!own && fs.existsSync(nested)) {
+    const from = quantizedFrom(nested);
+    let bytes: Buffer | undefined;
+    try { bytes = fs.readFileSync(file); } catch { bytes = undefined; }
+    if (from && bytes && from.sha256 === hex(bytes)) deploys = nested;
+  }
+  if (o.float) {
+    if (own) {
+      const floatFile = path.resolve(dir, own.file);
+      return { file: floatFile, precision: 'float', line: `chain: ${floatFile} (float, --float: the split ${file} was quantized from)` };
+    }
+    return { file, precision: 'float', line: `chain: ${file} (float, --float${deploys ? `; the build deploys ${nested}` : ''})` };
+  }
+  if (deploys) return { file: deploys, precision: 'int8', line: `chain: ${deploys} (int8, the chain this build deploys; ${floatFlag})` };
+  return own ? { file, precision: 'int8', line: `chain: ${file} (int8; ${floatFlag})` } : { file, precision: 'float', line: `chain: ${file} (float)` };
 }
