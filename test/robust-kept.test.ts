@@ -178,4 +178,21 @@ describe('on a build --int8 folder the deployed chain is the int8 one', () => {
     expect(cf.stdout.split('\n')[0]).toMatch(/^chain: .*b8\/manifest\.json \(float, --float/);
     expect(cf.stdout.split('\n')[1]).toMatch(/^5 samples \(from data\), float rtol/);
   });
+
+  test('cost DIR costs the deployed int8 stage files (no longer "is a folder"); --float the float ones', async () => {
+    const q = manifestOf(path.join(build, 'int8')), fl = manifestOf(build);
+    const r = await cli(['cost', build, '--target', 'm4f']);
+    expect(r.code, r.stderr).toBe(0);
+    const lines = r.stdout.split('\n');
+    expect(lines[0]).toMatch(/^chain: .*int8\/manifest\.json \(int8, the chain this build deploys/);
+    for (const s of q.stages) expect(r.stdout).toContain(s.file);
+    // the arena as the quantized split recorded it for each stage file (its own plan, lib/split/manifest.ts fileArena)
+    const j = JSON.parse((await cli(['cost', path.join(build, 'int8'), '--json'])).stdout);
+    expect(j.chain.precision).toBe('int8');
+    expect(j.stages.map((s: { arenaBytes: number }) => s.arenaBytes)).toEqual(q.stages.map((s) => s.arenaBytes));
+    const f8 = await cli(['cost', build, '--float']);
+    expect(f8.stdout.split('\n')[0]).toMatch(/^chain: .*b8\/manifest\.json \(float, --float/);
+    for (const s of fl.stages) expect(f8.stdout).toContain(s.file);
+    oneLine(await cli(['cost', build, '--cuts', 'x']), 2, /--cuts applies to a model file/);
+  });
 });
