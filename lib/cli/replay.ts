@@ -1,5 +1,6 @@
 // `offramp replay DIR --data X.npy`: the chain frame by frame under the tuned
 // (or a given) policy, with per-frame exits, MACs, results and scenes.
+import path from 'node:path';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
@@ -70,7 +71,11 @@ export function replayCommand(program: Command): void {
         const recordings = o.recordings ? readLabels(o.recordings, { rows, of: o.data, what: 'recording id' }) : undefined;
         const raw = o.policy ? readPolicy(o.policy) : chain.manifest.policy?.rule;
         if (!raw) throw new OfframpError('usage', 'no policy in the manifest: run offramp tune first, or give --policy', chain.dir);
-        const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');
+        let policy: Policy;
+        // A policy error names where the policy came from: the manifest file, or --policy.
+        try { policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'policy'); } catch (e) {
+          throw e instanceof OfframpError && !o.policy ? new OfframpError(e.kind, e.message, path.join(chain.dir, 'manifest.json'), e.where) : e;
+        }
         let r = await replay(chain, layout, policy, o.data, { labels, recordings });
         if (labels) {
           // the full model's answers on the same frames, batched: the drop the promise is about

@@ -5,7 +5,7 @@ import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
 import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
 import { readDataHeader } from '../data/npy.js';
-import { refuseInputsAsOutputs, splitReads } from './guard.js';
+import { refuseInputsAsOutputs, refuseSameRows, splitReads } from './guard.js';
 import { progressBar } from './progress.js';
 import { tune, TUNE_KINDS, type FrameKind } from '../tune/search.js';
 import { tuneStream } from '../tune/stream.js';
@@ -13,7 +13,7 @@ import { STREAM_KINDS, type FramePolicy, type Policy, type StreamPolicy } from '
 import { tuneHtml, tuneJson, tuneText, type TuneReport } from '../report/tune.js';
 import type { TuneResult } from '../tune/search.js';
 import { OfframpError, usageError } from '../errors.js';
-import { emit, inFile, nameList, parseNumber } from './common.js';
+import { CONFIDENCE_RANGE, emit, HELD_OUT_RANGE, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
 
@@ -40,8 +40,8 @@ export function tuneCommand(program: Command): void {
     .option('--replace', 'write the tuned policy even over a certified one when this tuning certified nothing')
     .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
-      const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
-      const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
+      const confidence = parseNumber(o.confidence, '--confidence', CONFIDENCE_RANGE);
+      const heldOut = parseNumber(o.heldOut, '--held-out', HELD_OUT_RANGE);
       const grid = parseNumber(o.grid, '--grid', { int: true, min: 2, max: MAX_GRID });
       const kinds = o.policy === undefined ? [] : nameList(o.policy, '--policy');
       for (const k of kinds) if (![...TUNE_KINDS, ...STREAM_KINDS].includes(k as never)) throw usageError(`unknown policy kind '${k}' (one of ${[...TUNE_KINDS, ...STREAM_KINDS].join(', ')})`);
@@ -51,6 +51,7 @@ export function tuneCommand(program: Command): void {
       if (o.segments && !o.stream) throw usageError('--segments marks the scenes of a stream: add --stream');
       // A stream's evidence is its scenes; rows without order or labels add none to the scene bound.
       if (o.unlabelled && o.stream) throw usageError('--unlabelled tightens per-frame bounds; a stream is certified on its scenes: give a longer recording (without --labels, the full model\'s answers serve as labels)');
+      refuseSameRows(o.data, o.unlabelled);
       const chain = await loadChain(dir);
       try {
         refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' },
