@@ -106,7 +106,7 @@ export async function loadChain(manifestPath: string): Promise<Chain> {
     const out: Record<string, OrtTensor> = {};
     for (const t of manifest.inputs) {
       const v = (inputs as Record<string, unknown>)[t.name];
-      if (v === undefined) throw usage(`run(): no value for the model input '${t.name}'`);
+      if (v === undefined) continue; // the stage that needs it says so (stage K needs 'x', a model input not given)
       if (ArrayBuffer.isView(v) || Array.isArray(v)) {
         const shape = t.shape.map((d, i) => (typeof d === 'number' ? d : i === 0 ? 1 : NaN));
         if (shape.some((d) => !Number.isInteger(d))) throw usage(`run(): input '${t.name}' has a symbolic dim beyond the batch ([${t.shape.join(', ')}]): give a tensor`);
