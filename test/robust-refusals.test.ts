@@ -42,6 +42,9 @@ describe('usage refusals, exit 2, nothing changed', () => {
     ['tune --held-out 1e-300', () => ['tune', f.split, '--data', f.x, '--held-out', '1e-300'], [/--held-out takes a number from 0.05 up to 0.95, not '1e-300': the search and the certification each need/]],
     ['tune --held-out 0.99', () => ['tune', f.split, '--data', f.x, '--held-out', '0.99'], [/--held-out takes a number from 0.05 up to 0.95/]],
     ['tune --confidence 1e-300', () => ['tune', f.split, '--data', f.x, '--confidence', '1e-300'], [/--confidence takes a number from 0.5 below 1, not '1e-300': a promise held with less than even odds promises nothing/]],
+    // fan-monitor's clean cuts (offramp scan): 10 % and 11 % both reach the first block's MaxPool at 7.7 %; 99.9 % reaches /Flatten, before only the classifier's Gemm
+    ['graft --at two shares that land on one cut', () => ['graft', f.model, '--at', '10%,11%', '--data', f.x, '-o', p('g.onnx')], [/--at 10% and 11% both land on the cut '\/b1\/b1\.3\/MaxPool_output_0' \(at 7\.7 % of the MACs\): one exit there, not two/]],
+    ['graft --at a share past every MAC that matters', () => ['graft', f.model, '--at', '99.9%', '--data', f.x, '-o', p('g.onnx')], [/--at 99\.9%: the nearest clean cut, '\/Flatten_output_0', comes after 99\.\d\d % of the MACs: an exit there saves nothing/]],
     ['build --confidence 0.3', () => ['build', f.model, '--data', f.x, '--confidence', '0.3', '-o', p('b')], [/--confidence takes a number from 0.5/]],
   ];
   for (const [name, args, has] of cases) {

@@ -49,7 +49,8 @@ function exitCutsAt(plan: CutPlan, fractions: number[], given: string): string[]
   at.forEach((c, i) => {
     const j = at.findIndex((d) => d.step === c.step);
     if (j < i) throw usageError(`--at ${shares[j]} and ${shares[i]} both land on the cut '${c.tensors[0].name}' (at ${pct(c.macFraction)} of the MACs): one exit there, not two; give shares further apart or --cuts`);
-    if (c.macFraction >= 1 - 1e-9) throw usageError(`--at ${shares[i]}: the nearest clean cut, '${c.tensors[0].name}', comes after every MAC of the model: an exit there saves nothing; give a smaller share or --cuts`);
+    // Past 99.9 % an exit's head costs about what it skips (a linear head is the size of the classifier it replaces).
+    if (c.macFraction > 0.999) throw usageError(`--at ${shares[i]}: the nearest clean cut, '${c.tensors[0].name}', comes after ${(c.macFraction * 100).toFixed(2)} % of the MACs: an exit there saves nothing; give a smaller share or --cuts`);
   });
   return [...at].sort((a, b) => a.step - b.step).map((c) => c.tensors[0].name);
 }
