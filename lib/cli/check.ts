@@ -29,7 +29,9 @@ export function checkCommand(program: Command): void {
       const n = o.samples === undefined ? (o.data.length ? Infinity : 4) : parseNumber(o.samples, '--samples', { int: true, min: 1, max: 1_000_000 });
       const rtol = parseNumber(o.rtol, '--rtol', { min: 0 }), seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
       const minAgreement = parseNumber(o.minAgreement, '--min-agreement', { min: 0, max: 1 });
-      const chain = await loadChain(dir);
+      // A float chain is judged with onnxruntime's fusion off on both sides (runtime/ort.ts Optimization): the same
+      // kernel per node, so a difference is the split's, not a fusion made in the whole model only.
+      const chain = await loadChain(dir, { optimization: choice.precision === 'float' ? 'disabled' : 'all' });
       try {
         const inputs = chain.manifest.inputs;
         let samples;
@@ -61,7 +63,7 @@ export function checkCommand(program: Command): void {
         if (o.json) emit(toJson({ schema: 'offramp-check/1', chain: chainJson, ...r, rtol, source }) + '\n');
         else {
           const rows = r.diffs.map((d) => [d.name, d.dtype, String(d.elements), num(d.maxAbs), num(d.maxRel), String(d.mismatched), d.ok ? 'ok' : `FAIL${d.note ? ` (${d.note})` : ''}`]);
-          emit(`${choice.line}\n${r.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), float rtol ${o.rtol}, integers exact\n\n` +
+          emit(`${choice.line}\n${r.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), float rtol ${o.rtol}, integers exact, graph optimisation off on both sides\n\n` +
             `${table(['output', 'dtype', 'elements', 'max abs', 'max rel', 'over', 'result'], rows)}\n`);
         }
         if (!r.ok) throw new OfframpError('runtime', `the chain differs from ${o.against} beyond tolerance`, dir);

@@ -122,6 +122,9 @@ export interface DescribingFile { name: string; data: string | Uint8Array }
  * manifest as the commit point (split/commit.ts): a failed or stopped build leaves DIR as it
  * was, and DIR is whole at every instant. Files in DIR that a build does not write are left alone.
  */
+/** Relative tolerance of the build's chain check (as `offramp check`'s default --rtol). */
+const CHECK_RTOL = 1e-5;
+
 /** The options as the CLI checks them, so a script gets the same refusals, each naming the option. */
 function checkBuildOptions(file: unknown, o: BuildOptions): BuildOptions & { target?: Target } {
   const bad = (opt: string, what: string, v: unknown) => new OfframpError('usage', `buildExits: option '${opt}' takes ${what}, not ${typeof v === 'bigint' ? `${v}n` : JSON.stringify(v) ?? String(v)}`);
@@ -160,7 +163,15 @@ export async function buildExits(file: string, options: BuildOptions): Promise<B
   const work = scratchOf(final);
   return withFolder(final, async () => {
     fs.rmSync(work, { recursive: true, force: true });
-    const r = await buildInto(file, { ...o, out: work });
+    let r: BuildResult;
+    try { r = await buildInto(file, { ...o, out: work }); } catch (e) {
+      // The scratch folder goes when the build stops: an error naming a file in it would name a file that no longer exists.
+      if (e instanceof OfframpError && e.file && path.resolve(e.file).startsWith(work + path.sep)) {
+        const inside = path.relative(work, path.resolve(e.file)).split(path.sep).join('/');
+        throw new OfframpError(e.kind, e.message, file, [`the build's ${inside}`, e.where].filter(Boolean).join(', '));
+      }
+      throw e;
+    }
     const rel = (f: string) => path.relative(work, f).split(path.sep).join('/');
     const at = (f: string) => path.join(o.out, rel(f));
     const done: BuildResult = {
@@ -242,15 +253,20 @@ async function buildInto(file: string, o: BuildOptions & { target?: Target }): P
   const c = writeC(o.out, path.join(o.out, FIRMWARE_DIR));
 
   say('check', 'staged chain against the grafted model');
-  const chain = await loadChain(o.out);
+  // Fusion off on both sides: the same kernel per node, so what differs is the split, not onnxruntime's rounding.
+  const chain = await loadChain(o.out, { optimization: 'disabled' });
   let check: CheckResult;
   try {
     // TensorProto folders: seeded random inputs of the right shape, as `offramp check` uses without data.
     const n = o.checkSamples ?? 16;
     const samples = fs.statSync(o.data).isDirectory() ? randomSamples(manifest.inputs, n, seed) : npySamples(manifest.inputs, { [manifest.inputs[0].name]: o.data }, n);
-    check = await checkChain(chain, modelFile, samples);
+    check = await checkChain(chain, modelFile, samples, { rtol: CHECK_RTOL });
   } finally { await chain.release(); }
-  if (!check.ok) throw new OfframpError('runtime', `the staged chain does not reproduce the model: ${check.diffs.filter((d) => !d.ok).map((d) => d.name).join(', ')}`, modelFile);
+  if (!check.ok) {
+    const bad = check.diffs.filter((d) => !d.ok);
+    const size = (d: CheckResult['diffs'][number]) => d.note ?? `differs by up to ${d.maxAbs.toExponential(2)} (relative ${d.maxRel.toExponential(2)}, over the tolerance ${CHECK_RTOL.toExponential(0)}) in ${d.mismatched} of ${d.elements} values`;
+    throw new OfframpError('runtime', `the staged chain does not reproduce the grafted model on ${check.samples} samples: ${bad.map((d) => `${d.name} ${size(d)}`).join('; ')}`, file);
+  }
 
   let int8: Int8Build | undefined;
   if (o.int8) {

@@ -5,7 +5,7 @@
 import fs from 'node:fs';
 import path from 'node:path';
 import crypto from 'node:crypto';
-import { openSyncSession, tensorFromData, type OrtTensor, type SyncSession } from '../runtime/ort.js';
+import { openSyncSession, tensorFromData, type Optimization, type OrtTensor, type SyncSession } from '../runtime/ort.js';
 import { chainFor, checkPolicy, decide, frameStart, isStream, type FramePolicy, type Policy } from '../policy/policy.js';
 import { dtypeByName } from '../onnx/dtype.js';
 import type { Manifest } from '../split/manifest.js';
@@ -35,6 +35,8 @@ export interface ChainResult {
 export interface Chain {
   manifest: Manifest;
   dir: string;
+  /** onnxruntime's graph optimisation the stages run at (runtime/ort.ts) */
+  optimization: Optimization;
   run(inputs: Record<string, ChainInput>, options?: RunOptions): Promise<ChainResult>;
   release(): Promise<void>;
 }
@@ -45,7 +47,8 @@ export function readManifest(where: string): { manifest: Manifest; file: string 
   return { manifest, file };
 }
 
-export async function loadChain(manifestPath: string): Promise<Chain> {
+export async function loadChain(manifestPath: string, o: { optimization?: Optimization } = {}): Promise<Chain> {
+  const optimization = o.optimization ?? 'all';
   const { manifest, file } = readManifest(manifestPath);
   const dir = path.dirname(file);
   const sessions: SyncSession[] = [];
@@ -56,7 +59,7 @@ export async function loadChain(manifestPath: string): Promise<Chain> {
       if (!fs.existsSync(stageFile)) throw new OfframpError('io', 'stage file is missing', stageFile);
       bytes = readRegular(stageFile, 'stage');
       if (crypto.createHash('sha256').update(bytes).digest('hex') !== s.sha256) throw new OfframpError('io', 'stage file changed since the split (SHA-256 differs from the manifest)', stageFile);
-      sessions.push(openSyncSession(bytes, stageFile));
+      sessions.push(openSyncSession(bytes, stageFile, optimization));
     }
   } catch (e) { for (const x of sessions) x.release(); throw e; }
   const files = manifest.stages.map((s) => path.join(dir, s.file));
@@ -123,7 +126,7 @@ export async function loadChain(manifestPath: string): Promise<Chain> {
   };
 
   return {
-    manifest, dir,
+    manifest, dir, optimization,
     run: async (inputs, options) => {
       if (options !== undefined && (typeof options !== 'object' || options === null)) throw usage('run(): options must be an object { policy }');
       const p = options?.policy;

@@ -1,0 +1,70 @@
+// Issue 16, "models as exporters write them": a residual network (the ResNet-8 pattern: Conv, Conv, Add of
+// the skip, Relu) split at its blocks. At graph optimisation 'all' onnxruntime fuses the whole model and the
+// stage files differently (the residual Add into a Conv on one side only), one rounding step apart, which an
+// exit head can amplify past check's 1e-5 (ResNet-8: 9.5e-7 at the cut, 7.3e-5 at the exit; build stopped).
+// With fusion off on both sides every node runs the same kernel, so the chain must match bit for bit
+// (onnxruntime as the reference: the same ONNX nodes on the same inputs).
+import { describe, test, expect, beforeAll, afterAll } from 'vitest';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
+import { saveModel } from '../lib/graph/io.js';
+import { writeNpy } from '../lib/data/npy.js';
+import { loadChain } from '../lib/run/chain.js';
+import { checkChain, npySamples } from '../lib/run/check.js';
+import { cli } from './helpers/robust.js';
+
+const FLOAT = 1;
+
+/** Three residual blocks of 3×3 convs (a projection where the width or stride changes), pooled, one Gemm. */
+function residualNet() {
+  const b = modelBuilder({ opset: 13, seed: 7 });
+  let k = 0;
+  const conv = (x: string, cin: number, cout: number, s = 1, size = 3) => b.node('Conv', [x, b.init(`c${k}.w`, FLOAT, [cout, cin, size, size]), b.init(`c${k++}.b`, FLOAT, [cout], { uniform: [-0.1, 0.1] })],
+    { kernel_shape: [size, size], strides: [s, s], pads: size === 3 ? [1, 1, 1, 1] : [0, 0, 0, 0] });
+  let x = b.node('Relu', [conv(b.input('input', FLOAT, [1, 3, 32, 32]), 3, 16)]);
+  let ch = 16;
+  for (const [cout, s] of [[16, 1], [32, 2], [64, 2]]) {
+    const z = conv(b.node('Relu', [conv(x, ch, cout, s)]), cout, cout);
+    const skip = s === 1 && ch === cout ? x : conv(x, ch, cout, s, 1);
+    x = b.node('Relu', [b.node('Add', [z, skip])]);
+    ch = cout;
+  }
+  const g = b.node('Flatten', [b.node('GlobalAveragePool', [x])], { axis: 1 });
+  b.output(b.node('Gemm', [g, b.init('fc.w', FLOAT, [10, 64]), b.init('fc.b', FLOAT, [10])], { transB: 1 }), FLOAT, [1, 10]);
+  return b.build();
+}
+
+let tmp: string, build: string, x: string;
+beforeAll(async () => {
+  tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-models-'));
+  const model = path.join(tmp, 'res.onnx');
+  saveModel(residualNet(), model);
+  const r = mulberry32(3);
+  x = path.join(tmp, 'x.npy');
+  writeNpy(x, Float32Array.from({ length: 48 * 3 * 32 * 32 }, () => r() * 2 - 1), [48, 3, 32, 32]);
+  build = path.join(tmp, 'b');
+  const b = await cli(['build', model, '--data', x, '-o', build]);
+  expect(b.code, b.stderr).toBe(0);
+}, 120_000);
+afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
+
+describe('a residual network split at its blocks', () => {
+  test('the chain is judged with fusion off on both sides: bit for bit, where fused it is not', async () => {
+    const grafted = path.join(build, fs.readdirSync(build).find((f) => f.startsWith('model.'))!);
+    const judged = await loadChain(build, { optimization: 'disabled' });
+    const fused = await loadChain(build);
+    try {
+      const samples = npySamples(judged.manifest.inputs, { input: x }, 48);
+      const exact = await checkChain(judged, grafted, samples, { rtol: 0 });
+      for (const d of exact.diffs) expect(d.maxAbs, d.name).toBe(0);
+      const f = await checkChain(fused, grafted, samples, { rtol: 0 });
+      // what the fused sessions show (onnxruntime 1.23.2: about 6e-8 on the final output): logged, not asserted
+      console.log(`fused: ${f.diffs.map((d) => `${d.name} ${d.maxAbs.toExponential(2)}`).join(', ')}`);
+    } finally { await judged.release(); await fused.release(); }
+    const c = await cli(['check', build, '--against', grafted, '--data', x, '--rtol', '0']);
+    expect(c.code, c.stdout + c.stderr).toBe(0);
+    expect(c.stdout).toMatch(/graph optimisation off on both sides/);
+  });
+});
