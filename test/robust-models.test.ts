@@ -68,3 +68,59 @@ describe('a residual network split at its blocks', () => {
     expect(c.stdout).toMatch(/graph optimisation off on both sides/);
   });
 });
+
+const INT64 = 7;
+
+/**
+ * A GRU classifier as PyTorch exports one (batch_first=False inside: the GRU reads [T, N, I]): the sequence,
+ * the GRU's Y [T, 1, N, H] squeezed to [T, N, H], averaged over time, then a Gemm. `timeFirst`: the model
+ * input itself is [T, 1, I] with a fixed batch of 1; otherwise the input is [N, T, I], transposed first.
+ */
+function gruNet(timeFirst: boolean) {
+  const b = modelBuilder({ opset: 13, seed: 11 });
+  const T = 40, I = 16, H = 48;
+  const x = b.input('seq', FLOAT, timeFirst ? [T, 1, I] : ['N', T, I]);
+  const tni = timeFirst ? x : b.node('Transpose', [x], { perm: [1, 0, 2] }, { name: 'to_time_first' });
+  const [y] = b.node('GRU', [tni, b.init('gru.W', FLOAT, [1, 3 * H, I], { uniform: [-0.2, 0.2] }), b.init('gru.R', FLOAT, [1, 3 * H, H], { uniform: [-0.2, 0.2] }), b.init('gru.B', FLOAT, [1, 6 * H], { uniform: [-0.1, 0.1] })],
+    { hidden_size: H }, { name: 'gru', outputs: ['gru_y', 'gru_h'] });
+  const steps = b.node('Squeeze', [y, b.init('axis1', INT64, [1], [1])], {}, { name: 'squeeze', outputs: ['steps'] })[0];
+  const mean = b.node('ReduceMean', [steps], { axes: [0], keepdims: 0 }, { name: 'time_mean', outputs: ['pooled'] })[0];
+  const logits = b.node('Gemm', [b.node('Relu', [mean]), b.init('fc.w', FLOAT, [8, H]), b.init('fc.b', FLOAT, [8])], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0];
+  b.output(logits, FLOAT, [timeFirst ? 1 : 'N', 8]);
+  return b.build();
+}
+
+describe('recurrent models: a head is never grafted where the batch is not the first axis', () => {
+  let seq: string;
+  beforeAll(() => {
+    const r = mulberry32(5);
+    seq = path.join(tmp, 'seq.npy');
+    writeNpy(seq, Float32Array.from({ length: 32 * 40 * 16 }, () => r() * 2 - 1), [32, 40, 16]);
+    saveModel(gruNet(false), path.join(tmp, 'gru.onnx'));
+    saveModel(gruNet(true), path.join(tmp, 'gru-time-first.onnx'));
+  });
+
+  test('a cut at the GRU\'s time-first output is refused by name; the pooled cut after it grafts', async () => {
+    const out = path.join(tmp, 'gru-exit.onnx');
+    const r = await cli(['graft', path.join(tmp, 'gru.onnx'), '--cuts', 'steps', '--data', seq, '-o', out]);
+    expect(r.code).toBe(1);
+    expect(r.stderr.trim().split('\n')).toHaveLength(1);
+    expect(r.stderr).toMatch(/cut 'steps' is \[40, 1, 48\]: its first axis is not the batch \(1 here\), as a time-first GRU output is/);
+    expect(fs.existsSync(out)).toBe(false);
+    const ok = await cli(['graft', path.join(tmp, 'gru.onnx'), '--cuts', 'pooled', '--data', seq, '-o', out]);
+    expect(ok.code, ok.stderr).toBe(0);
+  });
+
+  test('a model whose input is time-first with a fixed batch of 1 is refused at graft and at build, before any file is written', async () => {
+    const x1 = path.join(tmp, 'seq-tf.npy');
+    writeNpy(x1, Float32Array.from({ length: 8 * 40 * 16 }, (_, i) => Math.sin(i)), [8, 40, 1, 16]);
+    for (const args of [['graft', path.join(tmp, 'gru-time-first.onnx'), '--at', '50%', '--data', x1, '-o', path.join(tmp, 'tf.onnx')],
+      ['build', path.join(tmp, 'gru-time-first.onnx'), '--data', x1, '-o', path.join(tmp, 'tf-build')]]) {
+      const r = await cli(args);
+      expect(r.code, r.stderr).toBe(1);
+      expect(r.stderr).toMatch(/input 'seq' is \[40, 1, 16\] but the logits 'logits' \[1, 8\]: the input's first axis is not the batch/);
+    }
+    expect(fs.existsSync(path.join(tmp, 'tf.onnx'))).toBe(false);
+    expect(fs.existsSync(path.join(tmp, 'tf-build'))).toBe(false);
+  });
+});

@@ -55,6 +55,9 @@ export function classifierIO(model: Model & { file?: string }, shapes: ShapeResu
   const ft = shapes.values.get(final.name)?.type;
   if (!ft?.shape || ft.shape.length !== 2 || typeof ft.shape[1] !== 'number' || ft.dtype !== FLOAT)
     throw new OfframpError('graph', `the first output '${final.name}' must be float32 logits [batch, classes]`, file);
+  // Rows of data are fed along the input's first axis: it must be the batch the logits come out with.
+  if (typeof ft.shape[0] === 'number' && ft.shape[0] !== bound.shape[0])
+    throw new OfframpError('shape', `input '${ins[0].name}' is [${bound.shape.join(', ')}] but the logits '${final.name}' [${ft.shape.join(', ')}]: the input's first axis is not the batch (a time-first sequence, [T, N, …], feeding a recurrent layer looks like this); export the model batch-first`, file);
   return {
     input: ins[0].name, declared: declared ?? bound.shape, sample: bound.shape.slice(1), final: final.name, classes: ft.shape[1],
     fixedBatch: typeof declared?.[0] === 'number' ? declared[0] : undefined, batch: (final.type?.shape?.[0] ?? 'N') as Dim,
@@ -79,6 +82,22 @@ function randomProjection(cin: number, cout: number, seed: number): Dense {
   return { out: cout, in: cin, W: Float32Array.from({ length: cout * cin }, () => (2 * rnd() - 1) * lim), b: new Float32Array(cout) };
 }
 
+/** The recurrent node (LSTM, GRU, RNN) a value comes from, through any ops, if one does. */
+function recurrentBefore(model: Model, value: string): string | undefined {
+  const made = new Map(model.graph.nodes.flatMap((n) => n.outputs.map((o) => [o, n] as const)));
+  const seen = new Set<string>(), todo = [value];
+  while (todo.length) {
+    const v = todo.pop()!;
+    if (seen.has(v)) continue;
+    seen.add(v);
+    const n = made.get(v);
+    if (!n) continue;
+    if (n.op === 'LSTM' || n.op === 'GRU' || n.op === 'RNN') return n.op;
+    todo.push(...n.inputs.filter(Boolean));
+  }
+  return undefined;
+}
+
 export async function graftExits(model: Model & { file?: string }, data: DataSource, o: GraftOptions): Promise<GraftResult> {
   const file = model.file, seed = o.seed ?? 1;
   if (!o.cuts.length) throw new OfframpError('usage', 'no cuts given', file);
@@ -89,6 +108,11 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
     const t = shapes.values.get(cut)?.type;
     if (!t?.shape || !concreteDims(t.shape)) throw new OfframpError('shape', `cut '${cut}' has no concrete shape`, file);
     if (t.dtype !== FLOAT) throw new OfframpError('graph', `cut '${cut}' is ${dtypeName(t.dtype)}; heads read float32 tensors`, file);
+    // A head answers once per row of the cut's first axis: that axis must be the batch, or the exit declared
+    // [batch, classes] would compute one answer per time step (a recurrent layer's time-first output, [T, N, H]).
+    const batch = shapes.values.get(io.final)?.type.shape?.[0];
+    if (typeof batch === 'number' && t.shape[0] !== batch)
+      throw new OfframpError('shape', `cut '${cut}' is [${t.shape.join(', ')}]: its first axis is not the batch (${batch} here)${recurrentBefore(model, cut) ? `, as a time-first ${recurrentBefore(model, cut)} output is` : ''}; a head there would answer once per step along that axis: cut where the tensor is batch-first, or after the sequence is reduced`, file);
     const axes = axesFor(t.shape, o.layout, cut);
     const cin = t.shape[axes.channel], spatial = axes.pool.reduce((a, i) => a * (t.shape![i] as number), 1);
     const proj = o.head.kind === 'conv' ? randomProjection(cin, o.head.channels, (seed * 0x9e3779b1 + k) >>> 0) : undefined;
