@@ -124,3 +124,40 @@ describe('recurrent models: a head is never grafted where the batch is not the f
     expect(fs.existsSync(path.join(tmp, 'tf-build'))).toBe(false);
   });
 });
+
+/**
+ * A token model as transformer encoders are exported: [N, T, D] tokens, a MatMul projection, LayerNormalization
+ * over D (scale 1, bias 0: each token's mean over D is 0, ONNX LayerNormalization), the mean over tokens, a Gemm.
+ */
+function tokenNet() {
+  const b = modelBuilder({ opset: 17, seed: 13 });
+  const T = 10, D = 16;
+  const x = b.input('tokens', FLOAT, ['N', T, D]);
+  const h = b.node('Add', [b.node('MatMul', [x, b.init('proj.w', FLOAT, [D, D], { uniform: [-0.5, 0.5] })]), b.init('proj.b', FLOAT, [D], { uniform: [-0.1, 0.1] })]);
+  const ln = b.node('LayerNormalization', [h, b.init('ln.weight', FLOAT, [D], { fill: 1 }), b.init('ln.bias', FLOAT, [D], 'zeros')], { axis: -1, epsilon: b.float(1e-5) }, { name: 'ln', outputs: ['normed'] })[0];
+  const act = b.node('Relu', [b.node('MatMul', [ln, b.init('ff.w', FLOAT, [D, D], { uniform: [-0.5, 0.5] })])]);
+  const pooled = b.node('ReduceMean', [b.node('Add', [act, ln])], { axes: [1], keepdims: 0 });
+  b.output(b.node('Gemm', [pooled, b.init('fc.w', FLOAT, [4, D], { uniform: [-1, 1] }), b.init('fc.b', FLOAT, [4], 'zeros')], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
+  return b.build();
+}
+
+describe('token tensors [N, T, D]: heads pool over the tokens', () => {
+  test('the layout is read from the graph (LayerNormalization over D); pooled over D a head would learn nothing, and graft says so', async () => {
+    const model = path.join(tmp, 'tokens.onnx'), data = path.join(tmp, 'tokens.npy');
+    saveModel(tokenNet(), model);
+    const r = mulberry32(9);
+    writeNpy(data, Float32Array.from({ length: 400 * 10 * 16 }, () => r() * 2 - 1), [400, 10, 16]);
+    const out = path.join(tmp, 'tokens-g.onnx');
+    const g = await cli(['graft', model, '--cuts', 'normed', '--data', data, '--held-out', '0.25', '--json', '-o', out]);
+    expect(g.code, g.stderr).toBe(0);
+    const j = JSON.parse(g.stdout);
+    expect(j.exits[0].layout).toBe('NTD');
+    // the head sees the final output's own features (the mean over tokens of the LayerNorm output, before the residual branch)
+    expect(j.exits[0].fit.agreement).toBeGreaterThan(0.6);
+    expect(j.warnings).toBeUndefined();
+    // forced to pool over D, every row's features are the same zeros (up to rounding): the head answers the majority
+    const n = await cli(['graft', model, '--cuts', 'normed', '--layout', 'NCL', '--data', data, '--held-out', '0.25', '-o', out]);
+    expect(n.code, n.stderr).toBe(0);
+    expect(n.stdout).toMatch(/warning: exit-0 at 'normed' agrees with the final output on [\d.]+ % of held-out rows, no more than always answering its most common class \([\d.]+ %\): the head reads nothing useful there; the cut \[1, 10, 16\] was pooled as NCL: if its last axis holds the features \(tokens × features\), give --layout NTD/);
+  });
+});

@@ -30,11 +30,12 @@ export function graftText(r: GraftResult, out: string): string {
     return [e.output, e.cut, e.head, si(e.macs), si(e.params), pct(e.fit.accuracy), pct(e.fit.agreement), e.fit.loss.toPrecision(4), `${e.fit.samples}/${e.fit.heldOut}`];
   });
   return `${table(['exit', 'cut', 'head', 'MACs', 'params', 'accuracy', 'agreement', 'loss', 'fit/held'], rows)}\n`
-    + `accuracy and agreement (with the final output) on the held-out rows; wrote ${out}\n`;
+    + `accuracy and agreement (with the final output) on the held-out rows; wrote ${out}\n`
+    + r.warnings.map((w) => `warning: ${w}\n`).join('');
 }
 
 export function graftJson(r: GraftResult, out: string): string {
-  return `${toJson({ schema: GRAFT_SCHEMA, out, exits: r.heads.map((h) => h.record) })}\n`;
+  return `${toJson({ schema: GRAFT_SCHEMA, out, exits: r.heads.map((h) => h.record), ...(r.warnings.length && { warnings: r.warnings }) })}\n`;
 }
 
 
