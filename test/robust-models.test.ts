@@ -9,7 +9,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
-import { saveModel } from '../lib/graph/io.js';
+import { loadModel, saveModel } from '../lib/graph/io.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { loadChain } from '../lib/run/chain.js';
 import { checkChain, npySamples } from '../lib/run/check.js';
@@ -159,5 +159,52 @@ describe('token tensors [N, T, D]: heads pool over the tokens', () => {
     const n = await cli(['graft', model, '--cuts', 'normed', '--layout', 'NCL', '--data', data, '--held-out', '0.25', '-o', out]);
     expect(n.code, n.stderr).toBe(0);
     expect(n.stdout).toMatch(/warning: exit-0 at 'normed' agrees with the final output on [\d.]+ % of held-out rows, no more than always answering its most common class \([\d.]+ %\): the head reads nothing useful there; the cut \[1, 10, 16\] was pooled as NCL: if its last axis holds the features \(tokens × features\), give --layout NTD/);
+  });
+});
+
+/** A small CNN as exported at opset 11: Conv, Relu, MaxPool, Squeeze with its axes as an attribute, Gemm; `softmaxAxis`: a Softmax over that axis of [N, C, H, W] before the pooling. */
+function cnnOpset11(softmaxAxis?: number) {
+  const b = modelBuilder({ opset: 11, seed: 17 });
+  let k = 0;
+  const conv = (x: string, cin: number, cout: number) => b.node('Conv', [x, b.init(`c${k}.w`, FLOAT, [cout, cin, 3, 3]), b.init(`c${k++}.b`, FLOAT, [cout], { uniform: [-0.1, 0.1] })], { kernel_shape: [3, 3], pads: [1, 1, 1, 1] });
+  let x = b.node('MaxPool', [b.node('Relu', [conv(b.input('image', FLOAT, ['N', 1, 16, 16]), 1, 8)])], { kernel_shape: [2, 2], strides: [2, 2] });
+  x = b.node('Relu', [conv(x, 8, 16)]);
+  if (softmaxAxis !== undefined) x = b.node('Softmax', [x], { axis: softmaxAxis });
+  const pooled = b.node('Squeeze', [b.node('GlobalAveragePool', [x])], { axes: [2, 3] });
+  b.output(b.node('Gemm', [pooled, b.init('fc.w', FLOAT, [5, 16]), b.init('fc.b', FLOAT, [5])], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 5]);
+  return b.build();
+}
+
+describe('opset 11 models quantize: raised to 13 where every operator means the same, refused by operator where not', () => {
+  test('a CNN at opset 11 (Squeeze axes as an attribute) quantizes, says so, and its int8 chain agrees with the float model', async () => {
+    const model = path.join(tmp, 'cnn11.onnx'), data = path.join(tmp, 'img.npy');
+    saveModel(cnnOpset11(), model);
+    const r = mulberry32(21);
+    writeNpy(data, Float32Array.from({ length: 64 * 256 }, () => r()), [64, 1, 16, 16]);
+    const grafted = path.join(tmp, 'cnn11-g.onnx'), split = path.join(tmp, 'cnn11-s'), q = path.join(tmp, 'cnn11-q');
+    for (const args of [['graft', model, '--at', '30%', '--data', data, '-o', grafted], ['split', grafted, '-o', split]]) {
+      const x = await cli(args);
+      expect(x.code, x.stderr).toBe(0);
+    }
+    const qr = await cli(['quantize', split, '--data', data, '-o', q]);
+    expect(qr.code, qr.stderr).toBe(0);
+    expect(qr.stdout).toMatch(/^opset {6}11 raised to 13 \(per-channel QuantizeLinear needs it; every operator of the stages means the same there\)$/m);
+    const m = JSON.parse(fs.readFileSync(path.join(q, 'manifest.json'), 'utf8'));
+    expect(m.quantization.opset).toEqual({ from: 11, to: 13 });
+    for (const st of m.stages) expect(loadModel(path.join(q, st.file)).opsets.get('')).toBe(13);
+    const c = await cli(['check', q, '--against', grafted, '--data', data, '--min-agreement', '0.9']);
+    expect(c.code, c.stdout + c.stderr).toBe(0);
+  });
+
+  test('a Softmax over a channel axis of a rank-4 tensor (coerced to 2-D before 13) is refused by name', async () => {
+    const model = path.join(tmp, 'cnn11-softmax.onnx'), data = path.join(tmp, 'img.npy');
+    saveModel(cnnOpset11(1), model);
+    const split = path.join(tmp, 'cnn11-sm-s');
+    expect((await cli(['split', model, '--at', '30%', '-o', split])).code).toBe(0);
+    const qr = await cli(['quantize', split, '--data', data, '-o', path.join(tmp, 'cnn11-sm-q')]);
+    expect(qr.code).toBe(1);
+    expect(qr.stderr.trim().split('\n')).toHaveLength(1);
+    expect(qr.stderr).toMatch(/opset 11: Softmax .*over axis 1 of a rank-4 tensor coerces its input to 2-D before opset 13/);
+    expect(fs.existsSync(path.join(tmp, 'cnn11-sm-q', 'manifest.json'))).toBe(false);
   });
 });

@@ -50,6 +50,7 @@ export function quantizeCommand(program: Command): void {
       const rows = m.stages.map((s) => [s.file, fmtBytes(s.weightBytes), fmtBytes(s.peakActivationBytes), s.arenaBytes === undefined ? '-' : fmtBytes(s.arenaBytes), s.handoverBytes ? fmtBytes(s.handoverBytes) : '-',
         s.outputs.filter((t) => t.quant).map((t) => `${t.name} ${t.dtype} s=${t.quant!.scale.toPrecision(4)} z=${t.quant!.zeroPoint}`).join(', ') || '-']);
       emit(`quantized  ${r.dir}: ${m.stages.length} stages, ${r.weights} weights int8 per channel, ${r.biases} biases int32, ${r.folded} batch norms folded\n` +
+        (m.quantization!.opset ? `opset      ${m.quantization!.opset.from} raised to ${m.quantization!.opset.to} (per-channel QuantizeLinear needs it; every operator of the stages means the same there)\n` : '') +
         `calibrated ${cal.method}${cal.percentile !== undefined ? ` ${cal.percentile} %` : ''} on ${cal.samples} rows of ${o.data}\n\n` +
         `${table(['stage', 'weights', 'peak act.', 'arena', 'hands over', 'outputs (int8 parameters)'], rows)}\n\n` +
         `next: offramp check ${r.dir} --against <model> --data …, then offramp tune ${r.dir} (the float policy is not carried over)\n`);

@@ -27,6 +27,7 @@ import { foldBatchNorm } from './fold-bn.js';
 import { activationPlan, QDQ_OPS, toQdq, type ActivationPlan, type ActParams } from './qdq.js';
 import { CALIBRATION_METHODS, chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type CalibrationMethod } from './calibrate.js';
 import { activationParams } from './linear.js';
+import { raiseOpset } from './opset.js';
 
 /**
  * Default calibration: `minmax`. Clipping methods (`percentile`, `mse`) lower the reconstruction error
@@ -62,7 +63,8 @@ const rel = (from: string, to: string) => path.relative(path.resolve(from), path
 interface Stage { entry: ManifestStage; file: string; model: Model; plan: ActivationPlan }
 
 /** The stages of a float split, BatchNormalization folded; refuses a folder that is already quantized. */
-function readStages(dir: string, manifest: Manifest, manifestFile: string): { stages: Stage[]; folded: number } {
+function readStages(dir: string, manifest: Manifest, manifestFile: string): { stages: Stage[]; folded: number; opset?: { from: number; to: number } } {
+  let opset: { from: number; to: number } | undefined;
   if (manifest.quantization) throw new OfframpError('data', `already quantized (from ${manifest.quantization.from.file}): quantize the float split instead`, manifestFile);
   let folded = 0;
   const stages = manifest.stages.map((entry) => {
@@ -74,12 +76,16 @@ function readStages(dir: string, manifest: Manifest, manifestFile: string): { st
     const q = loaded.graph.nodes.find((n) => QDQ_OPS.has(n.op));
     if (q || [...entry.inputs, ...entry.outputs].some((t) => t.dtype === 'int8' || t.dtype === 'uint8'))
       throw new OfframpError('data', `already quantized (${q ? `it holds ${q.op}` : 'int8 handover tensors'}): quantize the float split instead`, file);
-    const f = foldBatchNorm(loaded);
+    // Opset 11/12 raised to 13 where every operator means the same there (quant/opset.ts), else refused by operator.
+    const before = inferShapes(loaded, { batch: 1 });
+    const raised = raiseOpset(loaded, (v) => before.values.get(v)?.type.shape?.length, file);
+    if (raised.from !== raised.to) opset = { from: raised.from, to: raised.to };
+    const f = foldBatchNorm(raised.model);
     folded += f.folded;
     const shapes = inferShapes(f.model, { batch: 1 });
     return { entry, file, model: f.model, plan: activationPlan(f.model, shapes) };
   });
-  return { stages, folded };
+  return { stages, folded, opset };
 }
 
 /** Calibration rows as batch-1 float32 tensors, checked against the chain input. */
@@ -178,7 +184,7 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
   const method = o.calibration ?? DEFAULT_CALIBRATION, pct = o.percentile ?? DEFAULT_PERCENTILE;
   if (src.inputs.length !== 1 || src.inputs[0].dtype !== 'float32') throw new OfframpError('data', 'quantize calibrates a chain with one float32 input', srcFile);
   const input = src.inputs[0];
-  const { stages, folded } = readStages(srcDir, src, srcFile);
+  const { stages, folded, opset } = readStages(srcDir, src, srcFile);
   const limit = o.samples ?? Infinity;
   const h = readNpyHeader(o.data);
   const total = Math.min(o.parity === undefined ? h.rows : Math.floor((h.rows + 1 - o.parity) / 2), limit);
@@ -275,6 +281,7 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
         calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, ...(o.parity !== undefined && { rows: o.parity ? 'odd' as const : 'even' as const }), data: { file: rel(final, o.data), sha256: sha256(dataBytes) } },
         weights: 'int8 symmetric per output channel (Conv, Gemm, MatMul)', biases: 'int32, scale s_x·s_w', activations: 'int8 asymmetric per tensor',
         foldedBatchNorms: folded,
+        ...(opset && { opset }),
       },
     };
     delete manifest.policy;

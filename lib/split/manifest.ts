@@ -134,6 +134,8 @@ export interface ManifestQuantization {
   weights: string; biases: string; activations: string;
   /** BatchNormalization nodes folded into the Conv before them */
   foldedBatchNorms: number;
+  /** the float stages' opset, raised for per-channel QuantizeLinear (quant/opset.ts), where it was below 13 */
+  opset?: { from: number; to: number };
 }
 
 /** A tuned exit policy as the manifest keeps it: the rule, and the evidence it was chosen on. */
