@@ -138,12 +138,16 @@ export function chooseChain(where: string, o: { float?: boolean } = {}): ChainCh
   const nested = path.join(dir, NESTED_INT8, MANIFEST_FILE);
   const own = quantizedFrom(file);
   const floatFlag = '--float for the float chain';
-  let deploys: string | undefined;
+  let deploys: string | undefined, since = '';
   if (!own && fs.existsSync(nested)) {
     const from = quantizedFrom(nested);
-    let bytes: Buffer | undefined;
-    try { bytes = fs.readFileSync(file); } catch { bytes = undefined; }
-    if (from && bytes && from.sha256 === hex(bytes)) deploys = nested;
+    // DIR/int8 quantized from this manifest; one tuned since (tune DIR rewrites it) is still the build's.
+    if (from && path.resolve(path.dirname(nested), from.file) === path.resolve(file)) {
+      deploys = nested;
+      let bytes: Buffer | undefined;
+      try { bytes = fs.readFileSync(file); } catch { bytes = undefined; }
+      if (bytes && from.sha256 !== hex(bytes)) since = `; ${file} changed since it was quantized`;
+    }
   }
   if (o.float) {
     if (own) {
@@ -152,6 +156,6 @@ export function chooseChain(where: string, o: { float?: boolean } = {}): ChainCh
     }
     return { file, precision: 'float', line: `chain: ${file} (float, --float${deploys ? `; the build deploys ${nested}` : ''})` };
   }
-  if (deploys) return { file: deploys, precision: 'int8', line: `chain: ${deploys} (int8, the chain this build deploys; ${floatFlag})` };
+  if (deploys) return { file: deploys, precision: 'int8', line: `chain: ${deploys} (int8, the chain this build deploys${since}; ${floatFlag})` };
   return own ? { file, precision: 'int8', line: `chain: ${file} (int8; ${floatFlag})` } : { file, precision: 'float', line: `chain: ${file} (float)` };
 }
