@@ -59,6 +59,7 @@ describe('exported functions check their arguments', () => {
     await refuses(() => buildExits(f.model, { data: f.x, out: path.join(f.dir, 'b'), maxExits: 1.5 }), 'usage', /option 'maxExits' takes a whole number/);
     await refuses(() => buildExits(f.model, { data: f.x, out: path.join(f.dir, 'b'), confidence: 1e-300 }), 'usage', /option 'confidence' takes a number from 0.5 below 1/);
     await refuses(() => buildExits(f.model, { data: f.x, out: path.join(f.dir, 'b'), int8: true }), 'usage', /option 'int8' judges a target's budget/);
+    await refuses(() => buildExits(f.model, { data: f.x, out: path.join(f.dir, 'b'), unlabelled: f.x }), 'usage', /option 'unlabelled' .* holds the same rows as 'data'/);
     expect(snapshot(f.dir)).toEqual(before);
     // the name the CLI takes (lib/chip/target.ts BUILTIN_TARGETS) builds and budgets
     const model = path.join(f.dir, 'mlp.onnx'), x = path.join(f.dir, 'mlp-x.npy');

@@ -89,7 +89,9 @@ export function tuneCommand(program: Command): void {
             ...(result.guarantee ? { guarantee: result.guarantee } : {}),
           }, chain.manifest.stages));
           written = `${chain.dir}/manifest.json`;
-          if (demotes) manifestNote = `replaced the certified ${(before!.rule as { kind?: string }).kind} policy that was there (--replace)`;
+          const full = c.policy.kind === 'confidence' && c.policy.thresholds.every((t) => t === null);
+          if (demotes) manifestNote = `replaced the certified ${(before!.rule as { kind?: string }).kind} policy that was there (--replace)${full ? '; the manifest\'s policy is now the full model: firmware emitted from it never exits early' : ''}`;
+          else if (full) manifestNote = 'the manifest\'s policy is now the full model (nothing cheaper was certified): firmware emitted from it never exits early';
         }
         const report: TuneReport = {
           result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, manifestNote,

@@ -142,6 +142,12 @@ function checkBuildOptions(file: unknown, o: BuildOptions): BuildOptions & { tar
   num('seed', 0, 2 ** 32 - 1, true); num('checkSamples', 1, 1_000_000, true); num('l2', 0, Number.MAX_VALUE);
   if (o.head !== undefined && !(o.head && typeof o.head === 'object' && ['linear', 'mlp', 'conv', 'grid'].includes((o.head as { kind?: string }).kind ?? '')))
     throw bad('head', "{ kind: 'linear' | 'mlp' | 'conv' | 'grid', … }", o.head);
+  // The same rows as unlabelled extras would count twice in the bound (same file by any link, or a copy).
+  if (o.unlabelled) {
+    const a = fs.statSync(o.data, { throwIfNoEntry: false }), b = fs.statSync(o.unlabelled, { throwIfNoEntry: false });
+    if (a?.isFile() && b?.isFile() && ((a.dev === b.dev && a.ino === b.ino) || (a.size === b.size && fs.readFileSync(o.data).equals(fs.readFileSync(o.unlabelled)))))
+      throw new OfframpError('usage', `buildExits: option 'unlabelled' (${o.unlabelled}) holds the same rows as 'data' (${o.data}): counted twice they would make the bound look tighter than the evidence is`);
+  }
   let target: Target | undefined;
   if (typeof o.target === 'string') target = resolveTarget({ target: o.target });
   else if (o.target !== undefined) {
