@@ -10,6 +10,7 @@ import os from 'node:os';
 import path from 'node:path';
 import { modelBuilder, mulberry32 } from '../lib/graph/build.js';
 import { loadModel, saveModel } from '../lib/graph/io.js';
+import { exitRecords } from '../lib/heads/graft.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { loadChain } from '../lib/run/chain.js';
 import { checkChain, npySamples } from '../lib/run/check.js';
@@ -159,6 +160,15 @@ describe('token tensors [N, T, D]: heads pool over the tokens', () => {
     const n = await cli(['graft', model, '--cuts', 'normed', '--layout', 'NCL', '--data', data, '--held-out', '0.25', '-o', out]);
     expect(n.code, n.stderr).toBe(0);
     expect(n.stdout).toMatch(/warning: exit-0 at 'normed' agrees with the final output on [\d.]+ % of held-out rows, no more than always answering its most common class \([\d.]+ %\): the head reads nothing useful there; the cut \[1, 10, 16\] was pooled as NCL: if its last axis holds the features \(tokens × features\), give --layout NTD/);
+    // build fits its candidate heads the same way: token layout read from the graph, every head above chance
+    const b = await cli(['build', model, '--data', data, '--candidates', '3', '--max-exits', '1', '--max-drop', '100', '--json', '-o', path.join(tmp, 'tokens-b')]);
+    expect(b.code, b.stderr).toBe(0);
+    const bdir = path.join(tmp, 'tokens-b');
+    const exits = exitRecords(loadModel(path.join(bdir, fs.readdirSync(bdir).find((f) => f.startsWith('model.'))!)));
+    const rank3 = exits.filter((e) => e.layout !== 'NC');
+    expect(rank3.length, JSON.stringify(exits)).toBeGreaterThan(0);
+    for (const e of rank3) expect(e.layout, e.cut).toBe('NTD');
+    expect(b.stdout).not.toMatch(/reads nothing useful/);
   });
 });
 

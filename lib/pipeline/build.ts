@@ -84,6 +84,8 @@ export interface BuildResult {
   manifestSha256: string;
   /** with --int8: the quantized split, its policy and figures (budget is then the int8 files' as stored) */
   int8?: Int8Build;
+  /** candidate heads that learnt nothing (agreement at the most common class's share), in words (heads/fit-heads.ts) */
+  headWarnings?: string[];
 }
 
 /** the grafted model in DIR is model.<hash>.onnx (named by its content, as stage files are) */
@@ -291,5 +293,6 @@ async function buildInto(file: string, o: BuildOptions & { target?: Target }): P
     dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written, ...(int8?.files ?? [])],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
     placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }),
+    ...(trial.warnings.length && { headWarnings: trial.warnings.map((w) => w.replace(/^exit-\d+ at/, 'the candidate head at')) }),
   };
 }
