@@ -19,10 +19,13 @@ import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
 import { folderProblems } from './helpers/folder-check.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureDevice } from '../lib/measure/device.js';
 import { compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
 const GCC = spawnSync('gcc', ['--version']).status === 0;
+if (!toolchainStatus().ready && process.env.CI) throw new Error(`the emulated Cortex-M checks need the toolchain under CI: ${toolchainStatus().message}`);
 const have = requireFmnist();
 const per = 28 * 28;
 const CUTS = ['/b1/b1.2/MaxPool_output_0', '/b2/b2.2/MaxPool_output_0'];
@@ -185,6 +188,14 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     console.log(`Fashion-MNIST int8 firmware (gcc): ${t.length} int8 values of 100 test images bit for bit equal to the reference, 400 answers equal; vs onnxruntime on ${o.frames} test images: int8 logits ${histogram(o.steps)}; label and exit equal on ${(agree * 100).toFixed(2)} %; firmware top-1 ${(right * 100).toFixed(2)} %`
       + (o.differ.length ? `; differ at ${o.differ.slice(0, 5).map((d) => `#${d.frame} (label, exit) ${d.firmware} vs ${d.ort}`).join(', ')} (a logit a step apart near a threshold: the fixed-point requantization against onnxruntime's float one)` : ''));
     expect(agree).toBeGreaterThanOrEqual(0.995);
+  });
+
+  it.skipIf(!toolchainStatus().ready)('on the emulated m4f, m7 and m55 the firmware answers as the TypeScript reference does', async () => {
+    for (const core of ['m4f', 'm7', 'm55']) {
+      const r = await measureDevice({ dir: f('q'), data: f('test.npy'), labels: f('test_y.npy'), core, rows: 24 });
+      expect(r.answers.equalToReference, core).toBe(24);
+      console.log(`Fashion-MNIST int8 firmware on ${core}: ${(r.perFrame.full / r.stages.reduce((a, s) => a + s.macs, 0)).toFixed(2)} instructions per MAC for the whole network, ${r.perFrame.policy} per frame with the policy (${(r.perFrame.savedShare * 100).toFixed(1)} % saved); ${r.answers.equalToOnnxruntime}/24 equal to onnxruntime`);
+    }
   });
 
   it('build --int8: the policy tuned on the int8 chain, its firmware, the int8 files judged as stored', () => {

@@ -7,9 +7,9 @@ import { resolveTarget } from '../chip/target.js';
 import { buildHtml, buildJson, buildText } from '../report/build.js';
 import { overLine, storedLabel } from '../report/budget.js';
 import { usageError } from '../errors.js';
-import { emit, OverBudget, parseNumber, modelAction } from './common.js';
+import { CONFIDENCE_RANGE, emit, OverBudget, parseNumber, modelAction } from './common.js';
 import { targetFile, targetOptions } from './target-options.js';
-import { modelReads, refuseInputsAsOutputs } from './guard.js';
+import { modelReads, refuseInputsAsOutputs, refuseSameRows } from './guard.js';
 import { loadModel } from '../graph/io.js';
 import { checkOutDir } from '../util/fsx.js';
 import { toolchainStatus } from '../measure/toolchain.js';
@@ -55,7 +55,7 @@ export function buildCommand(program: Command): void {
     .option('--json', 'print the report as JSON (schema offramp-build/2)')
     .action(modelAction(async (file: string, o: BuildFlags) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
-      const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
+      const confidence = parseNumber(o.confidence, '--confidence', CONFIDENCE_RANGE);
       const maxExits = parseNumber(o.maxExits, '--max-exits', { int: true, min: 1, max: 16 });
       const candidates = parseNumber(o.candidates, '--candidates', { int: true, min: 1, max: 64 });
       const seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
@@ -69,6 +69,7 @@ export function buildCommand(program: Command): void {
         if (!tools.ready) throw usageError(tools.message);
         coreOf(o.core, '--core');
       }
+      refuseSameRows(o.data, o.unlabelled);
       const model = loadModel(file);
       refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }, { file: o.unlabelled, role: 'unlabelled data' }, { file: targetFile(o.target), role: 'target profile' }], [], [
         { dir: o.out, names: /^((model|stage-\d+)(\.[0-9a-f]{16})?\.onnx|manifest\.json|report\.(json|html)|firmware|int8)$/ },

@@ -114,6 +114,7 @@ export function buildText(r: BuildResult): string {
     ...promiseText(s.guarantee),
     `MACs       ${si(Math.round(h.meanMacs))} per sample on average vs ${si(h.fullMacs)}: ${pct(h.saving)} saved`,
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
+    ...(r.headWarnings ?? []).map((w) => `note       ${w}`),
     '',
     table(['stage', 'MACs', 'weights', 'peak act.', 'arena', 'hands over', 'exit', 'leave here'], rows),
   ];
