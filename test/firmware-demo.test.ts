@@ -33,9 +33,9 @@ beforeAll(() => {
   if (r.code !== 0) throw new Error(r.stderr);
   const e = offramp(['emit-c', f('b/int8'), '-o', f('fw')]);
   if (e.code !== 0) throw new Error(e.stderr);
-});
+}, 600_000);
 
-describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
+describe.skipIf(!GCC)('int8 firmware of the demo model', { timeout: 600_000 }, () => {
   it('is a self-contained C99 library: no double, no libm, no malloc', () => {
     const names = fs.readdirSync(f('fw'));
     expect(names).toContain('offramp_model.h');
@@ -73,7 +73,7 @@ describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
   });
 });
 
-describe.skipIf(!EMU)('int8 firmware of the demo model on emulated Cortex-M cores', () => {
+describe.skipIf(!EMU)('int8 firmware of the demo model on emulated Cortex-M cores', { timeout: 600_000 }, () => {
   it('build --measure leads its report with the device figures: the policy against the whole network, measured on the emulated m4f', async () => {
     const j = JSON.parse(fs.readFileSync(f('b/report.json'), 'utf8'));
     const d = j.device;
