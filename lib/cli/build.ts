@@ -73,7 +73,7 @@ export function buildCommand(program: Command): void {
       const model = loadModel(file);
       refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }, { file: o.unlabelled, role: 'unlabelled data' }, { file: targetFile(o.target), role: 'target profile' }], [], [
         { dir: o.out, names: /^((model|stage-\d+)(\.[0-9a-f]{16})?\.onnx|manifest\.json|report\.(json|html)|firmware|int8)$/ },
-        { dir: path.join(o.out, 'firmware'), names: /^offramp_policy\.[ch]$/ },
+        { dir: path.join(o.out, 'firmware'), names: /^offramp_\w+\.[ch]$/ },
       ]);
       checkOutDir(o.out);
       const tty = process.stderr.isTTY && !o.json;

@@ -24,6 +24,7 @@ import { CERTIFY_SHARE, tune, type TuneResult } from '../tune/search.js';
 import { rowsOf, splitParts } from '../tune/cache.js';
 import { budgetOf, type Budget } from '../chip/budget.js';
 import { writeC } from '../emit/write.js';
+import { writeFirmware } from '../firmware/write.js';
 import { resolveTarget, targetFromJson, type Ratio, type Target } from '../chip/target.js';
 import { OfframpError } from '../errors.js';
 import { writeAtomic } from '../util/atomic.js';
@@ -282,11 +283,12 @@ async function buildInto(file: string, o: BuildOptions & { target?: Target }): P
   }
 
   let int8: Int8Build | undefined;
+  let firmware = c.written;
   if (o.int8) {
     say('quantize', `int8 stage files calibrated on ${fitData.rows} rows, policy tuned on the int8 chain`);
     int8 = await buildInt8({ out: o.out, modelFile, data: o.data, tuneData, tuneLabels, unlabelled: freeData, sample: io.sample, maxDrop, confidence, target: o.target, checkSamples: o.checkSamples });
-    // The firmware decides on the chain that runs: the int8 one.
-    writeC(int8.dir, path.join(o.out, FIRMWARE_DIR));
+    // The firmware is the chain that runs: the whole int8 network, its exits and policy.
+    firmware = writeFirmware(int8.dir, path.join(o.out, FIRMWARE_DIR)).written;
   }
   let device: DeviceReport | undefined;
   if (o.measure) {
@@ -302,7 +304,7 @@ async function buildInto(file: string, o: BuildOptions & { target?: Target }): P
   const budget = int8 ? int8.budget : o.target && budgetOf(staged.model, cost, o.target, 'stored');
 
   return {
-    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written, ...(int8?.files ?? [])],
+    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...new Set([...c.written, ...firmware]), ...(int8?.files ?? [])],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
     placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }), ...(device && { device }),
     ...(trial.warnings.length && { headWarnings: trial.warnings.map((w) => w.replace(/^exit-\d+ at/, 'the candidate head at')) }),

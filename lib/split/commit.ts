@@ -27,7 +27,7 @@ export const INT8_DIR = 'int8';
  * Files that describe one manifest (each names its SHA-256): a split removes them, a build writes
  * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old.
  */
-export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', `${INT8_DIR}/manifest.json`];
+export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'firmware/offramp_net.h', 'firmware/offramp_net.c', `${INT8_DIR}/manifest.json`];
 
 /**
  * Split folders a build nests in its own (`build --int8` writes the quantized split into DIR/int8).
@@ -108,9 +108,16 @@ export function sweepAll(dir: string, manifest: Named, manifestName: string, kee
   sweepNested(dir, manifestName, keep, owned);
 }
 
-/** Step 2. */
+/** The firmware folder of a build and the C files offramp writes there (the int8 library: tables, kernels, entry points). */
+export const FIRMWARE_FILES = { dir: 'firmware', names: /^offramp_\w+\.[ch]$/ };
+
+/** Step 2. The firmware goes whole: a kernel file of an earlier int8 build must not outlive its tables. */
 export function removeDescribing(dir: string, more: string[] = []): void {
   for (const f of new Set([...DESCRIBING, ...more])) fs.rmSync(path.join(dir, f), { force: true });
+  const fw = path.join(dir, FIRMWARE_FILES.dir);
+  let names: string[] = [];
+  try { names = fs.readdirSync(fw); } catch { /* no firmware folder */ }
+  for (const n of names) if (FIRMWARE_FILES.names.test(n)) fs.rmSync(path.join(fw, n), { force: true });
 }
 
 /**
