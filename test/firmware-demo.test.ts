@@ -28,13 +28,14 @@ beforeAll(() => {
   const c = samples(3000, 202), v = samples(2000, 303);
   writeNpy(f('x.npy'), c.x, [3000, 1, BINS, FRAMES]); writeNpy(f('y.npy'), c.y, [3000]);
   val = v.x;
-  const r = offramp(['build', MODEL, '--data', f('x.npy'), '--labels', f('y.npy'), '--head', 'grid:4', '--target', 'm4f', '--int8', '-o', f('b')]);
+  // with the emulator, the build measures its int8 firmware too (build --measure)
+  const r = offramp(['build', MODEL, '--data', f('x.npy'), '--labels', f('y.npy'), '--head', 'grid:4', '--target', 'm4f', '--int8', ...(EMU ? ['--measure', '--measure-rows', '40'] : []), '-o', f('b')]);
   if (r.code !== 0) throw new Error(r.stderr);
   const e = offramp(['emit-c', f('b/int8'), '-o', f('fw')]);
   if (e.code !== 0) throw new Error(e.stderr);
-});
+}, 600_000);
 
-describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
+describe.skipIf(!GCC)('int8 firmware of the demo model', { timeout: 600_000 }, () => {
   it('is a self-contained C99 library: no double, no libm, no malloc', () => {
     const names = fs.readdirSync(f('fw'));
     expect(names).toContain('offramp_model.h');
@@ -72,7 +73,23 @@ describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
   });
 });
 
-describe.skipIf(!EMU)('int8 firmware of the demo model on emulated Cortex-M cores', () => {
+describe.skipIf(!EMU)('int8 firmware of the demo model on emulated Cortex-M cores', { timeout: 600_000 }, () => {
+  it('build --measure leads its report with the device figures: the policy against the whole network, measured on the emulated m4f', async () => {
+    const j = JSON.parse(fs.readFileSync(f('b/report.json'), 'utf8'));
+    const d = j.device;
+    expect(d.schema).toBe('offramp-measure/1');
+    expect(d.core).toBe('m4f');
+    expect(d.frames).toBe(40);
+    expect(d.answers.equalToReference).toBe(40);
+    expect(d.basis.clockMhz).toBe(80);   // the target's clock
+    expect(d.perFrame.policyMicroseconds).toBeCloseTo((d.perFrame.policy * d.basis.cyclesPerInstruction) / 80, 0);
+    // the same firmware measured by the command on the same rows: the same exact counts
+    const again = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core: 'm4f', rows: 40, clockMhz: 80 });
+    expect(again.perFrame).toEqual(d.perFrame);
+    expect(again.stages).toEqual(d.stages);
+    expect(fs.readFileSync(f('b/report.html'), 'utf8')).toContain('On the device (emulated m4f)');
+  });
+
   for (const core of ['m4f', 'm7', 'm55']) {
     it(`${core}: every answer equal to the TypeScript reference (the DSP kernels where the core has them); exact, repeatable counts`, async () => {
       const r = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core, rows: 60 });

@@ -104,7 +104,7 @@ function reference(s: Step, x: Int8Array): Int8Array {
   return y;
 }
 
-describe.skipIf(!GCC)('C kernels against the TypeScript reference', () => {
+describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 600_000 }, () => {
   it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale: every output byte equal', () => {
     const steps: Step[] = [];
     for (let j = 0; j < 60; j++) steps.push(convStep(j, false, false));

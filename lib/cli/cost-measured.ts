@@ -12,7 +12,7 @@ import { BUILTIN_TARGETS, resolveTarget, type TargetOptions } from '../chip/targ
 import { measuredBudget, type MeasuredBudget } from '../chip/measured.js';
 import { budgetMarkdown, budgetText, duration } from '../report/budget.js';
 import { bytes, mdTable, si, table, toJson } from '../report/units.js';
-import { readManifestFile } from '../split/read.js';
+import { chooseChain, readManifestFile } from '../split/read.js';
 import { sha256, verifyStageFiles } from '../split/commit.js';
 import type { Manifest } from '../split/manifest.js';
 import { MANIFEST_FILE } from '../split/manifest.js';
@@ -27,19 +27,17 @@ export const COST_MEASURED_SCHEMA = 'offramp-cost-measured/1';
 
 export interface MeasuredFlags extends TargetOptions {
   measured: string; json?: boolean; md?: boolean; out?: string;
-  cuts?: string; reorder?: boolean; saveReordered?: string; dim: string[]; int8?: boolean;
+  cuts?: string; reorder?: boolean; saveReordered?: string; dim: string[]; int8?: boolean; float?: boolean;
 }
 
-/** The int8 chain of `where`: a quantized folder (or its manifest), or the DIR/int8 of a build --int8 folder. */
+/** The int8 chain of `where`: a quantized folder (or its manifest), or the DIR/int8 a build --int8 folder deploys. */
 function measuredChain(where: string): string {
   const st = fs.statSync(where, { throwIfNoEntry: false });
   if (!st) throw new OfframpError('io', 'no such folder', where);
-  const own = st.isDirectory() ? path.join(where, MANIFEST_FILE) : where;
-  if (!fs.existsSync(own)) throw usageError(`--measured applies to a quantized folder (the one offramp measure ran on); ${where} has no manifest`);
-  if (readManifestFile(own).manifest.quantization) return own;
-  const nested = path.join(path.dirname(own), 'int8', MANIFEST_FILE);
-  if (fs.existsSync(nested)) return nested;
-  throw usageError(`--measured: ${where} is a float folder; the firmware measured is int8 (give its quantized folder, or the build --int8 folder)`);
+  if (st.isDirectory() && !fs.existsSync(path.join(where, MANIFEST_FILE))) throw usageError(`--measured applies to a quantized folder (the one offramp measure ran on); ${where} has no manifest`);
+  const c = chooseChain(where);
+  if (c.precision !== 'int8') throw usageError(`--measured: ${where} is a float folder; the firmware measured is int8 (give its quantized folder, or the build --int8 folder)`);
+  return c.file;
 }
 
 interface Measurement {
@@ -92,7 +90,7 @@ async function plannedStages(manifest: Manifest, file: string): Promise<StageFoo
 }
 
 export async function costMeasured(where: string, o: MeasuredFlags): Promise<void> {
-  for (const [set, name] of [[o.cuts, '--cuts'], [o.reorder, '--reorder'], [o.saveReordered, '--save-reordered'], [o.dim.length ? 1 : undefined, '--dim'], [o.int8, '--int8']] as const)
+  for (const [set, name] of [[o.cuts, '--cuts'], [o.reorder, '--reorder'], [o.saveReordered, '--save-reordered'], [o.dim.length ? 1 : undefined, '--dim'], [o.int8, '--int8'], [o.float, '--float']] as const)
     if (set !== undefined && set !== false) throw usageError(`${name} does not apply with --measured: the measured folder's stage files are costed as written, in int8`);
   resolveTarget({ ...o, target: o.target ?? 'm4f' }); // a typo in a target option fails before any file is read
   const m = readMeasurement(o.measured);
