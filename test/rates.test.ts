@@ -192,6 +192,14 @@ describe.skipIf(!EMU)('measured again on the emulated m4f', () => {
       expect(w.stderr).toMatch(/--target m7: .* was measured on m4f/);
       const c = offramp(['cost', dir, '--measured', f('m.json'), '--cuts', 'x']);
       expect(c.code).toBe(2);
+      // a float folder or a model file: the firmware measured is int8, of a quantized folder
+      expect(offramp(['cost', f('fan-monitor-split'), '--measured', f('m.json')]).stderr).toMatch(/fan-monitor-split is a float folder/);
+      const model = offramp(['cost', f('fan-monitor-grafted.onnx'), '--measured', f('m.json')]);
+      expect([model.code, model.stderr.trim().split('\n').length]).toEqual([2, 1]);
+      expect(model.stderr).toMatch(/is a model file/);
+      // the measurement is an input: never an output
+      expect(offramp(['cost', dir, '--measured', f('m.json'), '-o', f('m.json')]).code).toBe(2);
+      expect(fs.readFileSync(f('m.json'))).toEqual(before);
     });
   });
 });

@@ -34,6 +34,7 @@ export interface MeasuredFlags extends TargetOptions {
 function measuredChain(where: string): string {
   const st = fs.statSync(where, { throwIfNoEntry: false });
   if (!st) throw new OfframpError('io', 'no such folder', where);
+  if (st.isFile() && !where.endsWith('.json')) throw usageError(`--measured applies to the quantized folder offramp measure ran on; ${where} is a model file`);
   if (st.isDirectory() && !fs.existsSync(path.join(where, MANIFEST_FILE))) throw usageError(`--measured applies to a quantized folder (the one offramp measure ran on); ${where} has no manifest`);
   const c = chooseChain(where);
   if (c.precision !== 'int8') throw usageError(`--measured: ${where} is a float folder; the firmware measured is int8 (give its quantized folder, or the build --int8 folder)`);
