@@ -33,3 +33,27 @@ export interface PoolParams {
 }
 
 export interface RescaleParams { n: number; inZero: number; outZero: number; lo: number; hi: number; mul: Multiplier }
+
+/**
+ * Add and Mul of two int8 tensors. `a` has all n values; `b` is broadcast: each of its bN values serves
+ * `inner` consecutive values of a, and the pattern repeats (bN = n, inner = 1: the same shape; bN = 1,
+ * inner = n: a scalar; bN = C, inner = H·W: one value per channel, as squeeze-and-excitation multiplies).
+ */
+export interface BinaryParams {
+  n: number; inner: number; bN: number;
+  aZero: number; bZero: number; outZero: number; lo: number; hi: number;
+}
+/** y = round((a − aZero)·multA / 2^shift + (b − bZero)·multB / 2^shift), ties to even: one rounding of the exact sum. */
+export interface AddParams extends BinaryParams { multA: number; multB: number; shift: number }
+/** y = requant((a − aZero)·(b − bZero)) with mul = s_a·s_b / s_y. */
+export interface MulParams extends BinaryParams { mul: Multiplier }
+
+/** An elementwise function of one int8 value as a table: y = table[x + 128] (clamp included). */
+export interface LutParams { n: number; table: Int8Array }
+
+/** Concat: `outer` times, each part's next `block` values, requantized to the output's parameters. */
+export interface ConcatPart { block: number; inZero: number; mul: Multiplier; copy: boolean }
+export interface ConcatParams { outer: number; outZero: number; lo: number; hi: number; parts: ConcatPart[] }
+
+/** Transpose: output dims, and for each output axis the input's stride along it (rank ≤ 6). */
+export interface TransposeParams { n: number; dims: number[]; strides: number[] }

@@ -1,0 +1,42 @@
+/* offramp_eltwise.c: int8 Add, Mul and table lookups, portable C. The TypeScript reference is
+ * lib/kernels/eltwise.ts. b's broadcast pattern is walked with a counter (no division per value);
+ * parameters are held in locals (a store through int8_t may alias them). */
+#include "offramp_kernels.h"
+
+void offramp_add(const offramp_add_t *p, const int8_t *a, const int8_t *b, int8_t *y) {
+  const int32_t n = p->n, inner = p->inner, b_n = p->b_n, a_zero = p->a_zero, b_zero = p->b_zero;
+  const int64_t ma = p->mult_a, mb = p->mult_b, zero = p->out_zero, lo = p->lo, hi = p->hi;
+  const int32_t e = p->shift;
+  /* floor((acc + 2^(e-1) - 1 + b) / 2^e), b the floor quotient's lowest bit: to nearest, ties to even
+   * (offramp_requant.h). |acc| < 2^41, so the nudged sum stays below 2^63. */
+  const int64_t nudge = (INT64_C(1) << (e - 1)) - 1;
+  int32_t i = 0, j = 0, k;
+  while (i < n) {
+    const int64_t tb = (int64_t)(b[j] - b_zero) * mb;
+    for (k = 0; k < inner; k++, i++) {
+      const int64_t acc = (int64_t)(a[i] - a_zero) * ma + tb;
+      int64_t v = ((acc + nudge + ((acc >> e) & 1)) >> e) + zero;
+      y[i] = (int8_t)(v < lo ? lo : v > hi ? hi : v);
+    }
+    if (++j == b_n) j = 0;
+  }
+}
+
+void offramp_mul(const offramp_mul2_t *p, const int8_t *a, const int8_t *b, int8_t *y) {
+  const int32_t n = p->n, inner = p->inner, b_n = p->b_n, a_zero = p->a_zero, b_zero = p->b_zero;
+  const int32_t zero = p->out_zero, lo = p->lo, hi = p->hi;
+  const offramp_mul_t m = p->mul;
+  int32_t i = 0, j = 0, k;
+  while (i < n) {
+    const int32_t vb = b[j] - b_zero;
+    for (k = 0; k < inner; k++, i++) y[i] = offramp_to_int8((a[i] - a_zero) * vb, m, zero, lo, hi);
+    if (++j == b_n) j = 0;
+  }
+}
+
+void offramp_lut(const offramp_lut_t *p, const int8_t *x, int8_t *y) {
+  const int32_t n = p->n;
+  const int8_t *table = p->table + 128;
+  int32_t i;
+  for (i = 0; i < n; i++) y[i] = table[x[i]];
+}
