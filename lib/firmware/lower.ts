@@ -19,12 +19,37 @@ import { OfframpError } from '../errors.js';
 import type { Manifest, ManifestStage } from '../split/manifest.js';
 import { chainTable } from '../emit/table.js';
 import { quantizeMultiplier, quantizeValue, type Multiplier } from '../kernels/requant.js';
-import type { PoolParams } from '../kernels/types.js';
-import type { Program, ProgramStage, Slot, Step, Tensor8 } from './program.js';
+import type { ConcatPart, PoolParams } from '../kernels/types.js';
+import { addMultipliers } from '../kernels/eltwise.js';
+import { activationTable, unaryOf, type Unary } from '../kernels/lut.js';
+import { stepInputs, type Program, type ProgramStage, type Slot, type Step, type Tensor8 } from './program.js';
 
 /** Ops whose int8 output holds input values only: bytes copied (or rescaled where the parameters differ). */
 const RESHAPES = new Set(['Flatten', 'Reshape', 'Squeeze', 'Unsqueeze', 'Identity', 'Dropout']);
 const f32 = Math.fround;
+/** Elementwise functions of one value that run as a 256-entry table (lib/kernels/lut.ts). */
+const TABLED = new Set(['Sigmoid', 'Tanh', 'HardSigmoid', 'HardSwish', 'LeakyRelu', 'Relu', 'Clip']);
+const prod = (v: number[]) => v.reduce((a, b) => a * b, 1);
+
+/**
+ * How b broadcasts over the full shape (NumPy rules, as ONNX's): b's axes that are not 1 must match
+ * and be one run of the full shape's axes (ignoring axes of size 1); then each b value serves the
+ * values after that run. undefined: another pattern.
+ */
+export function broadcastOf(full: number[], b: number[]): { inner: number; bN: number } | undefined {
+  if (b.length > full.length) return undefined;
+  const bd = [...new Array(full.length - b.length).fill(1), ...b];
+  let first = -1, last = -1;
+  for (let k = 0; k < full.length; k++) {
+    if (bd[k] !== 1 && bd[k] !== full[k]) return undefined;
+    if (full[k] === 1 || bd[k] === 1) continue;
+    if (last >= 0 && last !== k - 1 && full.slice(last + 1, k).some((d) => d !== 1)) return undefined;
+    if (first < 0) first = k;
+    last = k;
+  }
+  if (first < 0) return { inner: prod(full), bN: 1 };
+  return { inner: prod(full.slice(last + 1)), bN: prod(full.slice(first, last + 1)) };
+}
 
 class StageReader {
   readonly shapes: ShapeResult;
@@ -330,7 +355,56 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
         }
         break;
       }
+      case 'Add': case 'Mul': {
+        if (acts.length !== 2 || n.inputs.length !== 2) r.fail(`${n.op} with a constant operand: the int8 firmware ${n.op === 'Add' ? 'adds' : 'multiplies'} two int8 tensors`, n);
+        let [ta, tb] = [x, source(n.inputs[1], n)], db = r.dims(n.inputs[1], n);
+        if (ta.size !== y.size) { [ta, tb] = [tb, ta]; db = xd; }
+        const bc = ta.size === y.size ? broadcastOf(yd, db) : undefined;
+        if (!bc) r.fail(`broadcasts ${JSON.stringify(r.dims(n.inputs[0], n))} with ${JSON.stringify(r.dims(n.inputs[1], n))}: the int8 firmware broadcasts one operand as a scalar or along one run of axes`, n);
+        const bin = { n: y.size, ...bc, aZero: ta.zeroPoint, bZero: tb.zeroPoint, outZero: y.zeroPoint, lo, hi };
+        if (n.op === 'Add') {
+          let m: ReturnType<typeof addMultipliers>;
+          try { m = addMultipliers(ta.scale / y.scale, tb.scale / y.scale); } catch (e) { r.fail((e as Error).message, n); }
+          steps.push({ ...base, x: ta, x2: tb, kind: 'add', p: { ...bin, ...m } });
+        } else steps.push({ ...base, x: ta, x2: tb, kind: 'mul', p: { ...bin, mul: multiplier(f32(ta.scale * tb.scale) / y.scale, 'requantization of the product') } });
+        break;
+      }
+      case 'Concat': {
+        if (acts.length !== n.inputs.length) r.fail('Concat with a constant part: the int8 firmware concatenates int8 tensors', n);
+        const xs = n.inputs.map((v) => source(v, n));
+        const ax = a.int('axis', 0), axis = ax < 0 ? ax + yd.length : ax;
+        if (axis < 0 || axis >= yd.length) r.fail(`axis ${ax} is outside rank ${yd.length}`, n);
+        const parts: ConcatPart[] = n.inputs.map((v, k) => ({
+          block: prod(r.dims(v, n).slice(axis)), inZero: xs[k].zeroPoint,
+          mul: multiplier(xs[k].scale / y.scale, `requantization of part ${k}`),
+          copy: xs[k].scale === y.scale && xs[k].zeroPoint === y.zeroPoint && lo === -128 && hi === 127,
+        }));
+        const outer = prod(yd.slice(0, axis));
+        if (outer * parts.reduce((t, q) => t + q.block, 0) !== y.size) r.fail('parts do not add up to the output', n);
+        steps.push({ ...base, kind: 'concat', xs, p: { outer, outZero: y.zeroPoint, lo, hi, parts } });
+        break;
+      }
+      case 'Transpose': {
+        if (xd.length > 6) r.fail(`rank ${xd.length}: the int8 firmware transposes up to rank 6`, n);
+        const perm = a.ints('perm') ?? xd.map((_, k) => xd.length - 1 - k);
+        if (perm.length !== xd.length || [...perm].sort().some((v, k) => v !== k)) r.fail(`perm ${JSON.stringify(perm)} is not a permutation of ${xd.length} axes`, n);
+        if (x.scale !== y.scale || x.zeroPoint !== y.zeroPoint || lo !== -128 || hi !== 127) r.fail('Transpose output quantized with other parameters than its input', n);
+        const strides = xd.map((_, d) => prod(xd.slice(d + 1)));
+        steps.push({ ...base, kind: 'transpose', p: { n: x.size, dims: perm.map((d) => xd[d]), strides: perm.map((d) => strides[d]) } });
+        break;
+      }
       default:
+        if (TABLED.has(n.op)) {
+          if (x.size !== y.size) r.fail(`changes the element count (${x.size} → ${y.size})`, n);
+          let fn: Unary | undefined;
+          if (n.op === 'Relu') fn = (v) => Math.max(0, v);
+          else if (n.op === 'Clip') {
+            const min = n.inputs[1] ? r.value(n.inputs[1], n)[0] : a.float('min', -Infinity)!, max = n.inputs[2] ? r.value(n.inputs[2], n)[0] : a.float('max', Infinity)!;
+            fn = (v) => Math.min(max, Math.max(min, v));
+          } else fn = unaryOf(n.op, { float: (k, d) => a.float(k, d)! });
+          steps.push({ ...base, kind: 'lut', p: { n: x.size, table: activationTable(fn!, x, y, lo, hi) } });
+          break;
+        }
         if (RESHAPES.has(n.op)) {
           if (x.size !== y.size) r.fail(`changes the element count (${x.size} → ${y.size})`, n);
           if (x.scale === y.scale && x.zeroPoint === y.zeroPoint && lo === -128 && hi === 127) steps.push({ ...base, kind: 'copy', n: x.size });
@@ -421,7 +495,7 @@ function fold(bias: Int32Array, w: ArrayLike<number>, per: number, zx: number): 
 function checkLifetimes(steps: Step[], arenaBytes: number, file: string): void {
   const live: { t: Tensor8; last: number }[] = [];
   const lastUse = new Map<string, number>();
-  steps.forEach((s, i) => { lastUse.set(s.x.name, i); });
+  steps.forEach((s, i) => { for (const t of stepInputs(s)) lastUse.set(t.name, i); });
   steps.forEach((s, i) => {
     const y = s.y;
     if (y.slot.kind !== 'arena') return;
@@ -434,14 +508,17 @@ function checkLifetimes(steps: Step[], arenaBytes: number, file: string): void {
     }
     live.push({ t: y, last: lastUse.get(y.name) ?? i });
   });
-  // the stage input's int8 tensor lives from the start: it is the first step's input
+  // an int8 tensor no step writes (the stage's quantized input) lives from the start to its last reader
+  const written = new Set(steps.map((s) => s.y.name));
   const first = steps[0]?.x;
-  if (first && first.slot.kind === 'arena') {
-    const a = first.slot.offset, b = a + first.size, last = lastUse.get(first.name) ?? 0;
+  const unwritten = new Map(steps.flatMap((s) => stepInputs(s)).filter((t) => !written.has(t.name) && t.slot.kind === 'arena').map((t) => [t.name, t]));
+  for (const t of unwritten.values()) {
+    if (t.slot.kind !== 'arena') continue;
+    const a = t.slot.offset, b = a + t.size, last = lastUse.get(t.name) ?? 0;
     steps.forEach((s, i) => {
-      if (i > last || i === 0 || s.y.slot.kind !== 'arena') return;
+      if (i > last || (i === 0 && t === first) || s.y.slot.kind !== 'arena') return;
       const lo = s.y.slot.offset, hi = lo + s.y.size;
-      if (a < hi && lo < b) throw new OfframpError('data', `arena plan puts '${s.y.name}' over the stage input '${first.name}' while it is needed`, file);
+      if (a < hi && lo < b) throw new OfframpError('data', `arena plan puts '${s.y.name}' over the stage input '${t.name}' while it is needed`, file);
     });
   }
 }

@@ -227,3 +227,43 @@ export function tinyMlp(): Model {
   b.output(b.node('MatMul', [x, b.init('wo', 1, [24, 4])]), 1, ['N', 4]);
   return b.build();
 }
+
+/**
+ * A small CNN with the operators of the int8 firmware beyond the plain conv stack (3×12×12 in, 4 classes):
+ * SiLU (Sigmoid and a same-shape Mul), a residual Add with a fused Relu, a squeeze-and-excitation gate
+ * (HardSigmoid, a per-channel Mul), HardSwish and Tanh branches joined by a Concat, a Transpose,
+ * LeakyRelu. Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
+ * kernel) after the first conv instead.
+ */
+export function opsNet(o: { softmax?: boolean } = {}): Model {
+  const b = modelBuilder({ opset: 17, name: 'ops_net', seed: 7 });
+  // He-uniform weights (±sqrt(6 / fan-in), He et al. 2015): the signal keeps its size through the layers, so the logits vary with the input
+  const he = (fanIn: number): { uniform: [number, number] } => ({ uniform: [-Math.sqrt(6 / fanIn), Math.sqrt(6 / fanIn)] });
+  const conv = (x: string, name: string, cin: number, cout: number, k: number, stride = 1) => b.node('Conv', [x, b.init(`${name}.weight`, FLOAT, [cout, cin, k, k], he(cin * k * k)), b.init(`${name}.bias`, FLOAT, [cout], { uniform: [-0.1, 0.1] })],
+    { kernel_shape: [k, k], strides: [stride, stride], pads: new Array(4).fill((k - 1) >> 1) }, { name });
+  const x = b.input('input', FLOAT, ['N', 3, 12, 12]);
+  const c1 = conv(x, 'conv1', 3, 8, 3);
+  if (o.softmax) {
+    const s = b.node('Softmax', [c1], { axis: 1 }, { name: 'attend' });
+    const y = conv(s, 'conv2', 8, 4, 3);
+    const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [y], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
+    b.output(b.node('Gemm', [pooled, b.init('fc.weight', FLOAT, [4, 4]), b.init('fc.bias', FLOAT, [4])], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
+    return b.build();
+  }
+  const a1 = b.node('Mul', [c1, b.node('Sigmoid', [c1], {}, { name: 'conv1.sigmoid' })], {}, { name: 'conv1.silu' });
+  const r = conv(a1, 'block.conv', 8, 8, 3);
+  const res = b.node('Relu', [b.node('Add', [r, a1], {}, { name: 'block.add' })], {}, { name: 'block.relu' });
+  const pool = b.node('MaxPool', [res], { kernel_shape: [2, 2], strides: [2, 2] }, { name: 'pool', outputs: ['pool'] })[0];
+  const g = b.node('GlobalAveragePool', [pool], {}, { name: 'se.pool' });
+  const s1 = b.node('Relu', [conv(g, 'se.fc1', 8, 4, 1)], {}, { name: 'se.relu' });
+  const gate = b.node('HardSigmoid', [conv(s1, 'se.fc2', 4, 8, 1)], { alpha: b.float(1 / 6), beta: b.float(0.5) }, { name: 'se.gate' });
+  const se = b.node('Mul', [pool, gate], {}, { name: 'se.excite' });
+  const h = b.node('HardSwish', [conv(se, 'branch1', 8, 6, 1)], {}, { name: 'branch1.hswish' });
+  const t = b.node('Tanh', [conv(se, 'branch2', 8, 4, 3)], {}, { name: 'branch2.tanh' });
+  const cat = b.node('Concat', [h, t], { axis: 1 }, { name: 'concat' });
+  const tr = b.node('Transpose', [cat], { perm: [0, 1, 3, 2] }, { name: 'transpose', outputs: ['shuffled'] })[0];
+  const l = b.node('LeakyRelu', [conv(tr, 'conv3', 10, 12, 3, 2)], { alpha: b.float(0.1) }, { name: 'conv3.leaky' });
+  const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [l], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
+  b.output(b.node('Gemm', [pooled, b.init('fc.weight', FLOAT, [4, 12], he(12)), b.init('fc.bias', FLOAT, [4], { uniform: [-0.1, 0.1] })], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
+  return b.build();
+}
