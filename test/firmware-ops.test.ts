@@ -159,3 +159,31 @@ describe.skipIf(!GCC)('int8 firmware: Add, Mul, Concat, Transpose and activation
     expect(agree).toBeGreaterThanOrEqual(0.99);
   });
 });
+
+describe('int8 firmware: an operator without a kernel', () => {
+  it('is refused by op type, node name and stage file: exit 1, nothing written', () => {
+    saveModel(opsNet({ softmax: true }), f('soft.onnx'));
+    for (const args of [
+      ['graft', f('soft.onnx'), '--cuts', 'attended', '--data', f('fit.npy'), '-o', f('soft-g.onnx')],
+      ['split', f('soft-g.onnx'), '-o', f('soft-split')],
+      ['quantize', f('soft-split'), '--data', f('cal.npy'), '-o', f('soft-q')],
+    ]) {
+      const r = offramp(args);
+      expect(r.code, `${args[0]}: ${r.stderr}`).toBe(0);
+    }
+    const stage0 = (JSON.parse(fs.readFileSync(f('soft-q/manifest.json'), 'utf8')) as { stages: { file: string }[] }).stages[0].file;
+    const e = offramp(['emit-c', f('soft-q'), '-o', f('soft-fw'), '--policy', '{"kind":"confidence","thresholds":[0.9]}']);
+    expect(e.code).toBe(1);
+    expect(e.stderr.trim().split('\n')).toHaveLength(1);
+    expect(e.stderr).toContain(path.join(f('soft-q'), stage0));
+    expect(e.stderr).toContain("node 'attend' (Softmax)");
+    expect(e.stderr).toMatch(/op Softmax has no int8 kernel/);
+    expect(fs.existsSync(f('soft-fw'))).toBe(false);
+    // into a folder that exists: left as it was
+    fs.mkdirSync(f('soft-fw'));
+    fs.writeFileSync(f('soft-fw/main.c'), 'int main(void) { return 0; }\n');
+    expect(offramp(['emit-c', f('soft-q'), '-o', f('soft-fw'), '--policy', '{"kind":"confidence","thresholds":[0.9]}']).code).toBe(1);
+    expect(fs.readdirSync(f('soft-fw'))).toEqual(['main.c']);
+    console.log(`refused: ${e.stderr.trim()}`);
+  });
+});

@@ -233,7 +233,7 @@ export function tinyMlp(): Model {
  * SiLU (Sigmoid and a same-shape Mul), a residual Add with a fused Relu, a squeeze-and-excitation gate
  * (HardSigmoid, a per-channel Mul), HardSwish and Tanh branches joined by a Concat, a Transpose,
  * LeakyRelu. Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
- * kernel) after the first conv instead.
+ * kernel) after the first conv instead, its output named `attended`.
  */
 export function opsNet(o: { softmax?: boolean } = {}): Model {
   const b = modelBuilder({ opset: 17, name: 'ops_net', seed: 7 });
@@ -244,7 +244,7 @@ export function opsNet(o: { softmax?: boolean } = {}): Model {
   const x = b.input('input', FLOAT, ['N', 3, 12, 12]);
   const c1 = conv(x, 'conv1', 3, 8, 3);
   if (o.softmax) {
-    const s = b.node('Softmax', [c1], { axis: 1 }, { name: 'attend' });
+    const s = b.node('Softmax', [c1], { axis: 1 }, { name: 'attend', outputs: ['attended'] })[0];
     const y = conv(s, 'conv2', 8, 4, 3);
     const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [y], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
     b.output(b.node('Gemm', [pooled, b.init('fc.weight', FLOAT, [4, 4]), b.init('fc.bias', FLOAT, [4])], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
