@@ -123,6 +123,15 @@ async function ortTensors(dir: string, program: Program, x: Float32Array): Promi
 }
 
 describe.skipIf(!GCC)('int8 firmware: Add, Mul, Concat, Transpose and activation tables', () => {
+  it('writes the new kernels into the library, with no double, libm or malloc', () => {
+    const names = fs.readdirSync(f('fw'));
+    for (const n of ['offramp_eltwise.c', 'offramp_layout.c']) expect(names).toContain(n);
+    for (const n of names.filter((x) => /^offramp_(eltwise|layout|kernels|run|net)\.[ch]$/.test(x))) {
+      const text = fs.readFileSync(f(`fw/${n}`), 'utf8').replace(/\/\*[\s\S]*?\*\//g, '');
+      expect(text, n).not.toMatch(/\bdouble\b|<math\.h>|\bmalloc\b|\bfree\b/);
+    }
+  });
+
   it('lowers every operator of the net to a kernel step', () => {
     const { program } = loadProgram(f('q'));
     const kinds = new Set(program.stages.flatMap((s) => s.steps.map((t) => t.kind)));
