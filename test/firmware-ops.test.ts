@@ -158,7 +158,8 @@ describe.skipIf(!GCC)('int8 firmware: Add, Mul, Concat, Transpose and activation
     const { program, manifest, reach, outputs } = loadProgram(f('q'));
     const by = await ortTensors(f('q'), program, val.subarray(0, 200 * PER));
     console.log(`ops net int8 tensors vs onnxruntime (200 frames), by kernel, where the step's inputs were equal: ${[...by].map(([k, e]) => `${k} ${histogram(e.steps)}`).join('; ')}`);
-    console.log(`  and after an input already differed by a step: ${[...by].filter(([, e]) => e.after.size).map(([k, e]) => `${k} ${histogram(e.after)}`).join('; ')}`);
+    const after = [...by].filter(([, e]) => e.after.size);
+    console.log(`  after an input already differed: ${after.length ? after.map(([k, e]) => `${k} ${histogram(e.after)}`).join('; ') : 'none (no input differed)'}`);
     const fa = firmwareAnswers(f('fw.exe'), val);
     const o = await againstOrt(f('q'), program, outputs, manifest.policy!.rule, reach, val, fa);
     const agree = 1 - o.differ.length / o.frames;

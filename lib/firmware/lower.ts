@@ -355,7 +355,18 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
         }
         break;
       }
-      case 'Add': case 'Mul': {
+      case 'Add': case 'Mul': case 'Sub': case 'Div': {
+        if (acts.length === 1 && n.inputs.length === 2) {
+          // with a float scalar constant it is a function of one value: a table (x + 3, x / 6 of a HardSwish written out)
+          const k = n.inputs[0] === acts[0] ? 1 : 0, c = r.isConst(n.inputs[k]) ? r.value(n.inputs[k], n) : undefined;
+          if (!(c instanceof Float32Array) || c.length !== 1) r.fail(`${n.op} with a constant operand of more than one value: the int8 firmware tables a scalar constant only`, n);
+          const v = c[0], first = k === 1;
+          const fn: Unary = n.op === 'Add' ? (t) => f32(t + v) : n.op === 'Mul' ? (t) => f32(t * v)
+            : n.op === 'Sub' ? (first ? (t) => f32(t - v) : (t) => f32(v - t)) : (first ? (t) => f32(t / v) : (t) => f32(v / t));
+          steps.push({ ...base, kind: 'lut', p: { n: x.size, table: activationTable(fn, x, y, lo, hi) } });
+          break;
+        }
+        if (n.op === 'Sub' || n.op === 'Div') r.fail(`${n.op} of two int8 tensors has no int8 kernel in offramp's firmware`, n);
         if (acts.length !== 2 || n.inputs.length !== 2) r.fail(`${n.op} with a constant operand: the int8 firmware ${n.op === 'Add' ? 'adds' : 'multiplies'} two int8 tensors`, n);
         let [ta, tb] = [x, source(n.inputs[1], n)], db = r.dims(n.inputs[1], n);
         if (ta.size !== y.size) { [ta, tb] = [tb, ta]; db = xd; }

@@ -232,7 +232,7 @@ export function tinyMlp(): Model {
  * A small CNN with the operators of the int8 firmware beyond the plain conv stack (3×12×12 in, 4 classes):
  * SiLU (Sigmoid and a same-shape Mul), a residual Add with a fused Relu, a squeeze-and-excitation gate
  * (HardSigmoid, a per-channel Mul with the gate first), HardSwish and Tanh branches joined by a Concat, a Transpose,
- * LeakyRelu. Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
+ * LeakyRelu, and a HardSwish written out (Add, Clip and Div by scalar constants, a Mul). Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
  * kernel) after the first conv instead, its output named `attended`.
  */
 export function opsNet(o: { softmax?: boolean } = {}): Model {
@@ -263,7 +263,11 @@ export function opsNet(o: { softmax?: boolean } = {}): Model {
   const cat = b.node('Concat', [h, t], { axis: 1 }, { name: 'concat' });
   const tr = b.node('Transpose', [cat], { perm: [0, 1, 3, 2] }, { name: 'transpose', outputs: ['shuffled'] })[0];
   const l = b.node('LeakyRelu', [conv(tr, 'conv3', 10, 12, 3, 2)], { alpha: b.float(0.1) }, { name: 'conv3.leaky' });
-  const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [l], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
+  // HardSwish written out as older exporters do: x · Clip(x + 3, 0, 6) / 6
+  const k = (name: string, v: number) => b.init(name, FLOAT, [], [v]);
+  const relu6 = b.node('Clip', [b.node('Add', [l, k('three', 3)], {}, { name: 'hs.add' }), k('zero', 0), k('six', 6)], {}, { name: 'hs.clip' });
+  const hs = b.node('Mul', [l, b.node('Div', [relu6, k('six.d', 6)], {}, { name: 'hs.div' })], {}, { name: 'hs.mul' });
+  const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [hs], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
   b.output(b.node('Gemm', [pooled, b.init('fc.weight', FLOAT, [4, 12], he(12)), b.init('fc.bias', FLOAT, [4], { uniform: [-0.1, 0.1] })], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
   return b.build();
 }
