@@ -1,4 +1,4 @@
-// The int8 firmware's operators beyond the conv stack (Add, Mul, Concat, Transpose, the activation
+// The int8 firmware's operators beyond the conv stack (Add, Mul, Concat, Split, Transpose, the activation
 // tables), end to end on a small CNN built in code (test/helpers/nets.ts: opsNet) and invented data
 // (four classes: a square in one quadrant of a noisy 3×12×12 frame, its colour by class): grafted, split,
 // quantized and tuned with the CLI, emit-c, compiled with gcc. Every int8 tensor equals the
@@ -135,7 +135,7 @@ describe.skipIf(!GCC)('int8 firmware: Add, Mul, Concat, Transpose and activation
   it('lowers every operator of the net to a kernel step', () => {
     const { program } = loadProgram(f('q'));
     const kinds = new Set(program.stages.flatMap((s) => s.steps.map((t) => t.kind)));
-    for (const k of ['conv', 'add', 'mul', 'lut', 'concat', 'transpose', 'maxpool', 'avgpool', 'dense']) expect(kinds, k).toContain(k);
+    for (const k of ['conv', 'add', 'mul', 'lut', 'concat', 'transpose', 'slice', 'maxpool', 'avgpool', 'dense']) expect(kinds, k).toContain(k);
     console.log(`ops net: ${program.stages.map((s) => `stage ${s.index}: ${s.steps.map((t) => t.kind).join(' ')}`).join('; ')}`);
   });
 

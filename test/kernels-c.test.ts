@@ -14,7 +14,7 @@ import { dense } from '../lib/kernels/dense.js';
 import { avgpool, maxpool } from '../lib/kernels/pool.js';
 import { rescale } from '../lib/kernels/misc.js';
 import { add, addMultipliers, lut, mul as mulKernel } from '../lib/kernels/eltwise.js';
-import { concat, transpose } from '../lib/kernels/layout.js';
+import { concat, slice, transpose } from '../lib/kernels/layout.js';
 import { activationTable, unaryOf } from '../lib/kernels/lut.js';
 import { netTables } from '../lib/firmware/tables.js';
 import { firmwareSourceDirs } from '../lib/firmware/write.js';
@@ -139,6 +139,15 @@ function transposeStep(j: number): Step {
   return { kind: 'transpose', node: `transpose${j}`, x: tensor(`x${j}`, n), y: tensor(`y${j}`, n), p: { n, dims: perm.map((d) => inDims[d]), strides: perm.map((d) => inStrides[d]) } };
 }
 
+function sliceStep(j: number): Step {
+  const outer = int(1, 3), inner = int(1, 6), rows = int(1, 6), from = int(0, rows - 1), take = int(1, rows - from);
+  const outZero = int(-128, 127), same = rnd() < 0.3, [lo, hi] = same ? [-128, 127] : clamp(outZero);
+  return { kind: 'slice', node: `slice${j}`, x: tensor(`x${j}`, outer * rows * inner), y: tensor(`y${j}`, outer * take * inner), p: {
+    outer, inRow: rows * inner, start: from * inner, block: take * inner, inZero: same ? outZero : int(-128, 127), outZero, lo, hi,
+    mul: quantizeMultiplier(same ? 1 : 0.2 + rnd() * 3), copy: same,
+  } };
+}
+
 function reference(s: Step, xs: Int8Array[]): Int8Array {
   const y = new Int8Array(s.y.size), x = xs[0];
   switch (s.kind) {
@@ -153,12 +162,13 @@ function reference(s: Step, xs: Int8Array[]): Int8Array {
     case 'lut': lut(s.p, x, y); break;
     case 'concat': concat(s.p, xs, y); break;
     case 'transpose': transpose(s.p, x, y); break;
+    case 'slice': slice(s.p, x, y); break;
   }
   return y;
 }
 
 describe.skipIf(!GCC)('C kernels against the TypeScript reference', () => {
-  it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale, add and mul (same shape, scalar, per channel), activation tables, concat, transpose: every output byte equal', () => {
+  it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale, add and mul (same shape, scalar, per channel), activation tables, concat, transpose, split parts: every output byte equal', () => {
     const steps: Step[] = [];
     for (let j = 0; j < 60; j++) steps.push(convStep(j, false, false));
     for (let j = 60; j < 80; j++) steps.push(convStep(j, true, false));
@@ -172,6 +182,7 @@ describe.skipIf(!GCC)('C kernels against the TypeScript reference', () => {
     for (let j = 290; j < 310; j++) steps.push(lutStep(j));
     for (let j = 310; j < 335; j++) steps.push(concatStep(j));
     for (let j = 335; j < 360; j++) steps.push(transposeStep(j));
+    for (let j = 360; j < 380; j++) steps.push(sliceStep(j));
     const classes = 4;
     const program: Program = {
       stages: [{ index: 0, file: 'kernels', steps, arenaBytes: offset, macs: 0 }],

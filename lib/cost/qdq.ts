@@ -42,10 +42,12 @@ export function qdqView(g: Graph, order: number[]): QdqView | undefined {
   const onlyQuantized = (v: string) => { const c = consumers.get(v) ?? []; return c.length > 0 && c.every((n) => !n.domain && n.op === 'QuantizeLinear'); };
   for (const n of g.nodes) {
     if (n.domain) continue;
-    const out = n.outputs[0];
-    if (!out || io.has(out) || constant.has(out)) continue;
-    if (n.op === 'DequantizeLinear') link.set(out, n.inputs[0]);
-    else if (onlyQuantized(out)) link.set(out, consumers.get(out)![0].outputs[0]);
+    // every output: each part of a Split is quantized on its own
+    n.outputs.forEach((out, k) => {
+      if (!out || io.has(out) || constant.has(out)) return;
+      if (n.op === 'DequantizeLinear') { if (k === 0) link.set(out, n.inputs[0]); }
+      else if (onlyQuantized(out)) link.set(out, consumers.get(out)![0].outputs[0]);
+    });
   }
   const isDq = (v: string) => { const p = producer.get(v); return !!p && !p.domain && p.op === 'DequantizeLinear'; };
   const int8Nodes = new Set<number>();

@@ -7,7 +7,7 @@ import { dense } from '../kernels/dense.js';
 import { avgpool, maxpool } from '../kernels/pool.js';
 import { quantizeInput, rescale } from '../kernels/misc.js';
 import { add, lut, mul } from '../kernels/eltwise.js';
-import { concat, transpose } from '../kernels/layout.js';
+import { concat, slice, transpose } from '../kernels/layout.js';
 import { chainFor, fullModel, isStream, runFrame, type Chain, type ExitView, type FramePolicy, type Policy } from '../policy/policy.js';
 import { streamStart, streamStep, type StreamState } from '../policy/stream.js';
 import { OfframpError } from '../errors.js';
@@ -58,6 +58,7 @@ export class Int8Machine {
         case 'lut': lut(s.p, x, y); break;
         case 'concat': concat(s.p, s.xs.map((t) => this.view(t)), y); break;
         case 'transpose': transpose(s.p, x, y); break;
+        case 'slice': slice(s.p, x, y); break;
       }
       seen?.set(s.y.name, Int8Array.from(y));
     }

@@ -227,8 +227,8 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     return t;
   };
   /** Follow the op's output through an optional Relu/Clip to its QuantizeLinear: the int8 output and its clamp. */
-  const sink = (n: Node): { y: Tensor8; lo: number; hi: number } => {
-    let v = n.outputs[0], lo = -128, hi = 127;
+  const sink = (n: Node, k = 0): { y: Tensor8; lo: number; hi: number } => {
+    let v = n.outputs[k], lo = -128, hi = 127;
     let c = r.only(v);
     const act: Node[] = [];
     while (c && !c.domain && (c.op === 'Relu' || c.op === 'Clip') && !graphOut.has(v)) { act.push(c); v = c.outputs[0]; c = r.only(v); }
@@ -265,15 +265,40 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     if (!acts.length) r.fail('op of constants only', n);
     const x = source(acts[0], n);
     const xd = r.dims(acts[0], n);
-    const { y, lo, hi } = sink(n);
-    let c: Node | undefined = r.only(n.outputs[0]);
-    while (c && (c.op === 'Relu' || c.op === 'Clip')) { handled.add(c); c = r.only(c.outputs[0]); }
-    if (c) handled.add(c);
-    const yd = y.shape;
+    /** The int8 output of output k, its clamp; the activations and QuantizeLinear after it are this step's. */
+    const claim = (k: number) => {
+      const got = sink(n, k);
+      let c: Node | undefined = r.only(n.outputs[k]);
+      while (c && (c.op === 'Relu' || c.op === 'Clip')) { handled.add(c); c = r.only(c.outputs[0]); }
+      if (c) handled.add(c);
+      return got;
+    };
     const a = attrsOf(n.attrs);
     const multiplier = (real: number, what: string): Multiplier => {
       try { return quantizeMultiplier(real, what); } catch (e) { r.fail((e as Error).message, n); }
     };
+    if (n.op === 'Split') {
+      // one slice step per output: its rows of the split axis, requantized to the output's parameters
+      const ax = a.int('axis', 0), axis = ax < 0 ? ax + xd.length : ax;
+      if (axis < 0 || axis >= xd.length) r.fail(`axis ${ax} is outside rank ${xd.length}`, n);
+      const inner = prod(xd.slice(axis + 1)), outer = prod(xd.slice(0, axis));
+      let at = 0;
+      n.outputs.forEach((o, k) => {
+        if (!o) r.fail(`output ${k} is unnamed: the int8 firmware writes every part`, n);
+        const rows = r.dims(o, n)[axis];
+        const { y, lo, hi } = claim(k);
+        steps.push({ node: node(n), x, y, kind: 'slice', p: {
+          outer, inRow: xd[axis] * inner, start: at * inner, block: rows * inner,
+          inZero: x.zeroPoint, outZero: y.zeroPoint, lo, hi, mul: multiplier(x.scale / y.scale, `requantization of part ${k}`),
+          copy: x.scale === y.scale && x.zeroPoint === y.zeroPoint && lo === -128 && hi === 127,
+        } });
+        at += rows;
+      });
+      if (at !== xd[axis]) r.fail(`parts take ${at} of ${xd[axis]} rows`, n);
+      continue;
+    }
+    const { y, lo, hi } = claim(0);
+    const yd = y.shape;
     const base = { node: node(n), x, y };
     switch (n.op) {
       case 'Conv': {

@@ -1,7 +1,7 @@
 // The integer program of a quantized chain: what the int8 firmware executes, stage by stage, as
 // data. `lower.ts` makes it from the QDQ stage files, `interp.ts` runs it in TypeScript (the
 // reference), `tables.ts` writes it as the C tables that offramp_run.c walks.
-import type { AddParams, ConcatParams, ConvParams, DenseParams, LutParams, MulParams, PoolParams, RescaleParams, TransposeParams } from '../kernels/types.js';
+import type { AddParams, ConcatParams, ConvParams, DenseParams, LutParams, MulParams, PoolParams, RescaleParams, SliceParams, TransposeParams } from '../kernels/types.js';
 
 /** Where an int8 tensor lives on the device. */
 export type Slot =
@@ -36,7 +36,9 @@ export type Step =
   | StepBase & { kind: 'lut'; p: LutParams }
   /** xs: every part in order (x is the first) */
   | StepBase & { kind: 'concat'; xs: Tensor8[]; p: ConcatParams }
-  | StepBase & { kind: 'transpose'; p: TransposeParams };
+  | StepBase & { kind: 'transpose'; p: TransposeParams }
+  /** one output of a Split (a Split of k parts is k steps) */
+  | StepBase & { kind: 'slice'; p: SliceParams };
 
 /** Every int8 tensor a step reads, in order. */
 export function stepInputs(s: Step): Tensor8[] {

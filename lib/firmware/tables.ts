@@ -7,7 +7,7 @@ import { OfframpError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { hexDouble } from '../emit/c.js';
 import type { Multiplier } from '../kernels/requant.js';
-import type { AddParams, ConcatParams, ConvParams, DenseParams, LutParams, MulParams, PoolParams, RescaleParams, TransposeParams } from '../kernels/types.js';
+import type { AddParams, ConcatParams, ConvParams, DenseParams, LutParams, MulParams, PoolParams, RescaleParams, SliceParams, TransposeParams } from '../kernels/types.js';
 import type { Program, Step, Tensor8 } from './program.js';
 
 export const NET_HEADER = 'offramp_net.h';
@@ -15,7 +15,7 @@ export const NET_SOURCE = 'offramp_net.c';
 
 const comment = (s: string) => s.replace(/\*\//g, '* /').replace(/[^\x20-\x7e]/g, '?');
 const KIND = { conv: 'OFFRAMP_STEP_CONV', dense: 'OFFRAMP_STEP_DENSE', maxpool: 'OFFRAMP_STEP_MAXPOOL', avgpool: 'OFFRAMP_STEP_AVGPOOL', copy: 'OFFRAMP_STEP_COPY', rescale: 'OFFRAMP_STEP_RESCALE',
-  add: 'OFFRAMP_STEP_ADD', mul: 'OFFRAMP_STEP_MUL', lut: 'OFFRAMP_STEP_LUT', concat: 'OFFRAMP_STEP_CONCAT', transpose: 'OFFRAMP_STEP_TRANSPOSE' } as const;
+  add: 'OFFRAMP_STEP_ADD', mul: 'OFFRAMP_STEP_MUL', lut: 'OFFRAMP_STEP_LUT', concat: 'OFFRAMP_STEP_CONCAT', transpose: 'OFFRAMP_STEP_TRANSPOSE', slice: 'OFFRAMP_STEP_SLICE' } as const;
 
 function array(type: string, name: string, values: ArrayLike<number | string>, perLine = 24): string {
   if (!values.length) return `static const ${type} ${name}[1] = { 0 };\n`;
@@ -167,6 +167,11 @@ function stepParams(s: Step, id: string, out: string[], where: (t: Tensor8) => s
       const p: TransposeParams = s.p;
       const pad = (v: number[]) => [...v, ...new Array(Math.max(0, 6 - v.length)).fill(0)].join(', ');
       out.push(`static const offramp_transpose_t ${id} = { ${p.n}, ${p.dims.length}, { ${pad(p.dims)} }, { ${pad(p.strides)} } };\n`);
+      return `&${id}`;
+    }
+    case 'slice': {
+      const p: SliceParams = s.p;
+      out.push(`static const offramp_slice_t ${id} = { ${[p.outer, p.inRow, p.start, p.block, p.inZero, p.outZero, p.lo, p.hi].join(', ')}, { ${int32(p.mul.mult)}, ${p.mul.shift} }, ${p.copy ? 1 : 0} };\n`);
       return `&${id}`;
     }
     case 'copy': return '0';

@@ -1,6 +1,6 @@
-// int8 Concat and Transpose: the reference of offramp_layout.c.
+// int8 Concat, Transpose and the parts of a Split: the reference of offramp_layout.c.
 import { toInt8 } from './requant.js';
-import type { ConcatParams, TransposeParams } from './types.js';
+import type { ConcatParams, SliceParams, TransposeParams } from './types.js';
 
 export function concat(p: ConcatParams, xs: Int8Array[], y: Int8Array): void {
   let out = 0;
@@ -19,5 +19,13 @@ export function transpose(p: TransposeParams, x: Int8Array, y: Int8Array): void 
     for (let d = 0; d < rank; d++) off += idx[d] * p.strides[d];
     y[i] = x[off];
     for (let d = rank - 1; d >= 0; d--) { if (++idx[d] < p.dims[d]) break; idx[d] = 0; }
+  }
+}
+
+export function slice(p: SliceParams, x: Int8Array, y: Int8Array): void {
+  let out = 0;
+  for (let o = 0; o < p.outer; o++) {
+    const at = o * p.inRow + p.start;
+    for (let i = 0; i < p.block; i++) y[out++] = p.copy ? x[at + i] : toInt8(x[at + i] - p.inZero, p.mul, p.outZero, p.lo, p.hi);
   }
 }

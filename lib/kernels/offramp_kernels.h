@@ -114,4 +114,14 @@ typedef struct {
 } offramp_transpose_t;
 void offramp_transpose(const offramp_transpose_t *p, const int8_t *x, int8_t *y);
 
+/* One part of a Split: `outer` times, `block` values from `start` within each input row of `in_row`,
+ * requantized to the part's parameters (copied where they are the input's). */
+typedef struct {
+  int32_t outer, in_row, start, block;
+  int32_t in_zero, out_zero, lo, hi;
+  offramp_mul_t mul;           /* s_x / s_y */
+  int32_t copy;                /* 1: same parameters, no clamp: bytes copied */
+} offramp_slice_t;
+void offramp_slice(const offramp_slice_t *p, const int8_t *x, int8_t *y);
+
 #endif

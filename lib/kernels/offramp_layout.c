@@ -1,4 +1,4 @@
-/* offramp_layout.c: int8 Concat and Transpose, portable C. The TypeScript reference is lib/kernels/layout.ts. */
+/* offramp_layout.c: int8 Concat, Transpose and the parts of a Split, portable C. The TypeScript reference is lib/kernels/layout.ts. */
 #include "offramp_kernels.h"
 
 void offramp_concat(const offramp_concat_t *p, int8_t *y) {
@@ -35,5 +35,17 @@ void offramp_transpose(const offramp_transpose_t *p, const int8_t *x, int8_t *y)
       idx[d] = 0;
     }
     if (d < 0) break;
+  }
+}
+
+void offramp_slice(const offramp_slice_t *p, const int8_t *x, int8_t *y) {
+  const int32_t outer = p->outer, in_row = p->in_row, block = p->block, in_zero = p->in_zero;
+  const int32_t zero = p->out_zero, lo = p->lo, hi = p->hi, copy = p->copy;
+  const offramp_mul_t m = p->mul;
+  int32_t o, i;
+  x += p->start;
+  for (o = 0; o < outer; o++, x += in_row) {
+    if (copy) for (i = 0; i < block; i++) *y++ = x[i];
+    else for (i = 0; i < block; i++) *y++ = offramp_to_int8(x[i] - in_zero, m, zero, lo, hi);
   }
 }

@@ -57,3 +57,9 @@ export interface ConcatParams { outer: number; outZero: number; lo: number; hi: 
 
 /** Transpose: output dims, and for each output axis the input's stride along it (rank ≤ 6). */
 export interface TransposeParams { n: number; dims: number[]; strides: number[] }
+
+/** One part of a Split: `outer` times, `block` values from `start` within each input row of `inRow`, requantized to the part's parameters. */
+export interface SliceParams {
+  outer: number; inRow: number; start: number; block: number;
+  inZero: number; outZero: number; lo: number; hi: number; mul: Multiplier; copy: boolean;
+}

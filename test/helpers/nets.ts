@@ -231,7 +231,7 @@ export function tinyMlp(): Model {
 /**
  * A small CNN with the operators of the int8 firmware beyond the plain conv stack (3×12×12 in, 4 classes):
  * SiLU (Sigmoid and a same-shape Mul), a residual Add with a fused Relu, a squeeze-and-excitation gate
- * (HardSigmoid, a per-channel Mul with the gate first), HardSwish and Tanh branches joined by a Concat, a Transpose,
+ * (HardSigmoid, a per-channel Mul with the gate first), a Split into HardSwish and Tanh branches joined by a Concat, a Transpose,
  * LeakyRelu, and a HardSwish written out (Add, Clip and Div by scalar constants, a Mul). Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
  * kernel) after the first conv instead, its output named `attended`.
  */
@@ -258,8 +258,9 @@ export function opsNet(o: { softmax?: boolean } = {}): Model {
   const s1 = b.node('Relu', [conv(g, 'se.fc1', 8, 4, 1)], {}, { name: 'se.relu' });
   const gate = b.node('HardSigmoid', [conv(s1, 'se.fc2', 4, 8, 1)], { alpha: b.float(1 / 6), beta: b.float(0.5) }, { name: 'se.gate' });
   const se = b.node('Mul', [gate, pool], {}, { name: 'se.excite' });
-  const h = b.node('HardSwish', [conv(se, 'branch1', 8, 6, 1)], {}, { name: 'branch1.hswish' });
-  const t = b.node('Tanh', [conv(se, 'branch2', 8, 4, 3)], {}, { name: 'branch2.tanh' });
+  const [p1, p2] = b.node('Split', [se, b.init('split.sizes', INT64, [2], [3, 5])], { axis: 1 }, { name: 'split', outputs: 2 });
+  const h = b.node('HardSwish', [conv(p1, 'branch1', 3, 6, 1)], {}, { name: 'branch1.hswish' });
+  const t = b.node('Tanh', [conv(p2, 'branch2', 5, 4, 3)], {}, { name: 'branch2.tanh' });
   const cat = b.node('Concat', [h, t], { axis: 1 }, { name: 'concat' });
   const tr = b.node('Transpose', [cat], { perm: [0, 1, 3, 2] }, { name: 'transpose', outputs: ['shuffled'] })[0];
   const l = b.node('LeakyRelu', [conv(tr, 'conv3', 10, 12, 3, 2)], { alpha: b.float(0.1) }, { name: 'conv3.leaky' });

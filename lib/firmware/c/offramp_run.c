@@ -17,6 +17,7 @@ void offramp_run_steps(const offramp_stage_program_t *stage) {
       case OFFRAMP_STEP_LUT: offramp_lut((const offramp_lut_t *)s->params, s->x, s->y); break;
       case OFFRAMP_STEP_CONCAT: offramp_concat((const offramp_concat_t *)s->params, s->y); break;
       case OFFRAMP_STEP_TRANSPOSE: offramp_transpose((const offramp_transpose_t *)s->params, s->x, s->y); break;
+      case OFFRAMP_STEP_SLICE: offramp_slice((const offramp_slice_t *)s->params, s->x, s->y); break;
       default: break;
     }
   }

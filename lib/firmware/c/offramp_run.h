@@ -17,7 +17,8 @@ typedef enum {
   OFFRAMP_STEP_MUL = 7,      /* params: offramp_mul2_t; x is a, x2 is b */
   OFFRAMP_STEP_LUT = 8,      /* params: offramp_lut_t */
   OFFRAMP_STEP_CONCAT = 9,   /* params: offramp_concat_t, which names every input (x is the first) */
-  OFFRAMP_STEP_TRANSPOSE = 10 /* params: offramp_transpose_t */
+  OFFRAMP_STEP_TRANSPOSE = 10, /* params: offramp_transpose_t */
+  OFFRAMP_STEP_SLICE = 11    /* params: offramp_slice_t (one output of a Split) */
 } offramp_step_kind_t;
 
 typedef struct {
