@@ -1,4 +1,4 @@
-// The int8 firmware's operators beyond the conv stack (Add, Mul, Concat, Split, Transpose, the activation
+// The int8 firmware's operators beyond the conv stack (Add, Mul, Concat, Split, Slice, Transpose, the activation
 // tables), end to end on a small CNN built in code (test/helpers/nets.ts: opsNet) and invented data
 // (four classes: a square in one quadrant of a noisy 3×12×12 frame, its colour by class): grafted, split,
 // quantized and tuned with the CLI, emit-c, compiled with gcc. Every int8 tensor equals the

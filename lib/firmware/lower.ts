@@ -13,7 +13,7 @@ import { windowOf } from '../ops/window.js';
 import { inferShapes, type ShapeResult } from '../shapes/infer.js';
 import { tensorDims } from '../onnx/tensor.js';
 import type { TensorProto } from '../onnx/types.js';
-import { FLOAT, INT8, INT32 } from '../onnx/dtype.js';
+import { FLOAT, INT8, INT32, INT64 } from '../onnx/dtype.js';
 import { floatValues } from '../quant/fold-bn.js';
 import { OfframpError } from '../errors.js';
 import type { Manifest, ManifestStage } from '../split/manifest.js';
@@ -115,13 +115,19 @@ class StageReader {
   }
 }
 
-/** int8 and int32 initializer values (raw_data or int32_data). */
+/** int8, int32 and int64 initializer values (raw_data or the typed field). */
 function intValues(t: TensorProto): Int32Array | undefined {
   const n = tensorDims(t).reduce((a, b) => a * b, 1);
   const raw = t.rawData;
   if (t.dataType === INT8) {
     if (raw?.length) return raw.length === n ? Int32Array.from(new Int8Array(raw.buffer, raw.byteOffset, n)) : undefined;
     return t.int32Data?.length === n ? Int32Array.from(t.int32Data) : undefined;
+  }
+  if (t.dataType === INT64) {
+    // index lists (Slice starts and ends, axes): saturated to int32, as far as any dimension reaches
+    const sat = (v: bigint) => Number(v > 2147483647n ? 2147483647n : v < -2147483648n ? -2147483648n : v);
+    if (raw?.length) return raw.length === 8 * n ? Int32Array.from(new BigInt64Array(Uint8Array.from(raw).buffer), sat) : undefined;
+    return t.int64Data?.length === n ? Int32Array.from(t.int64Data, sat) : undefined;
   }
   if (t.dataType === INT32) {
     if (raw?.length) return raw.length === 4 * n ? new Int32Array(Uint8Array.from(raw).buffer) : undefined;
@@ -384,7 +390,7 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
         if (acts.length === 1 && n.inputs.length === 2) {
           // with a float scalar constant it is a function of one value: a table (x + 3, x / 6 of a HardSwish written out)
           const k = n.inputs[0] === acts[0] ? 1 : 0, c = r.isConst(n.inputs[k]) ? r.value(n.inputs[k], n) : undefined;
-          if (!(c instanceof Float32Array) || c.length !== 1) r.fail(`${n.op} with a constant operand of more than one value: the int8 firmware tables a scalar constant only`, n);
+          if (!(c instanceof Float32Array) || c.length !== 1) r.fail(`${n.op} with a constant operand that is not one float32 value: the int8 firmware tables a scalar constant only`, n);
           const v = c[0], first = k === 1;
           const fn: Unary = n.op === 'Add' ? (t) => f32(t + v) : n.op === 'Mul' ? (t) => f32(t * v)
             : n.op === 'Sub' ? (first ? (t) => f32(t - v) : (t) => f32(v - t)) : (first ? (t) => f32(t / v) : (t) => f32(v / t));
@@ -418,6 +424,26 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
         const outer = prod(yd.slice(0, axis));
         if (outer * parts.reduce((t, q) => t + q.block, 0) !== y.size) r.fail('parts do not add up to the output', n);
         steps.push({ ...base, kind: 'concat', xs, p: { outer, outZero: y.zeroPoint, lo, hi, parts } });
+        break;
+      }
+      case 'Slice': {
+        // one axis cut with step 1: the slice kernel (a Split's part) with the output's rows
+        const list = (i: number, attr: string) => (n.inputs[i] ? Array.from(r.value(n.inputs[i], n)) : a.ints(attr));
+        const starts = list(1, 'starts') ?? [], axes = list(3, 'axes') ?? starts.map((_, k) => k), stepsOf = n.inputs[4] ? Array.from(r.value(n.inputs[4], n)) : starts.map(() => 1);
+        if (stepsOf.some((v) => v !== 1)) r.fail('Slice with steps other than 1: the int8 firmware cuts contiguous rows', n);
+        const cut = xd.map((d, k) => d !== yd[k]).reduce<number[]>((l, c, k) => (c ? [...l, k] : l), []);
+        if (yd.length !== xd.length || cut.length > 1) r.fail(`Slice along ${cut.length} axes: the int8 firmware cuts one`, n);
+        const axis = cut[0] ?? 0, j = axes.findIndex((v) => (v < 0 ? v + xd.length : v) === axis);
+        let from = j < 0 ? 0 : starts[j];
+        if (from < 0) from += xd[axis];
+        from = Math.max(0, Math.min(xd[axis], from));
+        const inner = prod(xd.slice(axis + 1));
+        if (from + yd[axis] > xd[axis]) r.fail('Slice runs past its input', n);
+        steps.push({ ...base, kind: 'slice', p: {
+          outer: prod(xd.slice(0, axis)), inRow: xd[axis] * inner, start: from * inner, block: yd[axis] * inner,
+          inZero: x.zeroPoint, outZero: y.zeroPoint, lo, hi, mul: multiplier(x.scale / y.scale, 'requantization of the slice'),
+          copy: x.scale === y.scale && x.zeroPoint === y.zeroPoint && lo === -128 && hi === 127,
+        } });
         break;
       }
       case 'Transpose': {

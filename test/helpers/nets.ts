@@ -232,7 +232,7 @@ export function tinyMlp(): Model {
  * A small CNN with the operators of the int8 firmware beyond the plain conv stack (3×12×12 in, 4 classes):
  * SiLU (Sigmoid and a same-shape Mul), a residual Add with a fused Relu, a squeeze-and-excitation gate
  * (HardSigmoid, a per-channel Mul with the gate first), a Split into HardSwish and Tanh branches joined by a Concat, a Transpose,
- * LeakyRelu, and a HardSwish written out (Add, Clip and Div by scalar constants, a Mul). Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
+ * a Slice, LeakyRelu, and a HardSwish written out (Add, Clip and Div by scalar constants, a Mul). Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
  * kernel) after the first conv instead, its output named `attended`.
  */
 export function opsNet(o: { softmax?: boolean } = {}): Model {
@@ -263,7 +263,9 @@ export function opsNet(o: { softmax?: boolean } = {}): Model {
   const t = b.node('Tanh', [conv(p2, 'branch2', 5, 4, 3)], {}, { name: 'branch2.tanh' });
   const cat = b.node('Concat', [h, t], { axis: 1 }, { name: 'concat' });
   const tr = b.node('Transpose', [cat], { perm: [0, 1, 3, 2] }, { name: 'transpose', outputs: ['shuffled'] })[0];
-  const l = b.node('LeakyRelu', [conv(tr, 'conv3', 10, 12, 3, 2)], { alpha: b.float(0.1) }, { name: 'conv3.leaky' });
+  // columns 1 … end (ends as exporters write "to the end": INT64_MAX)
+  const cols = b.node('Slice', [tr, b.init('crop.starts', INT64, [1], [1]), b.init('crop.ends', INT64, [1], [9223372036854775807n]), b.init('crop.axes', INT64, [1], [3])], {}, { name: 'crop' });
+  const l = b.node('LeakyRelu', [conv(cols, 'conv3', 10, 12, 3, 2)], { alpha: b.float(0.1) }, { name: 'conv3.leaky' });
   // HardSwish written out as older exporters do: x · Clip(x + 3, 0, 6) / 6
   const k = (name: string, v: number) => b.init(name, FLOAT, [], [v]);
   const relu6 = b.node('Clip', [b.node('Add', [l, k('three', 3)], {}, { name: 'hs.add' }), k('zero', 0), k('six', 6)], {}, { name: 'hs.clip' });
