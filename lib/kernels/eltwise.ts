@@ -3,21 +3,21 @@ import { OfframpError } from '../errors.js';
 import { toInt8 } from './requant.js';
 import type { AddParams, BinaryParams, LutParams, MulParams } from './types.js';
 
-/** Add's largest fixed-point exponent: its sum then still fits int64 with the rounding nudge (C). */
-export const ADD_MAX_SHIFT = 62;
+/** Add's multipliers stay below 2^21 and its exponent at most 31: (a − za)·multA + (b − zb)·multB and the rounding nudge then fit int32 (C). */
+export const ADD_MULT_BITS = 21, ADD_MAX_SHIFT = 31;
 
 /**
  * The two multipliers of an Add at one common exponent: multA = round(ra · 2^shift), multB likewise,
- * shift as large as keeps both below 2^31 (≤ 62). (a − za)·multA + (b − zb)·multB is then exact in
- * 41 bits, and the sum is rounded once; a multiplier far below the other keeps fewer bits, an error
- * below 2^-21 of a step (the larger one holds 31).
+ * shift as large as keeps both below 2^21 (at most 31). |a − za|, |b − zb| ≤ 255, so the sum stays below
+ * 2^30 and is rounded once, in 32-bit arithmetic on the device. The multipliers' own rounding moves a
+ * result by at most 255 · 2^-shift ≤ 255 · 2^-20 · max(ra, rb) of a step (2.4·10^-4 for scales alike).
  */
 export function addMultipliers(ra: number, rb: number, what = 'Add'): { multA: number; multB: number; shift: number } {
   for (const r of [ra, rb]) if (!Number.isFinite(r) || r < 0) throw new OfframpError('data', `${what}: multiplier ${r} is not a finite non-negative number`);
-  const big = Math.max(ra, rb);
+  const big = Math.max(ra, rb), top = 2 ** ADD_MULT_BITS;
   let shift = ADD_MAX_SHIFT;
-  while (shift > 1 && Math.round(big * 2 ** shift) >= 2 ** 31) shift--;
-  if (Math.round(big * 2 ** shift) >= 2 ** 31) throw new OfframpError('data', `${what}: multiplier ${big} is too large for a fixed-point requantization (2^30 or more)`);
+  while (shift > 1 && Math.round(big * 2 ** shift) >= top) shift--;
+  if (Math.round(big * 2 ** shift) >= top) throw new OfframpError('data', `${what}: multiplier ${big} is too large for a fixed-point requantization (2^20 or more)`);
   return { multA: Math.round(ra * 2 ** shift), multB: Math.round(rb * 2 ** shift), shift };
 }
 

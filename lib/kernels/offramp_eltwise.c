@@ -5,17 +5,18 @@
 
 void offramp_add(const offramp_add_t *p, const int8_t *a, const int8_t *b, int8_t *y) {
   const int32_t n = p->n, inner = p->inner, b_n = p->b_n, a_zero = p->a_zero, b_zero = p->b_zero;
-  const int64_t ma = p->mult_a, mb = p->mult_b, zero = p->out_zero, lo = p->lo, hi = p->hi;
+  const int32_t ma = p->mult_a, mb = p->mult_b, zero = p->out_zero, lo = p->lo, hi = p->hi;
   const int32_t e = p->shift;
   /* floor((acc + 2^(e-1) - 1 + b) / 2^e), b the floor quotient's lowest bit: to nearest, ties to even
-   * (offramp_requant.h). |acc| < 2^41, so the nudged sum stays below 2^63. */
-  const int64_t nudge = (INT64_C(1) << (e - 1)) - 1;
+   * (offramp_requant.h). The multipliers are below 2^21 and |x - zero| <= 255, so |acc| < 2^30 and the
+   * nudged sum stays below 2^31: all in 32 bits. */
+  const int32_t nudge = (INT32_C(1) << (e - 1)) - 1;
   int32_t i = 0, j = 0, k;
   while (i < n) {
-    const int64_t tb = (int64_t)(b[j] - b_zero) * mb;
+    const int32_t tb = (b[j] - b_zero) * mb;
     for (k = 0; k < inner; k++, i++) {
-      const int64_t acc = (int64_t)(a[i] - a_zero) * ma + tb;
-      int64_t v = ((acc + nudge + ((acc >> e) & 1)) >> e) + zero;
+      const int32_t acc = (a[i] - a_zero) * ma + tb;
+      const int32_t v = ((acc + nudge + ((acc >> e) & 1)) >> e) + zero;
       y[i] = (int8_t)(v < lo ? lo : v > hi ? hi : v);
     }
     if (++j == b_n) j = 0;

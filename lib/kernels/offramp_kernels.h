@@ -67,11 +67,11 @@ int8_t offramp_quantize_value(float x, float scale, int32_t zero);
 typedef struct {
   int32_t n, inner, b_n;
   int32_t a_zero, b_zero, out_zero, lo, hi;
-  int32_t mult_a, mult_b;      /* Add: s_a / s_y and s_b / s_y as round(r * 2^shift), both below 2^31 */
-  int32_t shift;               /* Add: 1 ... 62 */
+  int32_t mult_a, mult_b;      /* s_a / s_y and s_b / s_y as round(r * 2^shift), both below 2^21 */
+  int32_t shift;               /* 1 ... 31 */
 } offramp_add_t;
 /* y = round(((a - a_zero) * mult_a + (b - b_zero) * mult_b) / 2^shift) + out_zero, ties to even: the exact
- * 64-bit sum rounded once, clamped to [lo, hi] (a fused Relu narrows them). */
+ * sum (below 2^30) rounded once, clamped to [lo, hi] (a fused Relu narrows them). */
 void offramp_add(const offramp_add_t *p, const int8_t *a, const int8_t *b, int8_t *y);
 
 typedef struct {

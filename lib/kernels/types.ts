@@ -43,7 +43,7 @@ export interface BinaryParams {
   n: number; inner: number; bN: number;
   aZero: number; bZero: number; outZero: number; lo: number; hi: number;
 }
-/** y = round((a − aZero)·multA / 2^shift + (b − bZero)·multB / 2^shift), ties to even: one rounding of the exact sum. */
+/** y = round(((a − aZero)·multA + (b − bZero)·multB) / 2^shift), ties to even: one rounding of the exact sum; multipliers below 2^21, shift 1 … 31. */
 export interface AddParams extends BinaryParams { multA: number; multB: number; shift: number }
 /** y = requant((a − aZero)·(b − bZero)) with mul = s_a·s_b / s_y. */
 export interface MulParams extends BinaryParams { mul: Multiplier }
