@@ -88,10 +88,10 @@ function rescaleStep(j: number): Step {
   return { kind: 'rescale', node: `rescale${j}`, x: tensor(`x${j}`, n), y: tensor(`y${j}`, n), p: { n, inZero: int(-128, 127), outZero, lo, hi, mul: quantizeMultiplier(0.3 + rnd() * 3) } };
 }
 
-/** b broadcast three ways: the same shape, a scalar, one value per channel of [C, H, W]. */
+/** b broadcast four ways over [C, H·W]: the same shape, a scalar, one value per channel, one per position (the last axes). */
 function broadcast(): { n: number; inner: number; bN: number } {
   const c = int(1, 6), hw = int(1, 4) * int(1, 5), r = rnd();
-  return r < 0.35 ? { n: c * hw, inner: 1, bN: c * hw } : r < 0.55 ? { n: c * hw, inner: c * hw, bN: 1 } : { n: c * hw, inner: hw, bN: c };
+  return r < 0.3 ? { n: c * hw, inner: 1, bN: c * hw } : r < 0.45 ? { n: c * hw, inner: c * hw, bN: 1 } : r < 0.8 ? { n: c * hw, inner: hw, bN: c } : { n: c * hw, inner: 1, bN: hw };
 }
 const scale = () => 10 ** (rnd() * 3 - 3);
 
@@ -168,7 +168,7 @@ function reference(s: Step, xs: Int8Array[]): Int8Array {
 }
 
 describe.skipIf(!GCC)('C kernels against the TypeScript reference', () => {
-  it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale, add and mul (same shape, scalar, per channel), activation tables, concat, transpose, split parts: every output byte equal', () => {
+  it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale, add and mul (same shape, scalar, per channel, along the last axes), activation tables, concat, transpose, split parts: every output byte equal', () => {
     const steps: Step[] = [];
     for (let j = 0; j < 60; j++) steps.push(convStep(j, false, false));
     for (let j = 60; j < 80; j++) steps.push(convStep(j, true, false));
