@@ -1,7 +1,8 @@
 // Each C kernel against its TypeScript reference (lib/kernels/*.ts) on random shapes: odd sizes, padding
 // on every side (unequal), strides up to 3, dilation, groups and depthwise, 1-D and 2-D, pooling windows
 // that run past the input (ceil_mode-like), count_include_pad, fused clamps, random multipliers and
-// zero points. The tables are written by lib/firmware/tables.ts, as for a model, and compiled with gcc.
+// zero points; Add and Mul with each broadcast pattern (and Add's ties to even), activation tables,
+// Concat parts copied or requantized, permutations of rank 1 to 5, Split parts. The tables are written by lib/firmware/tables.ts, as for a model, and compiled with gcc.
 import { describe, it, expect, afterAll } from 'vitest';
 import fs from 'node:fs';
 import os from 'node:os';
