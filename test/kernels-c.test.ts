@@ -1,7 +1,8 @@
 // Each C kernel against its TypeScript reference (lib/kernels/*.ts) on random shapes: odd sizes, padding
 // on every side (unequal), strides up to 3, dilation, groups and depthwise, 1-D and 2-D, pooling windows
 // that run past the input (ceil_mode-like), count_include_pad, fused clamps, random multipliers and
-// zero points. The tables are written by lib/firmware/tables.ts, as for a model, and compiled with gcc.
+// zero points; Add and Mul with each broadcast pattern (and Add's ties to even), activation tables,
+// Concat parts copied or requantized, permutations of rank 1 to 5, Split parts. The tables are written by lib/firmware/tables.ts, as for a model, and compiled with gcc.
 import { describe, it, expect, afterAll } from 'vitest';
 import fs from 'node:fs';
 import os from 'node:os';
@@ -13,9 +14,12 @@ import { conv } from '../lib/kernels/conv.js';
 import { dense } from '../lib/kernels/dense.js';
 import { avgpool, maxpool } from '../lib/kernels/pool.js';
 import { rescale } from '../lib/kernels/misc.js';
+import { add, addMultipliers, lut, mul as mulKernel } from '../lib/kernels/eltwise.js';
+import { concat, slice, transpose } from '../lib/kernels/layout.js';
+import { activationTable, unaryOf } from '../lib/kernels/lut.js';
 import { netTables } from '../lib/firmware/tables.js';
 import { firmwareSourceDirs } from '../lib/firmware/write.js';
-import type { Program, Step, Tensor8 } from '../lib/firmware/program.js';
+import { stepInputs, type Program, type Step, type Tensor8 } from '../lib/firmware/program.js';
 import { GCC, CFLAGS } from './helpers/firmware.js';
 import { toolchainStatus } from '../lib/measure/toolchain.js';
 import { measureFirmware } from '../lib/measure/measure.js';
@@ -91,8 +95,68 @@ function rescaleStep(j: number): Step {
   return { kind: 'rescale', node: `rescale${j}`, x: tensor(`x${j}`, n), y: tensor(`y${j}`, n), p: { n, inZero: int(-128, 127), outZero, lo, hi, mul: quantizeMultiplier(0.3 + rnd() * 3) } };
 }
 
-function reference(s: Step, x: Int8Array): Int8Array {
-  const y = new Int8Array(s.y.size);
+/** b broadcast four ways over [C, H·W]: the same shape, a scalar, one value per channel, one per position (the last axes). */
+function broadcast(): { n: number; inner: number; bN: number } {
+  const c = int(1, 6), hw = int(1, 4) * int(1, 5), r = rnd();
+  return r < 0.3 ? { n: c * hw, inner: 1, bN: c * hw } : r < 0.45 ? { n: c * hw, inner: c * hw, bN: 1 } : r < 0.8 ? { n: c * hw, inner: hw, bN: c } : { n: c * hw, inner: 1, bN: hw };
+}
+const scale = () => 10 ** (rnd() * 3 - 3);
+
+function addStep(j: number): Step {
+  const b = broadcast(), [sa, sb, sy] = [scale(), scale(), scale()], r = rnd();
+  // now and then powers of two (sums exactly half a step: ties to even), or operands of very different
+  // scales (the smaller multiplier keeps fewer bits)
+  const m = r < 0.25 ? addMultipliers(2 ** -int(0, 3), 2 ** -int(1, 4)) : addMultipliers(sa / sy, (r < 0.4 ? 1e-6 : 1) * sb / sy);
+  const outZero = int(-128, 127), [lo, hi] = clamp(outZero);
+  return { kind: 'add', node: `add${j}`, x: tensor(`a${j}`, b.n), x2: tensor(`b${j}`, b.bN), y: tensor(`y${j}`, b.n),
+    p: { ...b, aZero: int(-128, 127), bZero: int(-128, 127), outZero, lo, hi, ...m } };
+}
+
+function mulStep(j: number): Step {
+  const b = broadcast(), outZero = int(-128, 127), [lo, hi] = clamp(outZero);
+  return { kind: 'mul', node: `mul${j}`, x: tensor(`a${j}`, b.n), x2: tensor(`b${j}`, b.bN), y: tensor(`y${j}`, b.n),
+    p: { ...b, aZero: int(-128, 127), bZero: int(-128, 127), outZero, lo, hi, mul: quantizeMultiplier(scale() * scale() / scale()) } };
+}
+
+function lutStep(j: number): Step {
+  const op = ['Sigmoid', 'Tanh', 'HardSigmoid', 'HardSwish', 'LeakyRelu'][int(0, 4)];
+  const fn = unaryOf(op, { float: (_: string, d: number) => d })!;
+  const n = int(1, 60), outZero = int(-128, 127), [lo, hi] = clamp(outZero);
+  const table = activationTable(fn, { scale: scale() * 40, zeroPoint: int(-128, 127) }, { scale: scale(), zeroPoint: outZero }, lo, hi);
+  return { kind: 'lut', node: `lut${j}`, x: tensor(`x${j}`, n), y: tensor(`y${j}`, n), p: { n, table } };
+}
+
+function concatStep(j: number): Step {
+  const count = int(1, 4), outer = int(1, 3), outZero = int(-128, 127);
+  const [lo, hi] = rnd() < 0.3 ? clamp(outZero) : [-128, 127];
+  const parts = Array.from({ length: count }, () => {
+    const same = rnd() < 0.3 && lo === -128 && hi === 127;
+    return { block: int(1, 20), inZero: same ? outZero : int(-128, 127), mul: quantizeMultiplier(same ? 1 : 0.2 + rnd() * 3), copy: same };
+  });
+  const xs = parts.map((q, k) => tensor(`x${j}_${k}`, outer * q.block));
+  return { kind: 'concat', node: `concat${j}`, x: xs[0], xs, y: tensor(`y${j}`, outer * parts.reduce((a, q) => a + q.block, 0)), p: { outer, outZero, lo, hi, parts } };
+}
+
+function transposeStep(j: number): Step {
+  const rank = int(1, 5), inDims = Array.from({ length: rank }, () => int(1, 5));
+  const perm = Array.from({ length: rank }, (_, i) => i);
+  for (let i = rank - 1; i > 0; i--) { const k = int(0, i); [perm[i], perm[k]] = [perm[k], perm[i]]; }
+  const inStrides = inDims.map((_, d) => inDims.slice(d + 1).reduce((a, b) => a * b, 1));
+  const n = inDims.reduce((a, b) => a * b, 1);
+  return { kind: 'transpose', node: `transpose${j}`, x: tensor(`x${j}`, n), y: tensor(`y${j}`, n), p: { n, dims: perm.map((d) => inDims[d]), strides: perm.map((d) => inStrides[d]) } };
+}
+
+function sliceStep(j: number): Step {
+  const outer = int(1, 3), inner = int(1, 6), rows = int(1, 6), from = int(0, rows - 1), take = int(1, rows - from);
+  const outZero = int(-128, 127), same = rnd() < 0.3, [lo, hi] = same ? [-128, 127] : clamp(outZero);
+  return { kind: 'slice', node: `slice${j}`, x: tensor(`x${j}`, outer * rows * inner), y: tensor(`y${j}`, outer * take * inner), p: {
+    outer, inRow: rows * inner, start: from * inner, block: take * inner, inZero: same ? outZero : int(-128, 127), outZero, lo, hi,
+    mul: quantizeMultiplier(same ? 1 : 0.2 + rnd() * 3), copy: same,
+  } };
+}
+
+function reference(s: Step, xs: Int8Array[]): Int8Array {
+  const y = new Int8Array(s.y.size), x = xs[0];
   switch (s.kind) {
     case 'conv': conv(s.p, x, y); break;
     case 'dense': dense(s.p, x, y); break;
@@ -100,12 +164,18 @@ function reference(s: Step, x: Int8Array): Int8Array {
     case 'avgpool': avgpool(s.p, x, y); break;
     case 'rescale': rescale(s.p, x, y); break;
     case 'copy': y.set(x); break;
+    case 'add': add(s.p, x, xs[1], y); break;
+    case 'mul': mulKernel(s.p, x, xs[1], y); break;
+    case 'lut': lut(s.p, x, y); break;
+    case 'concat': concat(s.p, xs, y); break;
+    case 'transpose': transpose(s.p, x, y); break;
+    case 'slice': slice(s.p, x, y); break;
   }
   return y;
 }
 
 describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 600_000 }, () => {
-  it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale: every output byte equal', () => {
+  it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale, add and mul (same shape, scalar, per channel, along the last axes), activation tables, concat, transpose, split parts: every output byte equal', () => {
     const steps: Step[] = [];
     for (let j = 0; j < 60; j++) steps.push(convStep(j, false, false));
     for (let j = 60; j < 80; j++) steps.push(convStep(j, true, false));
@@ -114,6 +184,12 @@ describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 6
     for (let j = 130; j < 170; j++) steps.push(poolStep(j, true));
     for (let j = 170; j < 200; j++) steps.push(denseStep(j));
     for (let j = 200; j < 220; j++) steps.push(rescaleStep(j));
+    for (let j = 220; j < 260; j++) steps.push(addStep(j));
+    for (let j = 260; j < 290; j++) steps.push(mulStep(j));
+    for (let j = 290; j < 310; j++) steps.push(lutStep(j));
+    for (let j = 310; j < 335; j++) steps.push(concatStep(j));
+    for (let j = 335; j < 360; j++) steps.push(transposeStep(j));
+    for (let j = 360; j < 380; j++) steps.push(sliceStep(j));
     const classes = 4;
     const program: Program = {
       stages: [{ index: 0, file: 'kernels', steps, arenaBytes: offset, macs: 0 }],
@@ -130,13 +206,14 @@ describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 6
     const exe = path.join(dir, 'kernels');
     const cc = spawnSync('gcc', [...CFLAGS, '-I', dir, '-I', kern, '-I', fw, ...srcs, '-o', exe], { encoding: 'utf8' });
     expect(cc.status, cc.stderr).toBe(0);
-    const xs = steps.map((s) => i8(s.x.size));
-    const input = Buffer.concat(xs.flatMap((x) => [Buffer.from(Int32Array.of(x.length).buffer), Buffer.from(x.buffer)]));
+    const xs = steps.map((s) => stepInputs(s).map((t) => i8(t.size)));
+    const input = Buffer.concat(xs.flatMap((ins) => [Buffer.from(Int32Array.of(ins.length).buffer), ...ins.flatMap((x) => [Buffer.from(Int32Array.of(x.length).buffer), Buffer.from(x.buffer)])]));
     const run = spawnSync(exe, { input, maxBuffer: 1 << 26 });
     expect(run.status).toBe(0);
     const out = new Int8Array(run.stdout.buffer, run.stdout.byteOffset, run.stdout.length);
     expect(compare(steps, xs, out)).toBe(0);
-    console.log(`C kernels: ${steps.length} random cases (${steps.filter((s) => s.kind === 'conv').length} conv, ${steps.filter((s) => s.kind === 'dense').length} dense, ${steps.filter((s) => s.kind.endsWith('pool')).length} pool, ${steps.filter((s) => s.kind === 'rescale').length} rescale), ${out.length} output bytes, all equal to the TypeScript reference`);
+    const kinds = [...new Set(steps.map((s) => s.kind))].map((k) => `${steps.filter((s) => s.kind === k).length} ${k}`).join(', ');
+    console.log(`C kernels: ${steps.length} random cases (${kinds}), ${out.length} output bytes, all equal to the TypeScript reference`);
     built = { dir, steps, xs, input };
   });
 
@@ -146,10 +223,9 @@ describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 6
     const [kern, fw] = firmwareSourceDirs();
     const file = path.join(dir, 'input.bin');
     fs.writeFileSync(file, input);
-    // the host driver reads stdin; under semihosting the cases come from a host file and go out as hex
-    const driver = `#include <stdio.h>\n#include "offramp_net.h"\nextern const char cases[];\nint main(void) {\n  int32_t j, n, i;\n  const offramp_stage_program_t *st = &offramp_net_stages[0];\n  FILE *f = fopen(cases, "rb");\n  if (!f) return 2;\n  for (j = 0; j < st->count; j++) {\n    if (fread(&n, sizeof n, 1, f) != 1) return 3;\n    if (n > 0 && fread((int8_t *)st->steps[j].x, 1, (size_t)n, f) != (size_t)n) return 4;\n  }\n  for (j = 0; j < st->count; j++) {\n    offramp_stage_program_t one;\n    one.steps = &st->steps[j];\n    one.count = 1;\n    offramp_run_steps(&one);\n    for (i = 0; i < one.steps->bytes; i++) printf("%02x", (unsigned)(uint8_t)one.steps->y[i]);\n  }\n  return 0;\n}\nconst char cases[] = ${cString(file)};\n`;
+    // the same driver: under semihosting the cases come from a host file and go out as hex
     for (const core of ['m4f', 'm55']) {
-      const m = await measureFirmware({ core, sources: [path.join(dir, 'offramp_net.c'), path.join(fw, 'offramp_run.c'), ...fs.readdirSync(kern).filter((f) => f.endsWith('.c')).map((f) => path.join(kern, f))], rowsC: driver, includeDirs: [dir, kern, fw], trace: false });
+      const m = await measureFirmware({ core, sources: [path.join(dir, 'offramp_net.c'), path.join(fw, 'offramp_run.c'), ...fs.readdirSync(kern).filter((f) => f.endsWith('.c')).map((f) => path.join(kern, f))], driverSources: [path.resolve(import.meta.dirname, 'helpers/c/kernel_main.c')], rowsC: `const char offramp_kernel_cases[] = ${cString(file)};\n`, defines: ['OFFRAMP_KERNEL_CASES'], includeDirs: [dir, kern, fw], trace: false });
       expect(m.exitCode, m.stderr).toBe(0);
       const out = Int8Array.from(Buffer.from(m.stdout.trim(), 'hex'));
       expect(compare(steps, xs, out), core).toBe(0);
@@ -158,15 +234,15 @@ describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 6
   });
 });
 
-let built: { dir: string; steps: Step[]; xs: Int8Array[]; input: Buffer } | undefined;
+let built: { dir: string; steps: Step[]; xs: Int8Array[][]; input: Buffer } | undefined;
 
 /** Cases whose output differs from the reference (printed). */
-function compare(steps: Step[], xs: Int8Array[], out: Int8Array): number {
+function compare(steps: Step[], xs: Int8Array[][], out: Int8Array): number {
     let at = 0, bad = 0;
     steps.forEach((s, j) => {
       const want = reference(s, xs[j]), got = out.subarray(at, at + want.length);
       at += want.length;
-      if (!want.every((v, i) => v === got[i])) { bad++; console.log(`step ${j} (${s.kind}) differs: ${JSON.stringify({ ...s.p, weight: undefined, bias: undefined, mul: undefined })}`); }
+      if (!want.every((v, i) => v === got[i])) { bad++; console.log(`step ${j} (${s.kind}) differs: ${JSON.stringify({ ...s.p, weight: undefined, bias: undefined, mul: undefined, table: undefined })}`); }
     });
     return at === out.length ? bad : bad + 1;
 }

@@ -39,8 +39,9 @@ export function emitCCommand(program: Command): void {
         const f = writeFirmware(dir, o.out, given);
         const p = f.program;
         const weights = p.stages.reduce((a, s) => a + s.steps.reduce((b, st) => b + ('p' in st && 'weight' in st.p ? st.p.weight.length : 0), 0), 0);
+        const tables = p.stages.reduce((a, s) => a + s.steps.filter((st) => st.kind === 'lut').length * 256, 0);
         emit(`${choice.line}\nwrote the int8 network as C99 into ${o.out} (${f.written.length} files): ${p.stages.length} stages, ${f.table.exits} exits, ${p.classes} classes; policy from ${f.policyFrom}\n`
-          + `memory: ${weights} bytes of int8 weights in flash, arena ${p.arenaBytes} bytes + handover ${handoverBytes(p)} bytes + logits ${p.logits.length * p.classes} bytes in RAM\n`
+          + `memory: ${weights} bytes of int8 weights${tables ? ` and ${tables} bytes of activation tables` : ''} in flash, arena ${p.arenaBytes} bytes + handover ${handoverBytes(p)} bytes + logits ${p.logits.length * p.classes} bytes in RAM\n`
           + `next: compile every .c in ${o.out} with your firmware (C99, no malloc, no libm) and call offramp_classify(frame); see offramp_model.h\n`);
         return;
       }

@@ -1,7 +1,7 @@
 // How a QDQ model runs on an integer interpreter: DequantizeLinear → op → QuantizeLinear
 // is one int8 kernel. Its MACs are int8 MACs; the float tensors around it never exist:
 // a value made by DequantizeLinear is its int8 input, a value only QuantizeLinear reads
-// is its int8 output, a Relu fused into the kernel writes the kernel's buffer. Values
+// is its int8 output, a Relu fused into the kernel (a matrix op's or an Add's) writes the kernel's buffer. Values
 // computed from weights alone (dequantized weights, bias scales) are weights.
 import type { Graph, Node } from '../graph/ir.js';
 import { readsOf } from '../graph/links.js';
@@ -42,10 +42,12 @@ export function qdqView(g: Graph, order: number[]): QdqView | undefined {
   const onlyQuantized = (v: string) => { const c = consumers.get(v) ?? []; return c.length > 0 && c.every((n) => !n.domain && n.op === 'QuantizeLinear'); };
   for (const n of g.nodes) {
     if (n.domain) continue;
-    const out = n.outputs[0];
-    if (!out || io.has(out) || constant.has(out)) continue;
-    if (n.op === 'DequantizeLinear') link.set(out, n.inputs[0]);
-    else if (onlyQuantized(out)) link.set(out, consumers.get(out)![0].outputs[0]);
+    // every output: each part of a Split is quantized on its own
+    n.outputs.forEach((out, k) => {
+      if (!out || io.has(out) || constant.has(out)) return;
+      if (n.op === 'DequantizeLinear') { if (k === 0) link.set(out, n.inputs[0]); }
+      else if (onlyQuantized(out)) link.set(out, consumers.get(out)![0].outputs[0]);
+    });
   }
   const isDq = (v: string) => { const p = producer.get(v); return !!p && !p.domain && p.op === 'DequantizeLinear'; };
   const int8Nodes = new Set<number>();
@@ -59,6 +61,15 @@ export function qdqView(g: Graph, order: number[]): QdqView | undefined {
     if (onlyQuantized(out)) int8Nodes.add(i);
     else if (act && !io.has(act) && onlyQuantized(act)) { int8Nodes.add(i); link.set(out, act); }
   });
+  // Any other op followed by a lone Relu/Clip that is quantized (an Add: the QDQ pass leaves no int8
+  // boundary between them either) is one kernel as well, writing the activation's int8 buffer.
+  for (const n of g.nodes) {
+    const out = n.outputs[0];
+    if (n.domain || !out || link.has(out) || io.has(out) || constant.has(out) || n.op === 'QuantizeLinear' || n.op === 'DequantizeLinear' || FUSED_ACTIVATION.has(n.op)) continue;
+    const c = consumers.get(out) ?? [];
+    const act = c.length === 1 && !c[0].domain && FUSED_ACTIVATION.has(c[0].op) ? c[0].outputs[0] : undefined;
+    if (act && !io.has(act) && onlyQuantized(act)) link.set(out, act);
+  }
   const alias = new Map<string, string>();
   for (const v of link.keys()) {
     let r = v;

@@ -6,6 +6,8 @@ import { conv } from '../kernels/conv.js';
 import { dense } from '../kernels/dense.js';
 import { avgpool, maxpool } from '../kernels/pool.js';
 import { quantizeInput, rescale } from '../kernels/misc.js';
+import { add, lut, mul } from '../kernels/eltwise.js';
+import { concat, slice, transpose } from '../kernels/layout.js';
 import { chainFor, fullModel, isStream, runFrame, type Chain, type ExitView, type FramePolicy, type Policy } from '../policy/policy.js';
 import { streamStart, streamStep, type StreamState } from '../policy/stream.js';
 import { OfframpError } from '../errors.js';
@@ -51,6 +53,12 @@ export class Int8Machine {
         case 'avgpool': avgpool(s.p, x, y); break;
         case 'copy': y.set(x.subarray(0, s.n)); break;
         case 'rescale': rescale(s.p, x, y); break;
+        case 'add': add(s.p, x, this.view(s.x2), y); break;
+        case 'mul': mul(s.p, x, this.view(s.x2), y); break;
+        case 'lut': lut(s.p, x, y); break;
+        case 'concat': concat(s.p, s.xs.map((t) => this.view(t)), y); break;
+        case 'transpose': transpose(s.p, x, y); break;
+        case 'slice': slice(s.p, x, y); break;
       }
       seen?.set(s.y.name, Int8Array.from(y));
     }

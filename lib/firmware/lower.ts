@@ -13,18 +13,43 @@ import { windowOf } from '../ops/window.js';
 import { inferShapes, type ShapeResult } from '../shapes/infer.js';
 import { tensorDims } from '../onnx/tensor.js';
 import type { TensorProto } from '../onnx/types.js';
-import { FLOAT, INT8, INT32 } from '../onnx/dtype.js';
+import { FLOAT, INT8, INT32, INT64 } from '../onnx/dtype.js';
 import { floatValues } from '../quant/fold-bn.js';
 import { OfframpError } from '../errors.js';
 import type { Manifest, ManifestStage } from '../split/manifest.js';
 import { chainTable } from '../emit/table.js';
 import { quantizeMultiplier, quantizeValue, type Multiplier } from '../kernels/requant.js';
-import type { PoolParams } from '../kernels/types.js';
-import type { Program, ProgramStage, Slot, Step, Tensor8 } from './program.js';
+import type { ConcatPart, PoolParams } from '../kernels/types.js';
+import { addMultipliers } from '../kernels/eltwise.js';
+import { activationTable, unaryOf, type Unary } from '../kernels/lut.js';
+import { stepInputs, type Program, type ProgramStage, type Slot, type Step, type Tensor8 } from './program.js';
 
 /** Ops whose int8 output holds input values only: bytes copied (or rescaled where the parameters differ). */
 const RESHAPES = new Set(['Flatten', 'Reshape', 'Squeeze', 'Unsqueeze', 'Identity', 'Dropout']);
 const f32 = Math.fround;
+/** Elementwise functions of one value that run as a 256-entry table (lib/kernels/lut.ts). */
+const TABLED = new Set(['Sigmoid', 'Tanh', 'HardSigmoid', 'HardSwish', 'LeakyRelu', 'Relu', 'Clip']);
+const prod = (v: number[]) => v.reduce((a, b) => a * b, 1);
+
+/**
+ * How b broadcasts over the full shape (NumPy rules, as ONNX's): b's axes that are not 1 must match
+ * and be one run of the full shape's axes (ignoring axes of size 1); then each b value serves the
+ * values after that run. undefined: another pattern.
+ */
+export function broadcastOf(full: number[], b: number[]): { inner: number; bN: number } | undefined {
+  if (b.length > full.length) return undefined;
+  const bd = [...new Array(full.length - b.length).fill(1), ...b];
+  let first = -1, last = -1;
+  for (let k = 0; k < full.length; k++) {
+    if (bd[k] !== 1 && bd[k] !== full[k]) return undefined;
+    if (full[k] === 1 || bd[k] === 1) continue;
+    if (last >= 0 && last !== k - 1 && full.slice(last + 1, k).some((d) => d !== 1)) return undefined;
+    if (first < 0) first = k;
+    last = k;
+  }
+  if (first < 0) return { inner: prod(full), bN: 1 };
+  return { inner: prod(full.slice(last + 1)), bN: prod(full.slice(first, last + 1)) };
+}
 
 class StageReader {
   readonly shapes: ShapeResult;
@@ -90,13 +115,19 @@ class StageReader {
   }
 }
 
-/** int8 and int32 initializer values (raw_data or int32_data). */
+/** int8, int32 and int64 initializer values (raw_data or the typed field). */
 function intValues(t: TensorProto): Int32Array | undefined {
   const n = tensorDims(t).reduce((a, b) => a * b, 1);
   const raw = t.rawData;
   if (t.dataType === INT8) {
     if (raw?.length) return raw.length === n ? Int32Array.from(new Int8Array(raw.buffer, raw.byteOffset, n)) : undefined;
     return t.int32Data?.length === n ? Int32Array.from(t.int32Data) : undefined;
+  }
+  if (t.dataType === INT64) {
+    // index lists (Slice starts and ends, axes): saturated to int32, as far as any dimension reaches
+    const sat = (v: bigint) => Number(v > 2147483647n ? 2147483647n : v < -2147483648n ? -2147483648n : v);
+    if (raw?.length) return raw.length === 8 * n ? Int32Array.from(new BigInt64Array(Uint8Array.from(raw).buffer), sat) : undefined;
+    return t.int64Data?.length === n ? Int32Array.from(t.int64Data, sat) : undefined;
   }
   if (t.dataType === INT32) {
     if (raw?.length) return raw.length === 4 * n ? new Int32Array(Uint8Array.from(raw).buffer) : undefined;
@@ -202,8 +233,8 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     return t;
   };
   /** Follow the op's output through an optional Relu/Clip to its QuantizeLinear: the int8 output and its clamp. */
-  const sink = (n: Node): { y: Tensor8; lo: number; hi: number } => {
-    let v = n.outputs[0], lo = -128, hi = 127;
+  const sink = (n: Node, k = 0): { y: Tensor8; lo: number; hi: number } => {
+    let v = n.outputs[k], lo = -128, hi = 127;
     let c = r.only(v);
     const act: Node[] = [];
     while (c && !c.domain && (c.op === 'Relu' || c.op === 'Clip') && !graphOut.has(v)) { act.push(c); v = c.outputs[0]; c = r.only(v); }
@@ -241,15 +272,40 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     if (!acts.length) r.fail('op of constants only', n);
     const x = source(acts[0], n);
     const xd = r.dims(acts[0], n);
-    const { y, lo, hi } = sink(n);
-    let c: Node | undefined = r.only(n.outputs[0]);
-    while (c && (c.op === 'Relu' || c.op === 'Clip')) { handled.add(c); c = r.only(c.outputs[0]); }
-    if (c) handled.add(c);
-    const yd = y.shape;
+    /** The int8 output of output k, its clamp; the activations and QuantizeLinear after it are this step's. */
+    const claim = (k: number) => {
+      const got = sink(n, k);
+      let c: Node | undefined = r.only(n.outputs[k]);
+      while (c && (c.op === 'Relu' || c.op === 'Clip')) { handled.add(c); c = r.only(c.outputs[0]); }
+      if (c) handled.add(c);
+      return got;
+    };
     const a = attrsOf(n.attrs);
     const multiplier = (real: number, what: string): Multiplier => {
       try { return quantizeMultiplier(real, what); } catch (e) { r.fail((e as Error).message, n); }
     };
+    if (n.op === 'Split') {
+      // one slice step per output: its rows of the split axis, requantized to the output's parameters
+      const ax = a.int('axis', 0), axis = ax < 0 ? ax + xd.length : ax;
+      if (axis < 0 || axis >= xd.length) r.fail(`axis ${ax} is outside rank ${xd.length}`, n);
+      const inner = prod(xd.slice(axis + 1)), outer = prod(xd.slice(0, axis));
+      let at = 0;
+      n.outputs.forEach((o, k) => {
+        if (!o) r.fail(`output ${k} is unnamed: the int8 firmware writes every part`, n);
+        const rows = r.dims(o, n)[axis];
+        const { y, lo, hi } = claim(k);
+        steps.push({ node: node(n), x, y, kind: 'slice', p: {
+          outer, inRow: xd[axis] * inner, start: at * inner, block: rows * inner,
+          inZero: x.zeroPoint, outZero: y.zeroPoint, lo, hi, mul: multiplier(x.scale / y.scale, `requantization of part ${k}`),
+          copy: x.scale === y.scale && x.zeroPoint === y.zeroPoint && lo === -128 && hi === 127,
+        } });
+        at += rows;
+      });
+      if (at !== xd[axis]) r.fail(`parts take ${at} of ${xd[axis]} rows`, n);
+      continue;
+    }
+    const { y, lo, hi } = claim(0);
+    const yd = y.shape;
     const base = { node: node(n), x, y };
     switch (n.op) {
       case 'Conv': {
@@ -331,7 +387,87 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
         }
         break;
       }
+      case 'Add': case 'Mul': case 'Sub': case 'Div': {
+        if (acts.length === 1 && n.inputs.length === 2) {
+          // with a float scalar constant it is a function of one value: a table (x + 3, x / 6 of a HardSwish written out)
+          const k = n.inputs[0] === acts[0] ? 1 : 0, c = r.isConst(n.inputs[k]) ? r.value(n.inputs[k], n) : undefined;
+          if (!(c instanceof Float32Array) || c.length !== 1) r.fail(`${n.op} with a constant operand that is not one float32 value: the int8 firmware tables a scalar constant only`, n);
+          const v = c[0], first = k === 1;
+          const fn: Unary = n.op === 'Add' ? (t) => f32(t + v) : n.op === 'Mul' ? (t) => f32(t * v)
+            : n.op === 'Sub' ? (first ? (t) => f32(t - v) : (t) => f32(v - t)) : (first ? (t) => f32(t / v) : (t) => f32(v / t));
+          steps.push({ ...base, kind: 'lut', p: { n: x.size, table: activationTable(fn, x, y, lo, hi) } });
+          break;
+        }
+        if (n.op === 'Sub' || n.op === 'Div') r.fail(`${n.op} of two int8 tensors has no int8 kernel in offramp's firmware`, n);
+        if (acts.length !== 2 || n.inputs.length !== 2) r.fail(`${n.op} with a constant operand: the int8 firmware ${n.op === 'Add' ? 'adds' : 'multiplies'} two int8 tensors`, n);
+        let [ta, tb] = [x, source(n.inputs[1], n)], db = r.dims(n.inputs[1], n);
+        if (ta.size !== y.size) { [ta, tb] = [tb, ta]; db = xd; }
+        const bc = ta.size === y.size ? broadcastOf(yd, db) : undefined;
+        if (!bc) r.fail(`broadcasts ${JSON.stringify(r.dims(n.inputs[0], n))} with ${JSON.stringify(r.dims(n.inputs[1], n))}: the int8 firmware broadcasts one operand as a scalar or along one run of axes`, n);
+        const bin = { n: y.size, ...bc, aZero: ta.zeroPoint, bZero: tb.zeroPoint, outZero: y.zeroPoint, lo, hi };
+        if (n.op === 'Add') {
+          let m: ReturnType<typeof addMultipliers>;
+          try { m = addMultipliers(ta.scale / y.scale, tb.scale / y.scale); } catch (e) { r.fail((e as Error).message, n); }
+          steps.push({ ...base, x: ta, x2: tb, kind: 'add', p: { ...bin, ...m } });
+        } else steps.push({ ...base, x: ta, x2: tb, kind: 'mul', p: { ...bin, mul: multiplier(f32(ta.scale * tb.scale) / y.scale, 'requantization of the product') } });
+        break;
+      }
+      case 'Concat': {
+        if (acts.length !== n.inputs.length) r.fail('Concat with a constant part: the int8 firmware concatenates int8 tensors', n);
+        const xs = n.inputs.map((v) => source(v, n));
+        const ax = a.int('axis', 0), axis = ax < 0 ? ax + yd.length : ax;
+        if (axis < 0 || axis >= yd.length) r.fail(`axis ${ax} is outside rank ${yd.length}`, n);
+        const parts: ConcatPart[] = n.inputs.map((v, k) => ({
+          block: prod(r.dims(v, n).slice(axis)), inZero: xs[k].zeroPoint,
+          mul: multiplier(xs[k].scale / y.scale, `requantization of part ${k}`),
+          copy: xs[k].scale === y.scale && xs[k].zeroPoint === y.zeroPoint && lo === -128 && hi === 127,
+        }));
+        const outer = prod(yd.slice(0, axis));
+        if (outer * parts.reduce((t, q) => t + q.block, 0) !== y.size) r.fail('parts do not add up to the output', n);
+        steps.push({ ...base, kind: 'concat', xs, p: { outer, outZero: y.zeroPoint, lo, hi, parts } });
+        break;
+      }
+      case 'Slice': {
+        // one axis cut with step 1: the slice kernel (a Split's part) with the output's rows
+        const list = (i: number, attr: string) => (n.inputs[i] ? Array.from(r.value(n.inputs[i], n)) : a.ints(attr));
+        const starts = list(1, 'starts') ?? [], axes = list(3, 'axes') ?? starts.map((_, k) => k), stepsOf = n.inputs[4] ? Array.from(r.value(n.inputs[4], n)) : starts.map(() => 1);
+        if (stepsOf.some((v) => v !== 1)) r.fail('Slice with steps other than 1: the int8 firmware cuts contiguous rows', n);
+        const cut = xd.map((d, k) => d !== yd[k]).reduce<number[]>((l, c, k) => (c ? [...l, k] : l), []);
+        if (yd.length !== xd.length || cut.length > 1) r.fail(`Slice along ${cut.length} axes: the int8 firmware cuts one`, n);
+        const axis = cut[0] ?? 0, j = axes.findIndex((v) => (v < 0 ? v + xd.length : v) === axis);
+        let from = j < 0 ? 0 : starts[j];
+        if (from < 0) from += xd[axis];
+        from = Math.max(0, Math.min(xd[axis], from));
+        const inner = prod(xd.slice(axis + 1));
+        if (from + yd[axis] > xd[axis]) r.fail('Slice runs past its input', n);
+        steps.push({ ...base, kind: 'slice', p: {
+          outer: prod(xd.slice(0, axis)), inRow: xd[axis] * inner, start: from * inner, block: yd[axis] * inner,
+          inZero: x.zeroPoint, outZero: y.zeroPoint, lo, hi, mul: multiplier(x.scale / y.scale, 'requantization of the slice'),
+          copy: x.scale === y.scale && x.zeroPoint === y.zeroPoint && lo === -128 && hi === 127,
+        } });
+        break;
+      }
+      case 'Transpose': {
+        if (xd.length > 6) r.fail(`rank ${xd.length}: the int8 firmware transposes up to rank 6`, n);
+        const perm = a.ints('perm') ?? xd.map((_, k) => xd.length - 1 - k);
+        if (perm.length !== xd.length || [...perm].sort().some((v, k) => v !== k)) r.fail(`perm ${JSON.stringify(perm)} is not a permutation of ${xd.length} axes`, n);
+        if (x.scale !== y.scale || x.zeroPoint !== y.zeroPoint || lo !== -128 || hi !== 127) r.fail('Transpose output quantized with other parameters than its input', n);
+        const strides = xd.map((_, d) => prod(xd.slice(d + 1)));
+        steps.push({ ...base, kind: 'transpose', p: { n: x.size, dims: perm.map((d) => xd[d]), strides: perm.map((d) => strides[d]) } });
+        break;
+      }
       default:
+        if (TABLED.has(n.op)) {
+          if (x.size !== y.size) r.fail(`changes the element count (${x.size} → ${y.size})`, n);
+          let fn: Unary | undefined;
+          if (n.op === 'Relu') fn = (v) => Math.max(0, v);
+          else if (n.op === 'Clip') {
+            const min = n.inputs[1] ? r.value(n.inputs[1], n)[0] : a.float('min', -Infinity)!, max = n.inputs[2] ? r.value(n.inputs[2], n)[0] : a.float('max', Infinity)!;
+            fn = (v) => Math.min(max, Math.max(min, v));
+          } else fn = unaryOf(n.op, { float: (k, d) => a.float(k, d)! });
+          steps.push({ ...base, kind: 'lut', p: { n: x.size, table: activationTable(fn!, x, y, lo, hi) } });
+          break;
+        }
         if (RESHAPES.has(n.op)) {
           if (x.size !== y.size) r.fail(`changes the element count (${x.size} → ${y.size})`, n);
           if (x.scale === y.scale && x.zeroPoint === y.zeroPoint && lo === -128 && hi === 127) steps.push({ ...base, kind: 'copy', n: x.size });
@@ -422,7 +558,7 @@ function fold(bias: Int32Array, w: ArrayLike<number>, per: number, zx: number): 
 function checkLifetimes(steps: Step[], arenaBytes: number, file: string): void {
   const live: { t: Tensor8; last: number }[] = [];
   const lastUse = new Map<string, number>();
-  steps.forEach((s, i) => { lastUse.set(s.x.name, i); });
+  steps.forEach((s, i) => { for (const t of stepInputs(s)) lastUse.set(t.name, i); });
   steps.forEach((s, i) => {
     const y = s.y;
     if (y.slot.kind !== 'arena') return;
@@ -435,14 +571,17 @@ function checkLifetimes(steps: Step[], arenaBytes: number, file: string): void {
     }
     live.push({ t: y, last: lastUse.get(y.name) ?? i });
   });
-  // the stage input's int8 tensor lives from the start: it is the first step's input
+  // an int8 tensor no step writes (the stage's quantized input) lives from the start to its last reader
+  const written = new Set(steps.map((s) => s.y.name));
   const first = steps[0]?.x;
-  if (first && first.slot.kind === 'arena') {
-    const a = first.slot.offset, b = a + first.size, last = lastUse.get(first.name) ?? 0;
+  const unwritten = new Map(steps.flatMap((s) => stepInputs(s)).filter((t) => !written.has(t.name) && t.slot.kind === 'arena').map((t) => [t.name, t]));
+  for (const t of unwritten.values()) {
+    if (t.slot.kind !== 'arena') continue;
+    const a = t.slot.offset, b = a + t.size, last = lastUse.get(t.name) ?? 0;
     steps.forEach((s, i) => {
-      if (i > last || i === 0 || s.y.slot.kind !== 'arena') return;
+      if (i > last || (i === 0 && t === first) || s.y.slot.kind !== 'arena') return;
       const lo = s.y.slot.offset, hi = lo + s.y.size;
-      if (a < hi && lo < b) throw new OfframpError('data', `arena plan puts '${s.y.name}' over the stage input '${first.name}' while it is needed`, file);
+      if (a < hi && lo < b) throw new OfframpError('data', `arena plan puts '${s.y.name}' over the stage input '${t.name}' while it is needed`, file);
     });
   }
 }

@@ -1,7 +1,7 @@
 // The integer program of a quantized chain: what the int8 firmware executes, stage by stage, as
 // data. `lower.ts` makes it from the QDQ stage files, `interp.ts` runs it in TypeScript (the
 // reference), `tables.ts` writes it as the C tables that offramp_run.c walks.
-import type { ConvParams, DenseParams, PoolParams, RescaleParams } from '../kernels/types.js';
+import type { AddParams, ConcatParams, ConvParams, DenseParams, LutParams, MulParams, PoolParams, RescaleParams, SliceParams, TransposeParams } from '../kernels/types.js';
 
 /** Where an int8 tensor lives on the device. */
 export type Slot =
@@ -29,7 +29,23 @@ export type Step =
   | StepBase & { kind: 'maxpool'; p: PoolParams }
   | StepBase & { kind: 'avgpool'; p: PoolParams }
   | StepBase & { kind: 'copy'; n: number }
-  | StepBase & { kind: 'rescale'; p: RescaleParams };
+  | StepBase & { kind: 'rescale'; p: RescaleParams }
+  /** x is a, x2 is b (the broadcast operand) */
+  | StepBase & { kind: 'add'; x2: Tensor8; p: AddParams }
+  | StepBase & { kind: 'mul'; x2: Tensor8; p: MulParams }
+  | StepBase & { kind: 'lut'; p: LutParams }
+  /** xs: every part in order (x is the first) */
+  | StepBase & { kind: 'concat'; xs: Tensor8[]; p: ConcatParams }
+  | StepBase & { kind: 'transpose'; p: TransposeParams }
+  /** one output of a Split (a Split of k parts is k steps) */
+  | StepBase & { kind: 'slice'; p: SliceParams };
+
+/** Every int8 tensor a step reads, in order. */
+export function stepInputs(s: Step): Tensor8[] {
+  if (s.kind === 'concat') return s.xs;
+  if (s.kind === 'add' || s.kind === 'mul') return [s.x, s.x2];
+  return [s.x];
+}
 
 export interface ProgramStage {
   index: number;

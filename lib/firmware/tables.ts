@@ -7,14 +7,15 @@ import { OfframpError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { hexDouble } from '../emit/c.js';
 import { mulInitializer, type Multiplier } from '../kernels/requant.js';
-import type { ConvParams, DenseParams, PoolParams, RescaleParams } from '../kernels/types.js';
+import type { AddParams, ConcatParams, ConvParams, DenseParams, LutParams, MulParams, PoolParams, RescaleParams, SliceParams, TransposeParams } from '../kernels/types.js';
 import type { Program, Step, Tensor8 } from './program.js';
 
 export const NET_HEADER = 'offramp_net.h';
 export const NET_SOURCE = 'offramp_net.c';
 
 const comment = (s: string) => s.replace(/\*\//g, '* /').replace(/[^\x20-\x7e]/g, '?');
-const KIND = { conv: 'OFFRAMP_STEP_CONV', dense: 'OFFRAMP_STEP_DENSE', maxpool: 'OFFRAMP_STEP_MAXPOOL', avgpool: 'OFFRAMP_STEP_AVGPOOL', copy: 'OFFRAMP_STEP_COPY', rescale: 'OFFRAMP_STEP_RESCALE' } as const;
+const KIND = { conv: 'OFFRAMP_STEP_CONV', dense: 'OFFRAMP_STEP_DENSE', maxpool: 'OFFRAMP_STEP_MAXPOOL', avgpool: 'OFFRAMP_STEP_AVGPOOL', copy: 'OFFRAMP_STEP_COPY', rescale: 'OFFRAMP_STEP_RESCALE',
+  add: 'OFFRAMP_STEP_ADD', mul: 'OFFRAMP_STEP_MUL', lut: 'OFFRAMP_STEP_LUT', concat: 'OFFRAMP_STEP_CONCAT', transpose: 'OFFRAMP_STEP_TRANSPOSE', slice: 'OFFRAMP_STEP_SLICE' } as const;
 
 function array(type: string, name: string, values: ArrayLike<number | string>, perLine = 24): string {
   if (!values.length) return `static const ${type} ${name}[1] = { 0 };\n`;
@@ -102,17 +103,18 @@ const offramp_q8_t offramp_input_q8_params = { ${hexDouble(p.input.tensor.scale)
     st.steps.forEach((s, j) => {
       const id = `s${st.index}_${j}`;
       parts.push(`\n/* ${s.kind} ${comment(s.node)}: ${comment(s.x.name)} -> ${comment(s.y.name)} */\n`);
-      const params = stepParams(s, id, parts);
-      rows.push(`  { ${KIND[s.kind]}, ${params}, ${where(s.x)}, ${where(s.y)}, ${s.y.size} }`);
+      const params = stepParams(s, id, parts, where);
+      const x2 = s.kind === 'add' || s.kind === 'mul' ? where(s.x2) : '0';
+      rows.push(`  { ${KIND[s.kind]}, ${params}, ${where(s.x)}, ${x2}, ${where(s.y)}, ${s.y.size} }`);
     });
-    parts.push(`static const offramp_step_t s${st.index}_steps[${Math.max(1, rows.length)}] = {\n${rows.join(',\n') || '  { OFFRAMP_STEP_COPY, 0, 0, 0, 0 }'}\n};\n`);
+    parts.push(`static const offramp_step_t s${st.index}_steps[${Math.max(1, rows.length)}] = {\n${rows.join(',\n') || '  { OFFRAMP_STEP_COPY, 0, 0, 0, 0, 0 }'}\n};\n`);
   }
   parts.push(`\nconst offramp_stage_program_t offramp_net_stages[OFFRAMP_STAGES] = {\n${p.stages.map((s) => `  { s${s.index}_steps, ${s.steps.length} }`).join(',\n')}\n};\n`);
   return [{ name: NET_HEADER, text: h }, { name: NET_SOURCE, text: parts.join('') }];
 }
 
 /** Emit the step's parameter struct (and its arrays) into `out`; returns the pointer expression. */
-function stepParams(s: Step, id: string, out: string[]): string {
+function stepParams(s: Step, id: string, out: string[], where: (t: Tensor8) => string): string {
   switch (s.kind) {
     case 'conv': {
       const p: ConvParams = s.p;
@@ -137,6 +139,39 @@ function stepParams(s: Step, id: string, out: string[]): string {
     case 'rescale': {
       const p: RescaleParams = s.p;
       out.push(`static const offramp_rescale_t ${id} = { ${p.n}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, ${mulInitializer(p.mul)} };\n`);
+      return `&${id}`;
+    }
+    case 'add': {
+      const p: AddParams = s.p;
+      out.push(`static const offramp_add_t ${id} = { ${[p.n, p.inner, p.bN, p.aZero, p.bZero, p.outZero, p.lo, p.hi, p.multA, p.multB, p.shift].join(', ')} };\n`);
+      return `&${id}`;
+    }
+    case 'mul': {
+      const p: MulParams = s.p;
+      out.push(`static const offramp_mul2_t ${id} = { ${[p.n, p.inner, p.bN, p.aZero, p.bZero, p.outZero, p.lo, p.hi].join(', ')}, ${mulInitializer(p.mul)} };\n`);
+      return `&${id}`;
+    }
+    case 'lut': {
+      const p: LutParams = s.p;
+      out.push(array('int8_t', `${id}_t`, p.table, 16), `static const offramp_lut_t ${id} = { ${p.n}, ${id}_t };\n`);
+      return `&${id}`;
+    }
+    case 'concat': {
+      const p: ConcatParams = s.p;
+      out.push(`static const offramp_concat_part_t ${id}_p[${p.parts.length}] = {\n${p.parts.map((q, k) =>
+        `  { ${where(s.xs[k])}, ${q.block}, ${q.inZero}, ${mulInitializer(q.mul)}, ${q.copy ? 1 : 0} }`).join(',\n')}\n};\n`);
+      out.push(`static const offramp_concat_t ${id} = { ${p.parts.length}, ${p.outer}, ${[p.outZero, p.lo, p.hi].join(', ')}, ${id}_p };\n`);
+      return `&${id}`;
+    }
+    case 'transpose': {
+      const p: TransposeParams = s.p;
+      const pad = (v: number[]) => [...v, ...new Array(Math.max(0, 6 - v.length)).fill(0)].join(', ');
+      out.push(`static const offramp_transpose_t ${id} = { ${p.n}, ${p.dims.length}, { ${pad(p.dims)} }, { ${pad(p.strides)} } };\n`);
+      return `&${id}`;
+    }
+    case 'slice': {
+      const p: SliceParams = s.p;
+      out.push(`static const offramp_slice_t ${id} = { ${[p.outer, p.inRow, p.start, p.block, p.inZero, p.outZero, p.lo, p.hi].join(', ')}, ${mulInitializer(p.mul)}, ${p.copy ? 1 : 0} };\n`);
       return `&${id}`;
     }
     case 'copy': return '0';

@@ -61,4 +61,67 @@ void offramp_rescale(const offramp_rescale_t *p, const int8_t *x, int8_t *y);
 /* QuantizeLinear of float32 input: round(x / scale) to even, plus the zero point, saturated. */
 int8_t offramp_quantize_value(float x, float scale, int32_t zero);
 
+/* Add and Mul of two int8 tensors. a has all n values; b is broadcast: each of its b_n values serves
+ * `inner` consecutive values of a, and the pattern repeats (b_n == n, inner == 1: the same shape;
+ * b_n == 1, inner == n: a scalar; b_n == C, inner == H * W: one value per channel). */
+typedef struct {
+  int32_t n, inner, b_n;
+  int32_t a_zero, b_zero, out_zero, lo, hi;
+  int32_t mult_a, mult_b;      /* s_a / s_y and s_b / s_y as round(r * 2^shift), both below 2^21 */
+  int32_t shift;               /* 1 ... 31 */
+} offramp_add_t;
+/* y = round(((a - a_zero) * mult_a + (b - b_zero) * mult_b) / 2^shift) + out_zero, ties to even: the exact
+ * sum (below 2^30) rounded once, clamped to [lo, hi] (a fused Relu narrows them). */
+void offramp_add(const offramp_add_t *p, const int8_t *a, const int8_t *b, int8_t *y);
+
+typedef struct {
+  int32_t n, inner, b_n;
+  int32_t a_zero, b_zero, out_zero, lo, hi;
+  offramp_mul_t mul;           /* s_a * s_b / s_y */
+} offramp_mul2_t;
+/* y = requant((a - a_zero) * (b - b_zero)). */
+void offramp_mul(const offramp_mul2_t *p, const int8_t *a, const int8_t *b, int8_t *y);
+
+/* An elementwise function of one int8 value (Sigmoid, HardSigmoid, HardSwish, Tanh, LeakyRelu): the
+ * table, computed when the tables were written, holds y for each x, clamp included. */
+typedef struct {
+  int32_t n;
+  const int8_t *table;         /* [256]: y for x = -128 ... 127 */
+} offramp_lut_t;
+void offramp_lut(const offramp_lut_t *p, const int8_t *x, int8_t *y);
+
+/* Concat: `outer` times, each part's next `block` values in turn, requantized to the output's
+ * parameters (copied as they are where the part's parameters are the output's). */
+typedef struct {
+  const int8_t *x;             /* the part's tensor */
+  int32_t block, in_zero;
+  offramp_mul_t mul;           /* s_x / s_y */
+  int32_t copy;                /* 1: same parameters, no clamp: bytes copied */
+} offramp_concat_part_t;
+typedef struct {
+  int32_t count, outer;
+  int32_t out_zero, lo, hi;
+  const offramp_concat_part_t *parts;   /* [count] */
+} offramp_concat_t;
+void offramp_concat(const offramp_concat_t *p, int8_t *y);
+
+/* Transpose: y in output order; for each output axis its size and the input's stride along it. */
+#define OFFRAMP_MAX_RANK 6
+typedef struct {
+  int32_t n, rank;
+  int32_t dims[OFFRAMP_MAX_RANK];
+  int32_t strides[OFFRAMP_MAX_RANK];
+} offramp_transpose_t;
+void offramp_transpose(const offramp_transpose_t *p, const int8_t *x, int8_t *y);
+
+/* One part of a Split: `outer` times, `block` values from `start` within each input row of `in_row`,
+ * requantized to the part's parameters (copied where they are the input's). */
+typedef struct {
+  int32_t outer, in_row, start, block;
+  int32_t in_zero, out_zero, lo, hi;
+  offramp_mul_t mul;           /* s_x / s_y */
+  int32_t copy;                /* 1: same parameters, no clamp: bytes copied */
+} offramp_slice_t;
+void offramp_slice(const offramp_slice_t *p, const int8_t *x, int8_t *y);
+
 #endif

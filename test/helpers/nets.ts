@@ -227,3 +227,50 @@ export function tinyMlp(): Model {
   b.output(b.node('MatMul', [x, b.init('wo', 1, [24, 4])]), 1, ['N', 4]);
   return b.build();
 }
+
+/**
+ * A small CNN with the operators of the int8 firmware beyond the plain conv stack (3×12×12 in, 4 classes):
+ * SiLU (Sigmoid and a same-shape Mul), a residual Add with a fused Relu, a squeeze-and-excitation gate
+ * (HardSigmoid, a per-channel Mul with the gate first), a Split into HardSwish and Tanh branches joined by a Concat, a Transpose,
+ * a Slice, LeakyRelu, and a HardSwish written out (Add, Clip and Div by scalar constants, a Mul). Cut values are named `pool` and `shuffled`; `softmax: true` puts a Softmax (no int8
+ * kernel) after the first conv instead, its output named `attended`.
+ */
+export function opsNet(o: { softmax?: boolean } = {}): Model {
+  const b = modelBuilder({ opset: 17, name: 'ops_net', seed: 7 });
+  // He-uniform weights (±sqrt(6 / fan-in), He et al. 2015): the signal keeps its size through the layers, so the logits vary with the input
+  const he = (fanIn: number): { uniform: [number, number] } => ({ uniform: [-Math.sqrt(6 / fanIn), Math.sqrt(6 / fanIn)] });
+  const conv = (x: string, name: string, cin: number, cout: number, k: number, stride = 1) => b.node('Conv', [x, b.init(`${name}.weight`, FLOAT, [cout, cin, k, k], he(cin * k * k)), b.init(`${name}.bias`, FLOAT, [cout], { uniform: [-0.1, 0.1] })],
+    { kernel_shape: [k, k], strides: [stride, stride], pads: new Array(4).fill((k - 1) >> 1) }, { name });
+  const x = b.input('input', FLOAT, ['N', 3, 12, 12]);
+  const c1 = conv(x, 'conv1', 3, 8, 3);
+  if (o.softmax) {
+    const s = b.node('Softmax', [c1], { axis: 1 }, { name: 'attend', outputs: ['attended'] })[0];
+    const y = conv(s, 'conv2', 8, 4, 3);
+    const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [y], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
+    b.output(b.node('Gemm', [pooled, b.init('fc.weight', FLOAT, [4, 4]), b.init('fc.bias', FLOAT, [4])], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
+    return b.build();
+  }
+  const a1 = b.node('Mul', [c1, b.node('Sigmoid', [c1], {}, { name: 'conv1.sigmoid' })], {}, { name: 'conv1.silu' });
+  const r = conv(a1, 'block.conv', 8, 8, 3);
+  const res = b.node('Relu', [b.node('Add', [r, a1], {}, { name: 'block.add' })], {}, { name: 'block.relu' });
+  const pool = b.node('MaxPool', [res], { kernel_shape: [2, 2], strides: [2, 2] }, { name: 'pool', outputs: ['pool'] })[0];
+  const g = b.node('GlobalAveragePool', [pool], {}, { name: 'se.pool' });
+  const s1 = b.node('Relu', [conv(g, 'se.fc1', 8, 4, 1)], {}, { name: 'se.relu' });
+  const gate = b.node('HardSigmoid', [conv(s1, 'se.fc2', 4, 8, 1)], { alpha: b.float(1 / 6), beta: b.float(0.5) }, { name: 'se.gate' });
+  const se = b.node('Mul', [gate, pool], {}, { name: 'se.excite' });
+  const [p1, p2] = b.node('Split', [se, b.init('split.sizes', INT64, [2], [3, 5])], { axis: 1 }, { name: 'split', outputs: 2 });
+  const h = b.node('HardSwish', [conv(p1, 'branch1', 3, 6, 1)], {}, { name: 'branch1.hswish' });
+  const t = b.node('Tanh', [conv(p2, 'branch2', 5, 4, 3)], {}, { name: 'branch2.tanh' });
+  const cat = b.node('Concat', [h, t], { axis: 1 }, { name: 'concat' });
+  const tr = b.node('Transpose', [cat], { perm: [0, 1, 3, 2] }, { name: 'transpose', outputs: ['shuffled'] })[0];
+  // columns 1 … end (ends as exporters write "to the end": INT64_MAX)
+  const cols = b.node('Slice', [tr, b.init('crop.starts', INT64, [1], [1]), b.init('crop.ends', INT64, [1], [9223372036854775807n]), b.init('crop.axes', INT64, [1], [3])], {}, { name: 'crop' });
+  const l = b.node('LeakyRelu', [conv(cols, 'conv3', 10, 12, 3, 2)], { alpha: b.float(0.1) }, { name: 'conv3.leaky' });
+  // HardSwish written out as older exporters do: x · Clip(x + 3, 0, 6) / 6
+  const k = (name: string, v: number) => b.init(name, FLOAT, [], [v]);
+  const relu6 = b.node('Clip', [b.node('Add', [l, k('three', 3)], {}, { name: 'hs.add' }), k('zero', 0), k('six', 6)], {}, { name: 'hs.clip' });
+  const hs = b.node('Mul', [l, b.node('Div', [relu6, k('six.d', 6)], {}, { name: 'hs.div' })], {}, { name: 'hs.mul' });
+  const pooled = b.node('Flatten', [b.node('GlobalAveragePool', [hs], {}, { name: 'gap' })], { axis: 1 }, { name: 'flatten' });
+  b.output(b.node('Gemm', [pooled, b.init('fc.weight', FLOAT, [4, 12], he(12)), b.init('fc.bias', FLOAT, [4], { uniform: [-0.1, 0.1] })], { transB: 1 }, { name: 'fc', outputs: ['logits'] })[0], FLOAT, ['N', 4]);
+  return b.build();
+}

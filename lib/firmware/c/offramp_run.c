@@ -12,6 +12,12 @@ void offramp_run_steps(const offramp_stage_program_t *stage) {
       case OFFRAMP_STEP_AVGPOOL: offramp_avgpool((const offramp_pool_t *)s->params, s->x, s->y); break;
       case OFFRAMP_STEP_COPY: for (j = 0; j < s->bytes; j++) s->y[j] = s->x[j]; break;
       case OFFRAMP_STEP_RESCALE: offramp_rescale((const offramp_rescale_t *)s->params, s->x, s->y); break;
+      case OFFRAMP_STEP_ADD: offramp_add((const offramp_add_t *)s->params, s->x, s->x2, s->y); break;
+      case OFFRAMP_STEP_MUL: offramp_mul((const offramp_mul2_t *)s->params, s->x, s->x2, s->y); break;
+      case OFFRAMP_STEP_LUT: offramp_lut((const offramp_lut_t *)s->params, s->x, s->y); break;
+      case OFFRAMP_STEP_CONCAT: offramp_concat((const offramp_concat_t *)s->params, s->y); break;
+      case OFFRAMP_STEP_TRANSPOSE: offramp_transpose((const offramp_transpose_t *)s->params, s->x, s->y); break;
+      case OFFRAMP_STEP_SLICE: offramp_slice((const offramp_slice_t *)s->params, s->x, s->y); break;
       default: break;
     }
   }

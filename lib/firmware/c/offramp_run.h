@@ -12,14 +12,21 @@ typedef enum {
   OFFRAMP_STEP_MAXPOOL = 2,  /* params: offramp_pool_t */
   OFFRAMP_STEP_AVGPOOL = 3,  /* params: offramp_pool_t */
   OFFRAMP_STEP_COPY = 4,     /* no params: y is a copy of x (a reshape keeps the bytes) */
-  OFFRAMP_STEP_RESCALE = 5   /* params: offramp_rescale_t */
+  OFFRAMP_STEP_RESCALE = 5,  /* params: offramp_rescale_t */
+  OFFRAMP_STEP_ADD = 6,      /* params: offramp_add_t; x is a, x2 is b */
+  OFFRAMP_STEP_MUL = 7,      /* params: offramp_mul2_t; x is a, x2 is b */
+  OFFRAMP_STEP_LUT = 8,      /* params: offramp_lut_t */
+  OFFRAMP_STEP_CONCAT = 9,   /* params: offramp_concat_t, which names every input (x is the first) */
+  OFFRAMP_STEP_TRANSPOSE = 10, /* params: offramp_transpose_t */
+  OFFRAMP_STEP_SLICE = 11    /* params: offramp_slice_t (one output of a Split) */
 } offramp_step_kind_t;
 
 typedef struct {
   int32_t kind;              /* an offramp_step_kind_t */
   const void *params;
   const int8_t *x;           /* input tensor: in the arena, a handover buffer or the model input */
-  int8_t *y;                 /* output tensor; never overlaps x */
+  const int8_t *x2;          /* a second input (Add, Mul), else 0 */
+  int8_t *y;                 /* output tensor; never overlaps an input */
   int32_t bytes;             /* bytes of y */
 } offramp_step_t;
 
