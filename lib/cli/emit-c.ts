@@ -2,6 +2,7 @@
 import type { Command } from 'commander';
 import { OfframpError } from '../errors.js';
 import { writeC } from '../emit/write.js';
+import { C_FILES_PATTERN } from '../emit/c.js';
 import { emit } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
 import { readManifestFile } from '../split/read.js';
@@ -20,14 +21,14 @@ function readPolicy(v: string): { value: unknown; from: string; file?: string } 
 
 export function emitCCommand(program: Command): void {
   program.command('emit-c')
-    .description('write offramp_policy.h and offramp_policy.c: stage table, chosen policy and decision functions in C99')
+    .description('write the C99 decision code: offramp_policy.{h,c} (stage table, chosen policy), offramp_config.h and the decision library offramp_decide.{h,c}')
     .argument('<dir>', 'split folder (or its manifest.json)')
     .requiredOption('-o, --out <dir>', 'folder for the C files')
     .option('--policy <json|file>', "policy JSON (inline or a file); required while the manifest holds none")
     .action((dir: string, o: { out: string; policy?: string }) => {
       const { manifest } = readManifestFile(dir);
       const policyFile = o.policy !== undefined && !o.policy.trimStart().startsWith('{') ? o.policy : undefined;
-      refuseInputsAsOutputs([...splitReads(dir, manifest), { file: policyFile, role: 'policy' }], [], [{ dir: o.out, names: /^offramp_policy\.[ch]$/ }]);
+      refuseInputsAsOutputs([...splitReads(dir, manifest), { file: policyFile, role: 'policy' }], [], [{ dir: o.out, names: C_FILES_PATTERN }]);
       checkOutDir(o.out);
       const r = writeC(dir, o.out, o.policy !== undefined ? { policy: readPolicy(o.policy) } : {});
       const t = r.table;

@@ -6,6 +6,7 @@ import { OfframpError } from '../errors.js';
 import { argmax, confidence, entropy, margin } from './scores.js';
 import { DISTANCES, type DistanceKind } from './distance.js';
 import { patienceOps, scoreDecisionOps, units } from './overhead.js';
+import { f32 } from './f32.js';
 
 export type ScoreKind = 'confidence' | 'entropy' | 'margin';
 export const SCORES: readonly ScoreKind[] = ['confidence', 'entropy', 'margin'];
@@ -84,7 +85,8 @@ export const frameStart = (): FrameState => ({ last: -1, run: 0 });
 export function orientedScore(kind: ScoreKind, z: ArrayLike<number>, off: number, n: number): number {
   return kind === 'confidence' ? confidence(z, off, n) : kind === 'margin' ? margin(z, off, n) : -entropy(z, off, n);
 }
-export const orientedThreshold = (kind: ScoreKind, t: number | null): number => (t === null ? Infinity : kind === 'entropy' ? -t : t);
+/** Thresholds are compared as float32, as the C holds them (a tuned threshold is a float32 score already). */
+export const orientedThreshold = (kind: ScoreKind, t: number | null): number => (t === null ? Infinity : kind === 'entropy' ? -f32(t) : f32(t));
 
 const scoreOf = (p: FramePolicy): ScoreKind | undefined => (p.kind === 'patience' ? undefined : p.kind === 'budget' ? p.score : p.kind);
 

@@ -5,6 +5,7 @@
 // composes them for callers that have every exit output at hand.
 import { argmax, softmax } from './scores.js';
 import { distance } from './distance.js';
+import { f32 } from './f32.js';
 import { argmaxOps, compareOps, softmaxOps, units } from './overhead.js';
 import { fullModel, runFrame, type Chain, type ExitView, type FramePolicy, type StreamPolicy } from './policy.js';
 
@@ -16,13 +17,13 @@ export interface StreamState {
   /** the scene's result, reused while frames stay close */
   label: number;
   /** softmax at `exit` of the frame that opened the scene */
-  ref: Float64Array;
+  ref: Float32Array;
   /** softmax of the frame under test (scratch, swapped into ref on open) */
-  probs: Float64Array;
+  probs: Float32Array;
   /** frames since the last one that reached the final output (the refresh counts them) */
   age: number;
 }
-export const streamStart = (classes: number): StreamState => ({ scene: -1, exit: -1, label: -1, ref: new Float64Array(classes), probs: new Float64Array(classes), age: 0 });
+export const streamStart = (classes: number): StreamState => ({ scene: -1, exit: -1, label: -1, ref: new Float32Array(classes), probs: new Float32Array(classes), age: 0 });
 
 /** A refresh is due: R − 1 frames in a row stopped short of the final output, so this one runs on to it, untested. */
 export const refreshDue = (p: StreamPolicy, s: StreamState): boolean => p.refresh !== undefined && s.scene >= 0 && s.age >= p.refresh - 1;
@@ -43,7 +44,7 @@ export function streamTest(p: StreamPolicy, s: StreamState, z: ArrayLike<number>
   softmax(z, off, n, s.probs);
   const d = distance(p.distance, s.probs, s.ref, n);
   // agreeing: a change of label opens a scene even within the distance threshold
-  const reuse = d < p.thresholds[0] && (p.kind !== 'agreeing' || argmax(s.probs, 0, n) === s.label);
+  const reuse = d < f32(p.thresholds[0]) && (p.kind !== 'agreeing' || argmax(s.probs, 0, n) === s.label);
   if (reuse) s.age = aged(s, s.exit, c);
   return { reuse, distance: d, overhead: units(compareOps(p.distance, n, p.kind === 'agreeing')) };
 }

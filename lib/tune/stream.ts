@@ -11,7 +11,7 @@
 import { OfframpError } from '../errors.js';
 import { fixedSequence } from '../certify/sequence.js';
 import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scenes.js';
-import { chainFor, DISTANCES, distance, fullModel, isStream, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
+import { chainFor, DISTANCES, distance, fullModel, isStream, nextUp32, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
 import type { Guarantee } from './guarantee.js';
@@ -94,7 +94,7 @@ export function sceneShares(c: ExitCache, idx: Int32Array, lab: Int32Array, ids:
 /** Distance-threshold candidates: quantiles of the distances between consecutive frames' softmax at the exits given. */
 function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[], grid: number): number[] {
   const C = c.classes, E1 = c.exits + 1;
-  const a = new Float64Array(C), b = new Float64Array(C);
+  const a = new Float32Array(C), b = new Float32Array(C);
   const ds: number[] = [];
   for (const k of exits) for (let j = 1; j < idx.length; j++) {
     softmax(c.logits, (idx[j - 1] * E1 + k) * C, C, a);
@@ -104,8 +104,8 @@ function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[]
   }
   ds.sort((x, y) => x - y);
   const out = new Set<number>();
-  // just above a quantile, so "d < τ" reuses the frames at that quantile too
-  for (let g = 1; g <= grid && ds.length; g++) { const v = ds[Math.round((g / grid) * (ds.length - 1))]; out.add(v > 0 ? v * (1 + 1e-9) : Number.MIN_VALUE); }
+  // the next float32 above a quantile, so "d < τ" (in float32, as the firmware compares) reuses the frames at that quantile too
+  for (let g = 1; g <= grid && ds.length; g++) out.add(nextUp32(ds[Math.round((g / grid) * (ds.length - 1))]));
   return [...out].sort((x, y) => x - y);
 }
 
