@@ -25,9 +25,10 @@ export const INT8_DIR = 'int8';
 
 /**
  * Files that describe one manifest (each names its SHA-256): a split removes them, a build writes
- * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old.
+ * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old. (The
+ * decision library beside it, offramp_decide.{h,c} and offramp_chain.h, is the same for every model.)
  */
-export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', `${INT8_DIR}/manifest.json`];
+export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'firmware/offramp_config.h', `${INT8_DIR}/manifest.json`];
 
 /**
  * Split folders a build nests in its own (`build --int8` writes the quantized split into DIR/int8).
