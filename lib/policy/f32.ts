@@ -10,11 +10,12 @@
 
 export const f32 = Math.fround;
 
-const bits = new DataView(new ArrayBuffer(4));
+// one float32 seen as its bits (typed arrays over one buffer: the same byte order on both sides)
+const fbuf = new Float32Array(1), ubuf = new Uint32Array(fbuf.buffer);
 /** The float32's bit pattern. */
-export function toBits32(x: number): number { bits.setFloat32(0, x); return bits.getUint32(0); }
+export function toBits32(x: number): number { fbuf[0] = x; return ubuf[0]; }
 /** The float32 with this bit pattern. */
-export function fromBits32(u: number): number { bits.setUint32(0, u >>> 0); return bits.getFloat32(0); }
+export function fromBits32(u: number): number { ubuf[0] = u; return fbuf[0]; }
 
 /** The next float32 above x (x a float32, finite): the least float32 threshold t with x < t. */
 export function nextUp32(x: number): number {
@@ -34,8 +35,9 @@ const EXP_MIN = f32(-103.97208404541016);
 // 1/n! for n = 2 … 7: Taylor coefficients of exp; |r| ≤ ln2/2 leaves a remainder below 2^-28
 const E2 = f32(1 / 2), E3 = f32(1 / 6), E4 = f32(1 / 24), E5 = f32(1 / 120), E6 = f32(1 / 720), E7 = f32(1 / 5040);
 
-/** 2^k as a float32, for −126 ≤ k ≤ 127. */
-const pow2 = (k: number) => fromBits32((k + 127) << 23);
+/** 2^k, −126 ≤ k ≤ 127 (exact: a float32, and a float64 product by it rounds as the float32 one). */
+const POW2 = Float64Array.from({ length: 254 }, (_, i) => 2 ** (i - 126));
+const pow2 = (k: number) => POW2[k + 126];
 
 /**
  * exp(x) in float32: x = k ln2 + r with k = round(x · log2 e), r = (x − k·LN2_HI) − k·LN2_LO
@@ -44,7 +46,7 @@ const pow2 = (k: number) => fromBits32((k + 127) << 23);
  */
 export function exp32(x: number): number {
   x = f32(x);
-  if (Number.isNaN(x)) return x;
+  if (x !== x) return x;
   if (x > EXP_MAX) return Infinity;
   if (x < EXP_MIN) return 0;
   const t = f32(x * LOG2E);
