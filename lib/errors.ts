@@ -1,6 +1,7 @@
 // Typed errors with the context a one-line message needs: which file, what, where.
 export type ErrorKind = 'usage' | 'io' | 'decode' | 'graph' | 'shape' | 'cost' | 'runtime' | 'data';
 
+/** What the library throws on bad input: `kind`, the `file` and `where` it concerns, and the CLI's one line (`line()`). */
 export class OfframpError extends Error {
   constructor(readonly kind: ErrorKind, message: string, readonly file?: string, readonly where?: string) {
     super(message);

@@ -19,6 +19,7 @@ import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
 import { folderProblems } from './helpers/folder-check.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
+import { compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
 const GCC = spawnSync('gcc', ['--version']).status === 0;
@@ -162,6 +163,28 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const row = /offramp_exit_q8\[OFFRAMP_EXITS \+ 1\] = \{ (.*) \};/.exec(c99)![1];
     const got = [...row.matchAll(/\{ (\S+)f \/\* [^*]+ \*\/, (-?\d+) \}/g)].map((x) => ({ scale: Number(x[1].replace(/^(-?)0x1\.?([0-9a-f]*)p(-?\d+)$/, (_, s, h, e) => String((s ? -1 : 1) * (1 + (h ? parseInt(h, 16) / 16 ** h.length : 0)) * 2 ** Number(e)))), zeroPoint: Number(x[2]) }));
     expect(got).toEqual(['exit-0', 'exit-1', 'logits'].map((n) => m.outputs.find((o) => o.name === n)!.quant));
+  });
+
+  it.skipIf(!GCC)('emit-c writes the whole int8 network: gcc build equal to the integer reference bit for bit, onnxruntime agreeing on label and exit', async () => {
+    // the folder was tuned above (600 test rows); emit-c wrote the whole library into fw
+    expect(fs.existsSync(f('fw/offramp_model.h'))).toBe(true);
+    compileFirmware(f('fw'), f('fw.exe'));
+    const { program, manifest, reach, outputs } = loadProgram(f('q'));
+    const few = test.images.subarray(0, 100 * per);
+    const c = firmwareTensors(f('fw.exe'), few), t = referenceTensors(program, few);
+    expect(c.length).toBe(t.length);
+    expect(c.equals(t)).toBe(true);
+    const some = test.images.subarray(0, 400 * per);
+    const fa = firmwareAnswers(f('fw.exe'), some), ta = referenceAnswers(program, manifest.policy!.rule, reach, some);
+    expect(Array.from(fa.label)).toEqual(Array.from(ta.label));
+    expect(Array.from(fa.exit)).toEqual(Array.from(ta.exit));
+    const all = firmwareAnswers(f('fw.exe'), test.images);
+    const o = await againstOrt(f('q'), program, outputs, manifest.policy!.rule, reach, test.images, all);
+    const agree = 1 - o.differ.length / o.frames;
+    const right = all.label.filter((l, i) => l === test.labels[i]).length / o.frames;
+    console.log(`Fashion-MNIST int8 firmware (gcc): ${t.length} int8 values of 100 test images bit for bit equal to the reference, 400 answers equal; vs onnxruntime on ${o.frames} test images: int8 logits ${histogram(o.steps)}; label and exit equal on ${(agree * 100).toFixed(2)} %; firmware top-1 ${(right * 100).toFixed(2)} %`
+      + (o.differ.length ? `; differ at ${o.differ.slice(0, 5).map((d) => `#${d.frame} (label, exit) ${d.firmware} vs ${d.ort}`).join(', ')} (a logit a step apart near a threshold: the fixed-point requantization against onnxruntime's float one)` : ''));
+    expect(agree).toBeGreaterThanOrEqual(0.995);
   });
 
   it('build --int8: the policy tuned on the int8 chain, its firmware, the int8 files judged as stored', () => {

@@ -90,6 +90,7 @@ const P = (name: string, flash: string, ram: string, mhz: string, r: string, r8:
   name, flashBytes: parseBytes(flash), ramBytes: parseBytes(ram), clockMhz: parseRatio(mhz),
   macsPerCycle: parseRatio(r), int8MacsPerCycle: parseRatio(r8), rough: true, note,
 });
+/** The built-in chip profiles by name: rough figures from memory, marked `rough`. */
 export const BUILTIN_TARGETS: Record<string, Target> = {
   // Cortex-M0+ class: no FPU, no DSP; float32 in software.
   m0plus: P('m0plus', '256KiB', '32KiB', '48', '0.02', '0.25', 'M0+ class, no FPU: software float32'),

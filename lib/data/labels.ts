@@ -14,6 +14,7 @@ export interface LabelExpect {
 
 const INT32 = 2 ** 31;
 
+/** Class labels from a .npy of whole numbers ([N] or [N, 1]), checked against `rows` and `classes`. */
 export function readLabels(file: string, x: LabelExpect = {}): Int32Array {
   const what = x.what ?? 'label';
   const { header, data } = readNpy(file);

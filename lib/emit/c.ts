@@ -18,7 +18,6 @@ export const C_CONFIG = 'offramp_config.h';
 export const C_FIXED = ['offramp_chain.h', 'offramp_decide.h', 'offramp_decide.c'] as const;
 /** Every file emit-c writes (generated first). */
 export const C_FILES = [C_HEADER, C_SOURCE, C_CONFIG, ...C_FIXED] as const;
-export const C_FILES_PATTERN = new RegExp(`^(?:${C_FILES.map((f) => f.replace(/\./g, '\\.')).join('|')})$`);
 
 /**
  * Where the library files are: lib/emit/c beside this module when run from the sources, or the

@@ -15,6 +15,7 @@ export interface LoadedModel extends Model { file?: string }
 
 export interface LoadOptions { /** skip the structure check (cycles, dangling inputs) */ unchecked?: boolean }
 
+/** Read and decode an ONNX file (external data beside it included); throws OfframpError naming the file. */
 export function loadModel(file: string, opts: LoadOptions = {}): LoadedModel {
   return parseModel(readRegular(file, 'model'), file, opts);
 }

@@ -49,6 +49,7 @@ function summary(r: CostReport): string[] {
   return lines;
 }
 
+/** The cost report as the CLI prints it: summary, node table (unless `nodes: false`), stage table. */
 export function costText(r: CostReport, opts: { nodes?: boolean } = {}): string {
   const parts = [summary(r).join('\n')];
   if (opts.nodes !== false) parts.push(table(NODE_HEAD, nodeRows(r)));

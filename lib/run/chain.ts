@@ -38,6 +38,7 @@ export function readManifest(where: string): { manifest: Manifest; file: string 
   return { manifest, file };
 }
 
+/** Open every stage of a split (a folder or its manifest.json), each stage file checked against the manifest's SHA-256. `run` stops at the first exit `policy` accepts. */
 export async function loadChain(manifestPath: string): Promise<Chain> {
   const { manifest, file } = readManifest(manifestPath);
   const dir = path.dirname(file);

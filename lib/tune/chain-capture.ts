@@ -24,6 +24,7 @@ export interface ChainLayout {
 
 const width = (shape: (number | string)[]) => shape.slice(1).reduce<number>((a, d) => a * (typeof d === 'number' ? d : NaN), 1);
 
+/** What replay and the tuner read from a manifest: exits in chain order, the final output, classes, MACs per exit. */
 export function chainLayout(m: Manifest, file?: string): ChainLayout {
   const exits: string[] = [], exitStage: number[] = [];
   for (const s of m.stages) for (const e of s.exits) { exits.push(e); exitStage.push(s.index); }

@@ -30,6 +30,7 @@ export function withDrop(s: ReplaySummary, fullAccuracy: number, g?: Guarantee):
 }
 export interface ReplayResult { policy: Policy; exits: string[]; frames: ReplayFrame[]; summary: ReplaySummary }
 
+/** Frames of `data` (.npy, in order) through the chain under `policy`, as firmware would run them: per-frame exits, MACs and, with labels, accuracy. */
 export async function replay(chain: Chain, layout: ChainLayout, policy: Policy, data: string, o: { labels?: Int32Array; recordings?: Int32Array } = {}): Promise<ReplayResult> {
   const E = layout.exits.length, C = layout.classes;
   const reach = reachOf(layout.costs, E);
