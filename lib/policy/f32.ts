@@ -40,8 +40,8 @@ const POW2 = Float64Array.from({ length: 254 }, (_, i) => 2 ** (i - 126));
 const pow2 = (k: number) => POW2[k + 126];
 
 /**
- * exp(x) in float32: x = k ln2 + r with k = round(x · log2 e), r = (x − k·LN2_HI) − k·LN2_LO
- * (the first subtraction exact by Sterbenz's lemma), exp(r) = 1 + (r + r²·P(r)), then scaled by 2^k
+ * exp(x) in float32: x = k ln2 + r with k = round(x · log2 e), r = hi − lo, hi = x − k·LN2_HI (exact
+ * by Sterbenz's lemma), lo = k·LN2_LO; exp(r) = 1 + (hi + (r²·P(r) − lo)), then scaled by 2^k
  * in one or two exact steps (two only when the result is subnormal, where the last one rounds).
  */
 export function exp32(x: number): number {
@@ -51,9 +51,11 @@ export function exp32(x: number): number {
   if (x < EXP_MIN) return 0;
   const t = f32(x * LOG2E);
   const k = Math.trunc(f32(t + (t < 0 ? -0.5 : 0.5)));
-  const r = f32(f32(x - f32(k * LN2_HI)) - f32(k * LN2_LO));
-  const p = f32(E2 + f32(r * f32(E3 + f32(r * f32(E4 + f32(r * f32(E5 + f32(r * f32(E6 + f32(r * E7)))))))))); 
-  const y = f32(1 + f32(r + f32(f32(r * r) * p)));
+  const hi = f32(x - f32(k * LN2_HI)), lo = f32(k * LN2_LO);
+  const r = f32(hi - lo);
+  const p = f32(E2 + f32(r * f32(E3 + f32(r * f32(E4 + f32(r * f32(E5 + f32(r * f32(E6 + f32(r * E7))))))))));
+  // hi + (r²P − lo) rather than r + r²P: the exact hi leads, so r's own rounding stays out of the sum
+  const y = f32(1 + f32(hi + f32(f32(f32(r * r) * p) - lo)));
   if (k > 127) return f32(f32(y * 2) * pow2(k - 1));
   if (k >= -126) return f32(y * pow2(k));
   return f32(f32(y * pow2(k + 64)) * pow2(-64));

@@ -30,20 +30,22 @@ static const float E2 = 0x1p-1f, E3 = 0x1.555556p-3f, E4 = 0x1.555556p-5f, E5 = 
 static const float L1 = 0x1.555556p-1f, L2 = 0x1.99999ap-2f, L3 = 0x1.24924ap-2f, L4 = 0x1.c71c72p-3f;
 static const float JS_SCALE = 0x1.715476p-1f;  /* 1 / (2 ln 2): half the sum of two KL terms, nats to bits */
 
-/* exp: x = k ln2 + r, k = round(x log2 e), r = (x - k LN2_HI) - k LN2_LO (the first step exact by Sterbenz),
- * exp(r) = 1 + (r + r^2 P(r)) with P the Taylor series to r^5/7!, then times 2^k in exact steps
+/* exp: x = k ln2 + r, k = round(x log2 e), r = hi - lo with hi = x - k LN2_HI (exact by Sterbenz) and
+ * lo = k LN2_LO; exp(r) = 1 + (hi + (r^2 P(r) - lo)) with P the Taylor series to r^5/7!, then times 2^k in exact steps
  * (the last of two rounds when the result is subnormal). */
 float offramp_exp(float x) {
-  float t, r, p, y;
+  float t, hi, lo, r, p, y;
   int32_t k;
   if (x != x) return x;
   if (x > EXP_MAX) return from_bits(0x7f800000u);
   if (x < EXP_MIN) return 0.0f;
   t = x * LOG2E;
   k = (int32_t)(t + (t < 0.0f ? -0.5f : 0.5f));
-  r = (x - (float)k * LN2_HI) - (float)k * LN2_LO;
+  hi = x - (float)k * LN2_HI;
+  lo = (float)k * LN2_LO;
+  r = hi - lo;
   p = E2 + r * (E3 + r * (E4 + r * (E5 + r * (E6 + r * E7))));
-  y = 1.0f + (r + (r * r) * p);
+  y = 1.0f + (hi + ((r * r) * p - lo));   /* the exact hi leads: r's rounding stays out of the sum */
   if (k > 127) return (y * 2.0f) * pow2(k - 1);
   if (k >= -126) return y * pow2(k);
   return (y * pow2(k + 64)) * pow2(-64);
