@@ -2,7 +2,10 @@
 // how far a frame's exit output has moved from the scene's reference.
 // Jensen–Shannon is the divergence (not its square root) in bits, so it lies in [0, 1].
 // float32 throughout, as scores.ts (and the C that mirrors both) computes.
-import { f32, log32, sqrt32 } from './f32.js';
+import * as F from './f32.js';
+
+// local bindings, read once (see scores.ts)
+const f32 = Math.fround, log32 = F.log32, sqrt32 = F.sqrt32;
 
 export type DistanceKind = 'l1' | 'l2' | 'cosine' | 'js';
 export const DISTANCES: readonly DistanceKind[] = ['l1', 'l2', 'cosine', 'js'];

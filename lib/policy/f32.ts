@@ -43,9 +43,9 @@ const pow2 = (k: number) => POW2[k + 126];
  * exp(x) in float32: x = k ln2 + r with k = round(x · log2 e), r = hi − lo, hi = x − k·LN2_HI (exact
  * by Sterbenz's lemma), lo = k·LN2_LO; exp(r) = 1 + (hi + (r²·P(r) − lo)), then scaled by 2^k
  * in one or two exact steps (two only when the result is subnormal, where the last one rounds).
+ * This is the whole range; exp32 below runs the same operations inline where −126 ≤ k ≤ 127.
  */
-export function exp32(x: number): number {
-  x = f32(x);
+function expWide(x: number): number {
   if (x !== x) return x;
   if (x > EXP_MAX) return Infinity;
   if (x < EXP_MIN) return 0;
@@ -61,25 +61,36 @@ export function exp32(x: number): number {
   return f32(f32(y * pow2(k + 64)) * pow2(-64));
 }
 
+/**
+ * exp(x) in float32, as offramp_exp computes it. The common range (−87 ≤ x ≤ 88, where k lies in
+ * −126 … 127) is written out here, small enough for the JavaScript compiler to inline it into the
+ * scores, so no call boxes its result; the rest goes to expWide. Same operations, same bits.
+ */
+export function exp32(x: number): number {
+  x = f32(x);
+  if (!(x >= -87 && x <= 88)) return expWide(x);
+  const t = f32(x * LOG2E);
+  const k = Math.trunc(f32(t + (t < 0 ? -0.5 : 0.5)));
+  const hi = f32(x - f32(k * LN2_HI)), lo = f32(k * LN2_LO);
+  const r = f32(hi - lo);
+  const p = f32(E2 + f32(r * f32(E3 + f32(r * f32(E4 + f32(r * f32(E5 + f32(r * f32(E6 + f32(r * E7))))))))));
+  return f32(f32(1 + f32(hi + f32(f32(f32(r * r) * p) - lo))) * POW2[k + 126]);
+}
+
 // 2/(2n+1) for n = 1 … 4: log(1+f) = 2 atanh(s), s = f/(2+f), |s| ≤ 0.1716, s² ≤ 0.0295
 const L1 = f32(2 / 3), L2 = f32(2 / 5), L3 = f32(2 / 7), L4 = f32(2 / 9);
-const SQRT_HALF_BITS = 0x3f3504f3;   // √½ as float32 bits: mantissas at or above it stay in [√½, √2)
 
 /**
- * log(x) in float32: x = 2^k · m with √½ ≤ m < √2, f = m − 1 (exact), s = f / (2 + f),
- * log m = f − (f²/2 − s·(f²/2 + R)) with R = 2s²/3 + 2s⁴/5 + 2s⁶/7 + 2s⁸/9 (the series of 2 atanh s
- * less its first term, rearranged so that the exact f leads), plus k ln2 in two parts.
+ * log of a positive normal float32 given by its bits u (times 2^k0 more): x = 2^k · m with
+ * √½ ≤ m < √2, f = m − 1 (exact), s = f / (2 + f), log m = f − (f²/2 − s·(f²/2 + R)) with
+ * R = 2s²/3 + 2s⁴/5 + 2s⁶/7 + 2s⁸/9 (the series of 2 atanh s less its first term, rearranged so that
+ * the exact f leads), plus k ln2 in two parts.
  */
-export function log32(x: number): number {
-  x = f32(x);
-  if (Number.isNaN(x) || x < 0) return NaN;
-  if (x === 0) return -Infinity;
-  if (x === Infinity) return x;
-  let u = toBits32(x), k = 0;
-  if (u < 0x00800000) { u = toBits32(f32(x * 33554432)); k = -25; }   // subnormal: scale by 2^25 first
-  k += (u >>> 23) - 127;
+function logBits(u: number, k0: number): number {
+  let k = k0 + (u >>> 23) - 127;
   let m = u & 0x007fffff;
-  if ((m | 0x3f800000) >= SQRT_HALF_BITS + 0x00800000) { m |= 0x3f000000; k += 1; } else m |= 0x3f800000;
+  // mantissas at or above √2's (0x3504f3) are halved into [√½, 1)
+  if (m >= 0x3504f3) { m |= 0x3f000000; k += 1; } else m |= 0x3f800000;
   const f = f32(fromBits32(m) - 1);
   const s = f32(f / f32(2 + f));
   const z = f32(s * s);
@@ -88,6 +99,21 @@ export function log32(x: number): number {
   const lm = f32(f - f32(hfsq - f32(s * f32(hfsq + R))));
   if (k === 0) return lm;
   return f32(f32(k * LN2_HI) + f32(lm + f32(k * LN2_LO)));
+}
+
+/** log of what is not a positive normal float32: NaN, negative, zero, infinity, subnormal (scaled by 2^25 first). */
+function logWide(x: number): number {
+  if (x !== x || x < 0) return NaN;
+  if (x === 0) return -Infinity;
+  if (x === Infinity) return x;
+  return logBits(toBits32(f32(x * 33554432)), -25);
+}
+
+/** log(x) in float32, as offramp_log computes it (logBits; positive normal x inline, the rest logWide). */
+export function log32(x: number): number {
+  x = f32(x);
+  const u = toBits32(x);
+  return u >= 0x00800000 && u < 0x7f800000 ? logBits(u, 0) : logWide(x);
 }
 
 /** √x in float32 (correctly rounded, as IEEE 754 requires of a float32 unit's square root). */

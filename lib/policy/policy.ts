@@ -75,7 +75,12 @@ export interface Chain { exits: number; classes: number; cap: number }
 export const chain = (exits: number, classes: number, cap = exits): Chain => ({ exits, classes, cap });
 
 /** Exit outputs on demand: logits of exit k (k = exits: the final output), `classes` values from `offset(k)`. */
-export interface ExitView { data(k: number): ArrayLike<number>; offset(k: number): number }
+export interface ExitView {
+  data(k: number): ArrayLike<number>;
+  offset(k: number): number;
+  /** Optional: exit k's softmax as `softmax` computes it, `classes` values from `offset(k)` as the logits are, for a caller that keeps them (the stream tuner). */
+  probs?(k: number): ArrayLike<number>;
+}
 
 /** Patience's memory across the exits of one sample. */
 export interface FrameState { last: number; run: number }

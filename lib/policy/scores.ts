@@ -4,7 +4,11 @@
 // logits are read as float32, every operation is rounded to float32 (f32.ts), and exp/log
 // are exp32/log32, so the C gives the same bits and the tuner's thresholds are the scores
 // the device computes. Ties go to the lowest index (as numpy.argmax does), so every port agrees.
-import { exp32, f32, log32 } from './f32.js';
+import * as F from './f32.js';
+
+// Local bindings, read once: a test runner that rewrites imports into property reads would
+// otherwise pay one per operation of these float32 inner loops.
+const f32 = Math.fround, exp32 = F.exp32, log32 = F.log32;
 
 /** Index of the largest logit (first one on ties). */
 export function argmax(z: ArrayLike<number>, off: number, n: number): number {

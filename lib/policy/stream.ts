@@ -38,10 +38,21 @@ export function compareExit(p: StreamPolicy, s: StreamState): number {
 
 export interface StreamTest { reuse: boolean; distance: number; overhead: number }
 
-/** Compare the frame's output at the scene's exit with the reference. Needs a scene; a reuse ages it. */
-export function streamTest(p: StreamPolicy, s: StreamState, z: ArrayLike<number>, off: number, c: Chain): StreamTest {
+/** Exit k's softmax into `out`: the view's own when it keeps them, else computed. */
+function softmaxAt(v: ExitView, k: number, n: number, out: Float32Array): void {
+  if (!v.probs) { softmax(v.data(k), v.offset(k), n, out); return; }
+  const q = v.probs(k), off = v.offset(k);
+  for (let i = 0; i < n; i++) out[i] = q[off + i];
+}
+
+/**
+ * Compare the frame's output at the scene's exit with the reference. Needs a scene; a reuse ages it.
+ * `pre`: that output's softmax (from `off`, as z) when the caller has it (as `softmax` computes it), else computed from z.
+ */
+export function streamTest(p: StreamPolicy, s: StreamState, z: ArrayLike<number>, off: number, c: Chain, pre?: ArrayLike<number>): StreamTest {
   const n = c.classes;
-  softmax(z, off, n, s.probs);
+  if (pre) for (let i = 0; i < n; i++) s.probs[i] = pre[off + i];
+  else softmax(z, off, n, s.probs);
   const d = distance(p.distance, s.probs, s.ref, n);
   // agreeing: a change of label opens a scene even within the distance threshold
   const reuse = d < f32(p.thresholds[0]) && (p.kind !== 'agreeing' || argmax(s.probs, 0, n) === s.label);
@@ -65,7 +76,7 @@ export function streamOpen(p: StreamPolicy, s: StreamState, v: ExitView, stop: n
     overhead += (k + 1) * (units(argmaxOps(n)) + 1);
   }
   if (tested && k === s.exit) { const t = s.ref; s.ref = s.probs; s.probs = t; }
-  else { softmax(v.data(k), v.offset(k), n, s.ref); overhead += units(softmaxOps(n)); }
+  else { softmaxAt(v, k, n, s.ref); overhead += units(softmaxOps(n)); }
   s.scene += 1;
   s.exit = k;
   s.label = label;
@@ -84,7 +95,7 @@ export function streamStep(p: StreamPolicy, s: StreamState, v: ExitView, c: Chai
   let tested = false;
   const forced = refreshDue(p, s);
   if (s.scene >= 0 && !forced) {
-    const t = streamTest(p, s, v.data(k), v.offset(k), c);
+    const t = streamTest(p, s, v.data(k), v.offset(k), c, v.probs?.(k));
     overhead += t.overhead;
     dist = t.distance;
     if (t.reuse) return { exit: k, label: s.label, reused: true, scene: s.scene, overhead, distance: dist };
