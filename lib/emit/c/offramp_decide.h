@@ -67,7 +67,8 @@ typedef struct {
 typedef struct { int32_t exit, label; } offramp_result_t;
 typedef struct { int32_t exit, label, reused, scene; } offramp_stream_result_t;
 
-/* float exp, log and square root without libm (exp and log within 1 ulp; sqrt correctly rounded). */
+/* float exp, log and square root without libm: exp within 0.94 ulp, log within 0.92 ulp of the exact value over
+ * every float32 (measured), 99 % of results correctly rounded; sqrt correctly rounded. */
 float offramp_exp(float x);
 float offramp_log(float x);
 float offramp_sqrt(float x);
