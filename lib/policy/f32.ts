@@ -71,7 +71,7 @@ export function exp32(x: number): number {
   if (!(x >= -87 && x <= 88)) return expWide(x);
   const t = f32(x * LOG2E);
   const k = Math.trunc(f32(t + (t < 0 ? -0.5 : 0.5)));
-  const hi = f32(x - f32(k * LN2_HI)), lo = f32(k * LN2_LO);
+  const hi = f32(x - k * LN2_HI), lo = f32(k * LN2_LO);   // k·LN2_HI is exact (|k| ≤ 127): no rounding to write
   const r = f32(hi - lo);
   const p = f32(E2 + f32(r * f32(E3 + f32(r * f32(E4 + f32(r * f32(E5 + f32(r * f32(E6 + f32(r * E7))))))))));
   return f32(f32(1 + f32(hi + f32(f32(f32(r * r) * p) - lo))) * POW2[k + 126]);
