@@ -9,6 +9,7 @@ import { budgetText, duration, storedLabel } from './budget.js';
 import { MANIFEST_FILE, type ManifestPolicy } from '../split/manifest.js';
 import { frontSeries, guaranteeLines } from './tune.js';
 import type { Guarantee } from '../certify/guarantee.js';
+import type { DeviceReport } from '../measure/device.js';
 
 export const BUILD_SCHEMA = 'offramp-build/2';
 
@@ -52,7 +53,17 @@ export function buildSummary(r: BuildResult) {
     fronts: r.tuned.kinds.map((k) => ({ kind: k.kind, points: k.front.map((p) => ({ meanMacs: p.held.meanMacs, accuracy: p.held.accuracy, bound: p.cert?.bound ?? null, passed: p.cert?.passed ?? false })) })),
     budget: r.budget ?? null,
     ...(r.int8 && { int8: int8Summary(r) }),
+    ...(r.device && { device: r.device }),
   };
+}
+
+/** The device headline: what the exits save on the (emulated) microcontroller, in instructions and estimated time. */
+export function deviceLines(d: DeviceReport): string[] {
+  const f = d.perFrame, ms = (us: number) => (us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us} µs`);
+  return [
+    `on device  emulated ${d.core}, int8 firmware on ${d.frames} rows: ${si(f.policy)} instructions per frame with the policy vs ${si(f.full)} for the whole network — ${(f.savedShare * 100).toFixed(1)} % saved`,
+    `           ≈ ${ms(f.policyMicroseconds)} vs ${ms(f.fullMicroseconds)} per frame at ${d.basis.clockMhz} MHz (estimate: ${d.basis.cyclesPerInstruction} cycles per instruction; the instruction counts are exact); flash ${bytes(d.flash.libraryBytes)}, RAM ${bytes(d.ram.libraryBytes)} + stack ${bytes(d.ram.stackPeakBytes)}; answers ${d.answers.equalToReference === d.frames ? 'equal to' : 'DIFFERENT from'} the integer reference`,
+  ];
 }
 
 /** A tuned policy's figures on the certification part, for report.json. */
@@ -103,6 +114,7 @@ export function buildText(r: BuildResult): string {
     ...promiseText(s.guarantee),
     `MACs       ${si(Math.round(h.meanMacs))} per sample on average vs ${si(h.fullMacs)}: ${pct(h.saving)} saved`,
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
+    ...(r.headWarnings ?? []).map((w) => `note       ${w}`),
     '',
     table(['stage', 'MACs', 'weights', 'peak act.', 'arena', 'hands over', 'exit', 'leave here'], rows),
   ];
@@ -119,10 +131,22 @@ export function buildText(r: BuildResult): string {
     );
   }
   if (r.budget) lines.push('', budgetText(r.budget, r.int8 ? 'int8 as stored' : storedLabel(r.cost)).trimEnd());
-  return lines.join('\n') + '\n';
+  // the number an engineer takes to a design review goes first
+  return [...(r.device ? [...deviceLines(r.device), ''] : []), ...lines].join('\n') + '\n';
 }
 
 // ── HTML ────────────────────────────────────────────────────────────────────
+
+function deviceHtml(d: DeviceReport): string {
+  const f = d.perFrame;
+  const rows = d.stages.map((st) => `<tr><td>${st.index}</td><td>${si(st.macs)}</td><td>${si(st.instructions)}</td><td>${st.instructionsPerMac.toFixed(2)}</td></tr>`).join('');
+  const paths = d.paths.map((p) => `<tr><td>${p.exit === d.exits ? 'final output' : `exit ${p.exit}`}</td><td>${p.frames}</td><td>${si(p.meanInstructions)}</td></tr>`).join('');
+  return `<h2>On the device (emulated ${esc(d.core)})</h2>
+<p class="verdict">${si(f.policy)} instructions per frame with the policy against ${si(f.full)} for the whole network: ${(f.savedShare * 100).toFixed(1)} % saved.</p>
+<p>The int8 firmware emit-c writes, compiled with arm-none-eabi-gcc for ${esc(d.core)} and run under QEMU (${esc(d.machine)}) on ${d.frames} rows; instructions counted exactly. Estimated ${f.policyMicroseconds} µs against ${f.fullMicroseconds} µs per frame at ${d.basis.clockMhz} MHz (${d.basis.cyclesPerInstruction} cycles per instruction, an estimate; no wait states). Flash ${bytes(d.flash.libraryBytes)}, RAM ${bytes(d.ram.libraryBytes)} + stack peak ${bytes(d.ram.stackPeakBytes)}. Answers equal to the TypeScript integer reference on ${d.answers.equalToReference} of ${d.frames} rows, to onnxruntime's on ${d.answers.equalToOnnxruntime}.</p>
+<table><tr><th>stage</th><th>MACs</th><th>instructions</th><th>per MAC</th></tr>${rows}</table>
+<table><tr><th>answer from</th><th>frames</th><th>instructions per frame</th></tr>${paths}</table>`;
+}
 
 /** The self-contained report page: summary, charts (inline SVG), stages against the chip, exit placement. */
 export function buildHtml(r: BuildResult): string {
@@ -155,6 +179,7 @@ ${s.int8 ? `<li>int8 (<code>${esc(s.int8.dir)}</code>, QDQ stage files, ${esc(s.
 <li>Target: ${target}.</li>
 <li>Describes <code>${MANIFEST_FILE}</code> with SHA-256 <code class="manifest-sha256">${esc(s.manifest.sha256)}</code>.</li>
 </ul>
+${r.device ? deviceHtml(r.device) : ''}
 <h2>Stages</h2>
 <table><tr><th>stage</th><th>MACs</th><th>weights</th><th>peak act.</th><th>arena</th><th>hands over</th><th>exit</th><th>leave here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>
 ${lineChart('Accuracy vs mean MACs per policy (certification part; grey: full accuracy − certified bound)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}

@@ -18,6 +18,8 @@ export interface TuneReport {
   data: string;
   stream: boolean;
   written?: string;
+  /** what happened to the manifest beyond `written`, in words (kept as it was and why; what was replaced) */
+  manifestNote?: string;
 }
 
 const pct = (x: number, d = 2) => `${(x * 100).toFixed(d)} %`;
@@ -73,6 +75,7 @@ export function tuneText(t: TuneReport, frontRows = 12): string {
   out.push(`  accuracy ${pct(r.chosen.held.accuracy)} (drop ${drop(full, r.chosen.held)} pp), ${si(r.chosen.held.meanMacs)} MACs per sample, saving ${saving(full, r.chosen.held)}`);
   if (r.guarantee) out.push(...guaranteeLines(r.guarantee, settingText));
   if (t.written) out.push(`  written into ${t.written}`);
+  if (t.manifestNote) out.push(`  ${t.manifestNote}`);
   out.push('', 'exit histogram (certification part)');
   out.push(table(['exit', 'share', ''], r.chosen.held.exitShare.map((s, k) => [t.exitNames[k] ?? `exit ${k}`, pct(s, 1), '█'.repeat(Math.round(s * 40))])));
   for (const k of r.kinds) {
@@ -101,7 +104,7 @@ export function tuneJson(t: TuneReport): string {
   return toJson({
     schema: TUNE_SCHEMA, data: t.data, stream: t.stream, labelled: r.labelled, maxDrop: r.maxDrop, split: r.split,
     exits: t.exitNames, reach: r.reach, stages: t.stages, settings: r.settings,
-    guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null,
+    guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null, ...(t.manifestNote && { manifestNote: t.manifestNote }),
     ...('scenes' in r && { scenes: (r as { scenes: unknown }).scenes }),
   }) + '\n';
 }
