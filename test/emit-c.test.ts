@@ -27,6 +27,8 @@ import { planArena } from '../lib/cost/arena.js';
 import type { LiveValue } from '../lib/cost/memory.js';
 import type { Manifest, ManifestTensor } from '../lib/split/manifest.js';
 import { main } from '../lib/cli/main.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureFirmware } from '../lib/measure/measure.js';
 
 const GCC = spawnSync('gcc', ['--version']).status === 0;
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the emit-c tests need it under CI');
@@ -37,6 +39,8 @@ afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
 const CFLAGS = ['-std=c99', '-Wall', '-Wextra', '-Werror', '-pedantic', '-O2', '-ffp-contract=off', '-Wdouble-promotion'];
 const ARM_GCC = spawnSync('arm-none-eabi-gcc', ['--version']).status === 0;
 if (!ARM_GCC && process.env.CI) throw new Error('arm-none-eabi-gcc is missing: the Cortex-M4F compile needs it under CI');
+const EMU = toolchainStatus().ready;
+if (!EMU && process.env.CI) throw new Error(`the emulated Cortex-M4F decisions need the toolchain under CI: ${toolchainStatus().message}`);
 
 const E = 3, C = 10, E1 = E + 1;
 
@@ -405,6 +409,72 @@ int main(int argc, char **argv) {
     });
     expect(bad.slice(0, 5)).toEqual([]);
   }, 30_000);
+
+  // The same C on the emulated Cortex-M4F (QEMU mps2-an386): its FPU computes the float operations (vsqrt.f32
+  // for the square root), so this checks the target's arithmetic, subnormals included, against lib/policy.
+  it.runIf(EMU)('on the emulated Cortex-M4F: exp, log, sqrt and the decisions of every kind and distance equal lib/policy', async () => {
+    const d = path.join(tmp, 'm4f-run');
+    fs.mkdirSync(d);
+    const n = N, ns = NS;   // every frame: thresholds sit on scores of the data, so ties are spread through it
+    const head = (k: number) => Buffer.from(new Int32Array([k]).buffer);
+    const qpBytes = (q: Q8) => { const b = Buffer.alloc(E1 * 8); for (let k = 0; k < E1; k++) { b.writeFloatLE(q.scale[k], 8 * k); b.writeInt32LE(q.zp[k], 8 * k + 4); } return b; };
+    const inputs = (name: string, c: Cache, q: Q8, m: number) => {
+      fs.writeFileSync(path.join(d, `${name}-f32.bin`), Buffer.concat([head(m), Buffer.from(c.z.buffer, 0, m * E1 * C * 4)]));
+      fs.writeFileSync(path.join(d, `${name}-q8.bin`), Buffer.concat([head(m), qpBytes(q), Buffer.from(q.q.buffer, 0, m * E1 * C)]));
+    };
+    inputs('val', val, valQ, n);
+    inputs('str', str, strQ, ns);
+    const rnd = mulberry32(9);
+    const u = new Uint32Array(1), f = new Float32Array(u.buffer), xs: number[] = [];
+    for (let i = 0; i < 4000; i++) { u[0] = Math.floor(rnd() * 2 ** 32); xs.push(f[0], -30 * rnd(), -110 * rnd(), 2 * rnd()); }
+    xs.push(0, -0, 1, Infinity, -Infinity, NaN, 2 ** -149, 2 ** -130, -100, 88.72283);
+    const x32 = Float32Array.from(xs);
+    fs.writeFileSync(path.join(d, 'x.bin'), x32);
+    const harness = HARNESS.replace('int main(int argc, char **argv) {', 'static int run_harness(int argc, char **argv) {');
+    const driver = (data: string, out: string) => `${harness}
+int main(void) {
+  char a0[] = "h", f[] = "f", q[] = "q", fi[] = "${data}-f32.bin", qi[] = "${data}-q8.bin", fo[] = "${out}-f32.out", qo[] = "${out}-q8.out";
+  char *af[] = { a0, f, fi, fo }, *aq[] = { a0, q, qi, qo };
+  FILE *in = fopen("${path.join(d, 'x.bin')}", "rb"), *o = fopen("${out}-x.out", "wb");
+  float x, r[3];
+  if (!in || !o) return 5;
+  while (fread(&x, 4, 1, in) == 1) { r[0] = offramp_exp(x); r[1] = offramp_log(x); r[2] = offramp_sqrt(x); fwrite(r, 4, 3, o); }
+  if (fclose(o)) return 6;
+  return run_harness(4, af) || run_harness(4, aq);
+}
+`;
+    // one of each kind (frame: confidence, entropy, margin, patience, a budget, a budget with a score) and each distance
+    const some: Policy[] = [frame[0], frame[4], frame[8], frame[13], frame[17], frame[21], stream[0], stream[4], stream[7], stream[13], stream[18], stream[22]];
+    const bad: string[] = [];
+    for (const [i, p] of some.entries()) {
+      const src = path.join(d, `p${i}`);
+      fs.mkdirSync(src);
+      for (const file of emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: p, policyFrom: 'test' }).files) fs.writeFileSync(path.join(src, file.name), file.text);
+      const isStream = p.kind === 'difference' || p.kind === 'agreeing';
+      const out = path.join(d, `o${i}`);
+      fs.writeFileSync(path.join(src, 'main.c'), driver(path.join(d, isStream ? 'str' : 'val'), out));
+      const m = await measureFirmware({ core: 'm4f', sources: [path.join(src, 'offramp_decide.c'), path.join(src, 'offramp_policy.c')], driverSources: [path.join(src, 'main.c')], includeDirs: [src], trace: false, cflags: ['-Werror', '-Wdouble-promotion'] });
+      expect(m.exitCode, `${label(p)}: ${m.stderr}`).toBe(0);
+      if (i === 0) {
+        const b = fs.readFileSync(`${out}-x.out`), r = new Float32Array(b.buffer, b.byteOffset, b.length / 4);
+        expect(r.length).toBe(3 * x32.length);
+        x32.forEach((x, j) => [exp32, log32, sqrt32].forEach((g, w) => {
+          const want = g(x), got = r[3 * j + w];
+          if (!(Object.is(got, want) || (Number.isNaN(got) && Number.isNaN(want)))) bad.push(`${['exp', 'log', 'sqrt'][w]}(${x}) = ${got} on the M4F, lib/policy ${want}`);
+        }));
+      }
+      for (const mode of ['f32', 'q8'] as const) {
+        const b = fs.readFileSync(`${out}-${mode}.out`), got = new Int32Array(b.buffer, b.byteOffset, b.length / 4);
+        const z = isStream ? (mode === 'f32' ? str.z : strQ.deq) : (mode === 'f32' ? val.z : valQ.deq);
+        const k = isStream ? ns : n, w = isStream ? 4 : 2;
+        const want = isStream ? expectStream(p as StreamPolicy, z, k) : expectFrame(p as FramePolicy, z, k);
+        expect(got.length).toBe(k * 2 * w);
+        for (let s = 0; s < k; s++) for (const half of [0, 1]) for (let j = 0; j < w; j++)
+          if (got[(2 * s + half) * w + j] !== want[s * w + j]) { bad.push(`${label(p)} ${mode} ${half ? 'staged' : 'whole'} frame ${s} on the M4F`); s = k; break; }
+      }
+    }
+    expect(bad.slice(0, 10)).toEqual([]);
+  }, 300_000);
 });
 
 describe('emit-c output', () => {
