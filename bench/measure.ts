@@ -1,8 +1,10 @@
 // `npm run bench` part: instructions per MAC of plain C int8 and float32 3×3 convolutions on the
 // emulated cores (exact counts from the counter plugin), and the emulator's speed with the counter on.
-// Prints JSON for bench/run.ts; prints {"skipped": "<why>"} without the toolchain.
+// Prints JSON for bench/run.ts; prints {"skipped": "<why>"} without the toolchain. scripts/measure-rates.ts
+// takes its float32 rate from `convBench` (the firmware has no float kernels: a plain C one stands in).
+import fs from 'node:fs';
 import path from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { fileURLToPath, pathToFileURL } from 'node:url';
 import { measureFirmware, toolchainStatus, type MeasuredCore } from '../lib/measure/index.js';
 
 const HERE = path.dirname(fileURLToPath(import.meta.url));
@@ -30,7 +32,10 @@ export interface ConvBench {
 const MACS = 14 * 14 * 16 * 9 * 8;
 const EXTRA = 200;
 
-async function bench(core: MeasuredCore, dir: string): Promise<ConvBench> {
+/** The two convolutions measured on `core`: exact instructions, per MAC, and the emulator's speed. */
+export async function convBench(core: MeasuredCore): Promise<ConvBench> {
+  const dir = SRC.find((d) => fs.existsSync(path.join(d, 'conv3x3.c')));
+  if (!dir) throw new Error('bench/measure/conv3x3.c is missing');
   const opts = { core, sources: [path.join(dir, 'conv3x3.c'), path.join(dir, 'conv3x3f.c')], driverSources: [path.join(dir, 'driver.c')], timings: true };
   const one = await measureFirmware(opts);
   const many = await measureFirmware({ ...opts, defines: [`BENCH_FRAMES=${1 + EXTRA}`] });
@@ -50,12 +55,12 @@ async function bench(core: MeasuredCore, dir: string): Promise<ConvBench> {
   };
 }
 
-const status = toolchainStatus();
-if (!status.ready) console.log(JSON.stringify({ skipped: status.message }));
-else {
-  const fs = await import('node:fs');
-  const dir = SRC.find((d) => fs.existsSync(path.join(d, 'conv3x3.c')))!;
-  const out: ConvBench[] = [];
-  for (const core of ['m4f', 'm7', 'm55'] as const) out.push(await bench(core, dir));
-  console.log(JSON.stringify(out));
+if (process.argv[1] && import.meta.url === pathToFileURL(process.argv[1]).href) {
+  const status = toolchainStatus();
+  if (!status.ready) console.log(JSON.stringify({ skipped: status.message }));
+  else {
+    const out: ConvBench[] = [];
+    for (const core of ['m4f', 'm7', 'm55'] as const) out.push(await convBench(core));
+    console.log(JSON.stringify(out));
+  }
 }

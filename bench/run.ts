@@ -8,7 +8,8 @@ import { fileURLToPath } from 'node:url';
 import type { ChainBench, ChainPair } from './chain.js';
 import type { ConvBench } from './measure.js';
 import type { FirmwareBench } from './firmware.js';
-import { BUILTIN_TARGETS, ratioText } from '../lib/chip/target.js';
+import { BUILTIN_TARGETS, FROM_MEMORY_RATES, ratioText } from '../lib/chip/target.js';
+import { readMeasuredRates } from '../lib/chip/rates.js';
 
 const CHILD = path.join(path.dirname(fileURLToPath(import.meta.url)), 'child.js');
 
@@ -85,10 +86,14 @@ function measureSection(): void {
   const got = JSON.parse(r.stdout) as ConvBench[] | { skipped: string };
   console.log('\nplain C 3×3 convolutions on the emulated cores (16×16×8 → 14×14×16, gcc -O2; exact instruction counts)');
   if (!Array.isArray(got)) { console.log(`  skipped: ${got.skipped}`); return; }
+  const rates = readMeasuredRates();
   for (const c of got) {
     const t = BUILTIN_TARGETS[c.core]!;
-    line(`${c.core} int8: instructions per MAC`, `${c.perMac.toFixed(3)}`, `${c.instructions} for ${c.macs} MACs; ${(1 / c.perMac).toFixed(3)} MAC/instruction, from-memory rate ${ratioText(t.int8MacsPerCycle)} MAC/cycle`);
-    line(`${c.core} float32: instructions per MAC`, `${c.floatPerMac.toFixed(3)}`, `${c.floatInstructions} for ${c.macs} MACs; ${(1 / c.floatPerMac).toFixed(3)} MAC/instruction, from-memory rate ${ratioText(t.macsPerCycle)} MAC/cycle`);
+    const old = FROM_MEMORY_RATES[c.core]!, r = rates.cores[c.core];
+    line(`${c.core} int8: instructions per MAC`, `${c.perMac.toFixed(3)}`, `${c.instructions} for ${c.macs} MACs; ${(1 / c.perMac).toFixed(3)} MAC/instruction`);
+    line(`${c.core} float32: instructions per MAC`, `${c.floatPerMac.toFixed(3)}`, `${c.floatInstructions} for ${c.macs} MACs; ${(1 / c.floatPerMac).toFixed(3)} MAC/instruction`);
+    line(`${c.core} profile rates (MAC/cycle)`, `${ratioText(t.int8MacsPerCycle)} / ${ratioText(t.macsPerCycle)}`,
+      `int8 / float32, measured (whole int8 networks ${r.int8.instructionsPerMac}/MAC, the float conv ${r.float32.instructionsPerMac}/MAC, at ${r.cyclesPerInstruction} cycles per instruction, estimated); from memory they were ${old.int8} / ${old.float}`);
   }
   const m4 = got.find((c) => c.core === 'm4f')!;
   line('one measurement, m4f: build', `${m4.buildMs.toFixed(0)} ms`, 'compile and link with the harness');

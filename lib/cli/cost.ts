@@ -16,11 +16,12 @@ import { modelReads, refuseInputsAsOutputs, splitReads } from './guard.js';
 import { chooseChain, readManifestFile } from '../split/read.js';
 import { targetFile, targetOptions } from './target-options.js';
 import { costChain, isChainArgument } from './cost-chain.js';
+import { costMeasured } from './cost-measured.js';
 
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
   target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string; int8MacsPerCycle?: string; int8?: boolean;
-  reorder?: boolean; saveReordered?: string; float?: boolean;
+  reorder?: boolean; saveReordered?: string; float?: boolean; measured?: string;
 }
 
 export function costCommand(program: Command): void {
@@ -37,7 +38,9 @@ export function costCommand(program: Command): void {
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
     .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
+    .option('--measured <file>', 'offramp measure --json output for the quantized folder given: latency, flash and RAM as measured, beside the planned figures (the target defaults to the measured core\'s profile)')
     .action(modelAction(async (file: string, o: CostFlags) => {
+      if (o.measured !== undefined) return costMeasured(file, { ...o, measured: o.measured });
       if (isChainArgument(file)) {
         const target = resolveTarget(o);
         const { manifest } = readManifestFile(chooseChain(file, { float: o.float }).file);

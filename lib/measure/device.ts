@@ -15,6 +15,7 @@ import { Int8Classifier, Int8Machine } from '../firmware/interp.js';
 import { handoverBytes } from '../firmware/program.js';
 import { loadChain } from '../run/chain.js';
 import { readManifestFile } from '../split/read.js';
+import { sha256 } from '../split/commit.js';
 import { tensorFromData } from '../runtime/ort.js';
 import { frames } from '../tune/chain-capture.js';
 import { readLabels } from '../data/labels.js';
@@ -52,6 +53,8 @@ export interface DeviceOptions {
 export interface DeviceReport {
   schema: typeof MEASURE_SCHEMA;
   dir: string;
+  /** SHA-256 of the folder's manifest as measured (hex): `cost DIR --measured` checks the folder against it */
+  manifestSha256: string;
   core: MeasuredCore;
   machine: string;
   /** what the figures are: instructions counted exactly; cycles and time estimated from them */
@@ -97,6 +100,7 @@ export async function measureDevice(o: DeviceOptions, onProgress?: (what: string
   if (!Number.isInteger(rows) || rows < 1 || rows > 100_000) throw bad('rows', `${o.rows} is not a whole number of rows in 1 … 100000`);
   const clockMhz = o.clockMhz ?? CLOCK[core];
   if (!(clockMhz > 0) || !Number.isFinite(clockMhz)) throw bad('clockMhz', `${o.clockMhz} is not a positive clock`);
+  const manifestSha256 = sha256(readManifestFile(o.dir).bytes);
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-device-'));
   try {
     const src = path.join(tmp, 'src');
@@ -153,7 +157,7 @@ export async function measureDevice(o: DeviceOptions, onProgress?: (what: string
     }).filter((p) => p.frames > 0);
     const accuracy = labels ? answers.filter((a, k) => a[0] === labels[k]).length / n : undefined;
     return {
-      schema: MEASURE_SCHEMA, dir: o.dir, core, machine: m.machine,
+      schema: MEASURE_SCHEMA, dir: o.dir, manifestSha256, core, machine: m.machine,
       basis: { instructions: 'counted exactly on the emulator', cyclesPerInstruction: cpi, cycles: 'estimate: instructions × cyclesPerInstruction, no wait states', clockMhz },
       flash: { libraryBytes: m.flash.library, totalBytes: m.flash.total },
       ram: { libraryBytes: m.ram.library, stackPeakBytes: m.ram.stackPeak, arenaBytes: program.arenaBytes, handoverBytes: handoverBytes(program) },

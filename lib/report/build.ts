@@ -158,11 +158,11 @@ export function buildHtml(r: BuildResult): string {
   const stageRows = s.stages.map((st, k) => {
     const sb = b?.stages[k];
     const fit = sb ? (sb.fits ? 'fits' : '<b>over</b>') : '-';
-    const lat = sb ? duration(sb.stored.latencyNs) : '-';
+    const lat = sb ? `${duration(sb.stored.latencyNs)} <small>(${esc(sb.stored.latencyBasis)})</small>` : '-';
     return `<tr><td>${esc(st.file)}</td><td>${si(st.macs)}</td><td>${bytes(st.weightBytes)}</td><td>${bytes(st.peakActivationBytes)}</td><td>${st.arenaBytes === null ? '-' : bytes(st.arenaBytes)}</td><td>${st.handoverBytes ? bytes(st.handoverBytes) : '-'}</td><td>${esc(st.exits.join(', ') || 'final')}</td><td>${pct(h.exitShare[k] ?? 0)}</td><td>${lat}</td><td>${fit}</td></tr>`;
   }).join('');
   const candRows = s.placement.candidates.map((c) => `<tr><td><code>${esc(c.cut)}</code></td><td>${pct(c.macFraction)}</td><td>${c.accuracy === null ? '-' : pct(c.accuracy)}</td><td>${pct(c.agreement)}</td><td>${s.exits.some((e) => e.cut === c.cut) ? 'yes' : ''}</td></tr>`).join('');
-  const target = b ? `${esc(b.target.name)}: flash ${bytes(b.target.flashBytes)}, RAM ${bytes(b.target.ramBytes)}, ${b.target.clockMhz} MHz, ${b.target.macsPerCycle} MAC/cycle${b.target.rough ? ' (rough figures, from memory)' : ''}` : 'none given';
+  const target = b ? `${esc(b.target.name)}: flash ${bytes(b.target.flashBytes)}, RAM ${bytes(b.target.ramBytes)}, ${b.target.clockMhz} MHz, ${b.target.macsPerCycle} MAC/cycle float32 (${esc(b.target.rateBasis.float)}), ${b.target.int8MacsPerCycle} int8 (${esc(b.target.rateBasis.int8)})${b.target.rough ? '; flash, RAM and clock of a typical part, from memory' : ''}` : 'none given';
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>offramp build: ${esc(r.dir)}</title>
 <style>body{font-family:sans-serif;max-width:980px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}td:first-child,th:first-child{text-align:left}code{font-size:90%}.verdict{font-size:120%;font-weight:bold}.over{color:#b00}</style>
