@@ -7,6 +7,7 @@ import path from 'node:path';
 import { offramp } from './helpers/cli.js';
 import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
+import { C_FILES } from '../lib/emit/c.js';
 
 const MODEL = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
 let dir: string, x: string, y: string;
@@ -46,6 +47,8 @@ describe('offramp build', () => {
     expect(m.stages).toHaveLength(j.exits.length + 1);
     for (const s of m.stages) expect(fs.existsSync(path.join(out, s.file))).toBe(true);
     for (const f of ['report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c']) expect(fs.existsSync(path.join(out, f))).toBe(true);
+    // the firmware folder is the whole C library: generated tables and the fixed decision code
+    expect(fs.readdirSync(path.join(out, 'firmware')).sort()).toEqual([...C_FILES].sort());
     // The exit shares add up to every held-out sample.
     expect(j.heldOut.exitShare.reduce((a: number, b: number) => a + b, 0)).toBeCloseTo(1, 9);
     expect(JSON.parse(fs.readFileSync(path.join(out, 'report.json'), 'utf8'))).toEqual(j);

@@ -1,12 +1,14 @@
-// emit-c: the generated C, compiled with gcc, decides exactly as lib/policy does.
-// A harness (C main below) reads an exit cache (samples × (exits+1) × classes,
-// float32 or int8 with per-exit scale and zero point), runs the emitted
-// offramp_policy both through the whole-sample functions and stage by stage
-// as a firmware would, and writes its decisions; every one must equal the
-// TypeScript's. Thresholds are scores and distances of the data itself, as the
-// tuner's are, so exact ties with the threshold are common; the data holds
-// exact and one-ulp logit ties, uniform vectors and exp underflow. The exp and
-// log inside the C are checked bit for bit against V8's Math.exp / Math.log.
+// emit-c: the C (the library in lib/emit/c and the generated tables), compiled with gcc,
+// decides exactly as lib/policy does. A harness (C main below) reads an exit cache
+// (samples × (exits+1) × classes, float32 or int8 with per-exit scale and zero point), runs the
+// emitted offramp_policy both through the whole-sample functions and stage by stage as a
+// firmware would, and writes its decisions; every one must equal the TypeScript's. Thresholds
+// are scores and distances of the data itself, as the tuner's are, so exact ties with the
+// threshold are common; the data holds exact and one-ulp logit ties, uniform vectors and exp
+// underflow. The C's float exp, log and sqrt are checked bit for bit against lib/policy's
+// (whose accuracy against Math.exp / Math.log policy.test.ts measures). The C holds no double
+// and needs no libm (linked without -lm); it compiles warning-free as C99 with the host gcc and
+// with arm-none-eabi-gcc for a Cortex-M4F.
 import { spawn, spawnSync } from 'node:child_process';
 import crypto from 'node:crypto';
 import fs from 'node:fs';
@@ -18,18 +20,27 @@ import {
   chainFor, confidence, distance, DISTANCES, entropy, fullModel, margin, runFrame, softmax, streamStart, streamStep, worstCase,
   type DistanceKind, type ExitView, type FramePolicy, type Policy, type StreamPolicy,
 } from '../lib/policy/index.js';
-import { emitC, hexDouble, cString } from '../lib/emit/c.js';
+import { exp32, log32, sqrt32 } from '../lib/policy/f32.js';
+import { emitC, hexDouble, hexFloat, cString, C_FILES } from '../lib/emit/c.js';
 import { chainTable } from '../lib/emit/table.js';
 import { planArena } from '../lib/cost/arena.js';
 import type { LiveValue } from '../lib/cost/memory.js';
 import type { Manifest, ManifestTensor } from '../lib/split/manifest.js';
 import { main } from '../lib/cli/main.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureFirmware } from '../lib/measure/measure.js';
 
 const GCC = spawnSync('gcc', ['--version']).status === 0;
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the emit-c tests need it under CI');
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-emitc-'));
 afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
-const CFLAGS = ['-std=c99', '-Wall', '-Wextra', '-Werror', '-pedantic', '-O2'];
+// -ffp-contract=off is -std=c99's default with gcc (ISO C: no fused multiply-add); said explicitly.
+// -Wdouble-promotion: a float silently widened to double (an unsuffixed constant, say) is an error.
+const CFLAGS = ['-std=c99', '-Wall', '-Wextra', '-Werror', '-pedantic', '-O2', '-ffp-contract=off', '-Wdouble-promotion'];
+const ARM_GCC = spawnSync('arm-none-eabi-gcc', ['--version']).status === 0;
+if (!ARM_GCC && process.env.CI) throw new Error('arm-none-eabi-gcc is missing: the Cortex-M4F compile needs it under CI');
+const EMU = toolchainStatus().ready;
+if (!EMU && process.env.CI) throw new Error(`the emulated Cortex-M4F decisions need the toolchain under CI: ${toolchainStatus().message}`);
 
 const E = 3, C = 10, E1 = E + 1;
 
@@ -138,7 +149,7 @@ function scoreThresholds(kind: 'confidence' | 'entropy' | 'margin', zs: Float32A
   }));
 }
 function distanceThresholds(kind: DistanceKind, zs: Float32Array[], n: number, k: number, qs: number[]): number[] {
-  const a = new Float64Array(C), b = new Float64Array(C), v: number[] = [];
+  const a = new Float32Array(C), b = new Float32Array(C), v: number[] = [];
   for (const z of zs) for (let i = 1; i < n; i++) {
     softmax(z, ((i - 1) * E1 + k) * C, C, a); softmax(z, (i * E1 + k) * C, C, b);
     v.push(distance(kind, b, a, C));
@@ -319,13 +330,14 @@ describe.skipIf(!GCC)('emit-c against lib/policy', () => {
     writeInputs(sdir, str, strQ);
     const all: Policy[] = [...frame, ...stream];
     const emitted = (p: Policy) => emitC({ manifest: manifest(), manifestName: 'manifest.json', manifestSha256: '0'.repeat(64), policy: p, policyFrom: 'test' }).files;
-    // the harness once per header shape (frame, stream); the source per policy
+    // the harness and the library once per header shape (frame, stream); the generated tables per policy
     for (const [name, p] of [['h-frame', frame[0]], ['h-stream', stream[0]]] as const) {
       const h = path.join(dir, name);
       fs.mkdirSync(h);
       for (const f of emitted(p)) fs.writeFileSync(path.join(h, f.name), f.text);
       fs.writeFileSync(path.join(h, 'harness.c'), HARNESS);
       await run('gcc', [...CFLAGS, '-c', 'harness.c', '-o', 'harness.o'], h);
+      await run('gcc', [...CFLAGS, '-c', 'offramp_decide.c', '-o', 'offramp_decide.o'], h);
     }
     const failures: string[] = [];
     await pool(all, async (p, i) => {
@@ -333,7 +345,9 @@ describe.skipIf(!GCC)('emit-c against lib/policy', () => {
       fs.mkdirSync(d);
       for (const f of emitted(p)) fs.writeFileSync(path.join(d, f.name), f.text);
       const isStream = p.kind === 'difference' || p.kind === 'agreeing';
-      await run('gcc', [...CFLAGS, 'offramp_policy.c', path.join(dir, isStream ? 'h-stream' : 'h-frame', 'harness.o'), '-o', 'h', '-lm'], d);
+      const h = path.join(dir, isStream ? 'h-stream' : 'h-frame');
+      // no -lm: the decision code needs no libm
+      await run('gcc', [...CFLAGS, 'offramp_policy.c', path.join(h, 'harness.o'), path.join(h, 'offramp_decide.o'), '-o', 'h'], d);
       const data = isStream ? sdir : vdir;
       for (const mode of ['f32', 'q8'] as const) {
         await run(path.join(d, 'h'), [mode, path.join(data, `${mode}.bin`), path.join(d, `${mode}.out`)], d);
@@ -354,39 +368,113 @@ describe.skipIf(!GCC)('emit-c against lib/policy', () => {
     expect(failures.slice(0, 10)).toEqual([]);
   }, 300_000);
 
-  it('offramp_exp and offramp_log equal V8\'s Math.exp and Math.log bit for bit', async () => {
+  it('offramp_exp, offramp_log and offramp_sqrt equal lib/policy\'s exp32, log32 and sqrt32 bit for bit', async () => {
     const d = path.join(tmp, 'explog');
     fs.mkdirSync(d);
     for (const f of emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: frame[0], policyFrom: 'test' }).files) fs.writeFileSync(path.join(d, f.name), f.text);
     fs.writeFileSync(path.join(d, 'explog.c'), `#include <stdio.h>
-#include "offramp_policy.h"
+#include "offramp_decide.h"
 int main(int argc, char **argv) {
   FILE *in = fopen(argv[1], "rb"), *out = fopen(argv[2], "wb");
-  double x, r[2];
+  float x, r[3];
   if (argc != 3 || !in || !out) return 2;
-  while (fread(&x, 8, 1, in) == 1) { r[0] = offramp_exp(x); r[1] = offramp_log(x); fwrite(r, 8, 2, out); }
+  while (fread(&x, 4, 1, in) == 1) { r[0] = offramp_exp(x); r[1] = offramp_log(x); r[2] = offramp_sqrt(x); fwrite(r, 4, 3, out); }
   return fclose(out) ? 3 : 0;
 }
 `);
+    // random bit patterns (every exponent, subnormals, NaNs and infinities among them), the softmax's range
+    // (−30 … 0), near 1 for log, integers and reciprocals, the edges of exp's range
     const rnd = mulberry32(5);
+    const u = new Uint32Array(1), f = new Float32Array(u.buffer);
     const xs: number[] = [];
-    for (let i = 0; i < 60000; i++) xs.push(-750 * rnd(), -30 * rnd(), 2 * rnd() - 1, 2 * rnd(), 2 ** (-1074 * rnd()), 1 + (rnd() - 0.5) * 1e-5, 1000 * rnd());
+    for (let i = 0; i < 60000; i++) {
+      u[0] = Math.floor(rnd() * 2 ** 32);
+      xs.push(f[0], -30 * rnd(), -110 * rnd(), 2 * rnd() - 1, 1 + (rnd() - 0.5) * 1e-3, 200 * rnd() - 100);
+    }
     for (let i = 1; i <= 2000; i++) xs.push(i, 1 / i, -i / 7);
-    xs.push(0, -0, 1, -1, Infinity, -Infinity, 709.7, 709.79, -745.1, -745.2, 5e-324, Number.MAX_VALUE);
-    fs.writeFileSync(path.join(d, 'x.bin'), new Float64Array(xs));
-    await run('gcc', [...CFLAGS, 'explog.c', 'offramp_policy.c', '-o', 'explog', '-lm'], d);
+    xs.push(0, -0, 1, -1, Infinity, -Infinity, NaN, 88.72283, 88.7229, -87.33654, -103.9720, -103.9721, 2 ** -149, 2 ** -126, 3.4028234663852886e38);
+    const x32 = Float32Array.from(xs);
+    fs.writeFileSync(path.join(d, 'x.bin'), x32);
+    await run('gcc', [...CFLAGS, 'explog.c', 'offramp_decide.c', '-o', 'explog'], d);
     await run(path.join(d, 'explog'), ['x.bin', 'r.bin'], d);
     const b = fs.readFileSync(path.join(d, 'r.bin'));
-    const r = new Float64Array(b.buffer, b.byteOffset, b.length / 8);
+    const r = new Float32Array(b.buffer, b.byteOffset, b.length / 4);
+    expect(r.length).toBe(3 * x32.length);
     const bad: string[] = [];
-    xs.forEach((x, i) => {
-      for (const [j, f] of [[0, Math.exp], [1, Math.log]] as const) {
-        const want = f(x), got = r[2 * i + j];
-        if (!(Object.is(got, want) || (Number.isNaN(got) && Number.isNaN(want)))) bad.push(`${j ? 'log' : 'exp'}(${x}) = ${got}, V8 ${want}`);
+    x32.forEach((x, i) => {
+      for (const [j, g] of [[0, exp32], [1, log32], [2, sqrt32]] as const) {
+        const want = g(x), got = r[3 * i + j];
+        if (!(Object.is(got, want) || (Number.isNaN(got) && Number.isNaN(want)))) bad.push(`${['exp', 'log', 'sqrt'][j]}(${x}) = ${got}, lib/policy ${want}`);
       }
     });
     expect(bad.slice(0, 5)).toEqual([]);
   }, 30_000);
+
+  // The same C on the emulated Cortex-M4F (QEMU mps2-an386): its FPU computes the float operations (vsqrt.f32
+  // for the square root), so this checks the target's arithmetic, subnormals included, against lib/policy.
+  it.runIf(EMU)('on the emulated Cortex-M4F: exp, log, sqrt and the decisions of every kind and distance equal lib/policy', async () => {
+    const d = path.join(tmp, 'm4f-run');
+    fs.mkdirSync(d);
+    const n = N, ns = NS;   // every frame: thresholds sit on scores of the data, so ties are spread through it
+    const head = (k: number) => Buffer.from(new Int32Array([k]).buffer);
+    const qpBytes = (q: Q8) => { const b = Buffer.alloc(E1 * 8); for (let k = 0; k < E1; k++) { b.writeFloatLE(q.scale[k], 8 * k); b.writeInt32LE(q.zp[k], 8 * k + 4); } return b; };
+    const inputs = (name: string, c: Cache, q: Q8, m: number) => {
+      fs.writeFileSync(path.join(d, `${name}-f32.bin`), Buffer.concat([head(m), Buffer.from(c.z.buffer, 0, m * E1 * C * 4)]));
+      fs.writeFileSync(path.join(d, `${name}-q8.bin`), Buffer.concat([head(m), qpBytes(q), Buffer.from(q.q.buffer, 0, m * E1 * C)]));
+    };
+    inputs('val', val, valQ, n);
+    inputs('str', str, strQ, ns);
+    const rnd = mulberry32(9);
+    const u = new Uint32Array(1), f = new Float32Array(u.buffer), xs: number[] = [];
+    for (let i = 0; i < 4000; i++) { u[0] = Math.floor(rnd() * 2 ** 32); xs.push(f[0], -30 * rnd(), -110 * rnd(), 2 * rnd()); }
+    xs.push(0, -0, 1, Infinity, -Infinity, NaN, 2 ** -149, 2 ** -130, -100, 88.72283);
+    const x32 = Float32Array.from(xs);
+    fs.writeFileSync(path.join(d, 'x.bin'), x32);
+    const harness = HARNESS.replace('int main(int argc, char **argv) {', 'static int run_harness(int argc, char **argv) {');
+    const driver = (data: string, out: string) => `${harness}
+int main(void) {
+  char a0[] = "h", f[] = "f", q[] = "q", fi[] = "${data}-f32.bin", qi[] = "${data}-q8.bin", fo[] = "${out}-f32.out", qo[] = "${out}-q8.out";
+  char *af[] = { a0, f, fi, fo }, *aq[] = { a0, q, qi, qo };
+  FILE *in = fopen("${path.join(d, 'x.bin')}", "rb"), *o = fopen("${out}-x.out", "wb");
+  float x, r[3];
+  if (!in || !o) return 5;
+  while (fread(&x, 4, 1, in) == 1) { r[0] = offramp_exp(x); r[1] = offramp_log(x); r[2] = offramp_sqrt(x); fwrite(r, 4, 3, o); }
+  if (fclose(o)) return 6;
+  return run_harness(4, af) || run_harness(4, aq);
+}
+`;
+    // one of each kind (frame: confidence, entropy, margin, patience, a budget, a budget with a score) and each distance
+    const some: Policy[] = [frame[0], frame[4], frame[8], frame[13], frame[17], frame[21], stream[0], stream[4], stream[7], stream[13], stream[18], stream[22]];
+    const bad: string[] = [];
+    for (const [i, p] of some.entries()) {
+      const src = path.join(d, `p${i}`);
+      fs.mkdirSync(src);
+      for (const file of emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: p, policyFrom: 'test' }).files) fs.writeFileSync(path.join(src, file.name), file.text);
+      const isStream = p.kind === 'difference' || p.kind === 'agreeing';
+      const out = path.join(d, `o${i}`);
+      fs.writeFileSync(path.join(src, 'main.c'), driver(path.join(d, isStream ? 'str' : 'val'), out));
+      const m = await measureFirmware({ core: 'm4f', sources: [path.join(src, 'offramp_decide.c'), path.join(src, 'offramp_policy.c')], driverSources: [path.join(src, 'main.c')], includeDirs: [src], trace: false, cflags: ['-Werror', '-Wdouble-promotion'] });
+      expect(m.exitCode, `${label(p)}: ${m.stderr}`).toBe(0);
+      if (i === 0) {
+        const b = fs.readFileSync(`${out}-x.out`), r = new Float32Array(b.buffer, b.byteOffset, b.length / 4);
+        expect(r.length).toBe(3 * x32.length);
+        x32.forEach((x, j) => [exp32, log32, sqrt32].forEach((g, w) => {
+          const want = g(x), got = r[3 * j + w];
+          if (!(Object.is(got, want) || (Number.isNaN(got) && Number.isNaN(want)))) bad.push(`${['exp', 'log', 'sqrt'][w]}(${x}) = ${got} on the M4F, lib/policy ${want}`);
+        }));
+      }
+      for (const mode of ['f32', 'q8'] as const) {
+        const b = fs.readFileSync(`${out}-${mode}.out`), got = new Int32Array(b.buffer, b.byteOffset, b.length / 4);
+        const z = isStream ? (mode === 'f32' ? str.z : strQ.deq) : (mode === 'f32' ? val.z : valQ.deq);
+        const k = isStream ? ns : n, w = isStream ? 4 : 2;
+        const want = isStream ? expectStream(p as StreamPolicy, z, k) : expectFrame(p as FramePolicy, z, k);
+        expect(got.length).toBe(k * 2 * w);
+        for (let s = 0; s < k; s++) for (const half of [0, 1]) for (let j = 0; j < w; j++)
+          if (got[(2 * s + half) * w + j] !== want[s * w + j]) { bad.push(`${label(p)} ${mode} ${half ? 'staged' : 'whole'} frame ${s} on the M4F`); s = k; break; }
+      }
+    }
+    expect(bad.slice(0, 10)).toEqual([]);
+  }, 300_000);
 });
 
 describe('emit-c output', () => {
@@ -397,16 +485,24 @@ describe('emit-c output', () => {
     expect(hexDouble(-0.5)).toBe('-0x1p-1');
     expect(hexDouble(5e-324)).toBe('0x0.0000000000001p-1022');
     expect(hexDouble(0)).toBe('0.0');
+    // float constants: float32 0.1 is 0x3dcccccd (IEEE 754 binary32), the least subnormal 2^-149
+    expect(hexFloat(0.1)).toBe('0x1.99999ap-4f');
+    expect(hexFloat(1)).toBe('0x1p0f');
+    expect(hexFloat(-0.75)).toBe('-0x1.8p-1f');
+    expect(hexFloat(2 ** -149)).toBe('0x0.000002p-126f');
+    expect(hexFloat(0)).toBe('0.0f');
     expect(cString('a"b\\c??=é')).toBe('"a\\042b\\134c\\077\\077=\\303\\251"');
   });
 
   it('the stage table, exits and reach follow the manifest; the banner names it and its sha256', () => {
     const out = emitC({ manifest: manifest(), manifestName: '../split/manifest.json', manifestSha256: 'ab'.repeat(32), policy: { kind: 'confidence', thresholds: [0.5, null, 0.25] }, policyFrom: 'the manifest' });
-    const [h, c] = out.files;
+    const [h, c, cfg] = out.files;
+    expect(out.files.map((f) => f.name)).toEqual([...C_FILES]);
     expect(h.name).toBe('offramp_policy.h');
+    expect(cfg.text).toContain(`manifest: ../split/manifest.json (sha256 ${'ab'.repeat(32)})`);
     expect(h.text).toContain(`manifest: ../split/manifest.json (sha256 ${'ab'.repeat(32)})`);
-    expect(h.text).toContain('#define OFFRAMP_EXITS 3');
-    expect(h.text).toContain('#define OFFRAMP_CLASSES 10');
+    expect(cfg.text).toContain('#define OFFRAMP_EXITS 3');
+    expect(cfg.text).toContain('#define OFFRAMP_CLASSES 10');
     expect(h.text).toContain('#define OFFRAMP_POLICY_STREAM 0');
     // A manifest without arena plans (written before them): arena 0, no buffers, no offsets.
     expect(c.text).toContain('{ "stage-1.onnx", UINT64_C(101000), 3u, 1u, 4u, 2u, 2048u, 8192u, 2058u, 8232u, 4096u, 16384u, 0u, 0u, 0u, 1, 1 },');
@@ -414,7 +510,10 @@ describe('emit-c output', () => {
     expect(h.text).toContain('#define OFFRAMP_BUFFERS 0');
     // reach: stages 0..k summed, 51 000 + 101 000 + …
     expect(c.text).toContain('offramp_reach[OFFRAMP_EXITS + 1] = { UINT64_C(51000), UINT64_C(152000), UINT64_C(303000), UINT64_C(504000) }');
-    expect(c.text).toContain('{ 1, 0, 1 },\n  { 0x1p-1 /* 0.5 */, 0.0, 0x1p-2 /* 0.25 */ }');
+    // one slot per exit and one for the final output; thresholds as the floats the C compares
+    expect(c.text).toContain('{ 1, 0, 1, 0 },\n  { 0x1p-1f /* 0.5 */, 0.0f, 0x1p-2f /* 0.25 */, 0.0f }');
+    const third = emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: { kind: 'margin', thresholds: [0.1, null, null] }, policyFrom: 't' }).files[1].text;
+    expect(third).toContain('{ 0x1.99999ap-4f /* 0.1 as float */, 0.0f, 0.0f, 0.0f }');
     expect(c.text).not.toMatch(/\d{4}-\d\d-\d\dT/);
   });
 
@@ -467,13 +566,69 @@ int main(void) {
   return bad != 0;
 }
 `);
-    await run('gcc', [...CFLAGS, 'arena.c', 'offramp_policy.c', '-o', 'arena', '-lm'], d);
+    await run('gcc', [...CFLAGS, 'arena.c', 'offramp_policy.c', 'offramp_decide.c', '-o', 'arena'], d);
     const r = spawnSync(path.join(d, 'arena'), { cwd: d, encoding: 'utf8' });
     expect(r.status).toBe(0);
     const [bad, pairs] = r.stdout.trim().split(' ').map(Number);
     expect(bad).toBe(0);
     expect(pairs).toBeGreaterThan(10);
   }, 30_000);
+
+  // Every C file emit-c writes, for a frame policy, a stream policy and int8 logits (exit scales in the table).
+  const cSets = () => {
+    const q = manifest();
+    for (const o of q.outputs) o.quant = { scale: 0.0625, zeroPoint: -3 };
+    return [
+      emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: { kind: 'entropy', thresholds: [0.3, null, 0.2] }, policyFrom: 't' }).files,
+      emitC({ manifest: manifest(), manifestName: 'm', manifestSha256: '0', policy: { kind: 'agreeing', thresholds: [0.05], distance: 'cosine', refresh: 8 }, policyFrom: 't' }).files,
+      emitC({ manifest: q, manifestName: 'm', manifestSha256: '0', policy: { kind: 'patience', thresholds: [], patience: 2 }, policyFrom: 't' }).files,
+    ];
+  };
+  /** C text without comments and string literals (a tensor may be named "double"): what the compiler reads. */
+  const code = (t: string) => t.replace(/\/\*[\s\S]*?\*\//g, ' ').replace(/\/\/[^\n]*/g, ' ').replace(/"(?:[^"\\\n]|\\.)*"/g, '""');
+
+  it('the C holds no double and no libm: no <math.h>, no double, no libm call', () => {
+    for (const files of cSets()) for (const f of files) {
+      const c = code(f.text);
+      expect(c, f.name).not.toMatch(/\bdouble\b/);
+      expect(c, f.name).not.toMatch(/#\s*include\s*<(?:math|tgmath|complex)\.h>/);
+      // no C99 <math.h> function (7.12) called by name: ours are offramp_exp, offramp_log, offramp_sqrt
+      expect(c, f.name).not.toMatch(/(?<![\w])(?:exp|expf|exp2f?|expm1f?|log|logf|log2f?|log1pf?|sqrt|sqrtf|pow|powf|fabsf?|floorf?|ceilf?|roundf?|lrintf?)\s*\(/);
+      // every floating constant says it is a float (an unsuffixed one is a double)
+      expect(c.match(/(?<![\w.])(?:\d+\.\d*|\.\d+|0x[0-9a-f]*\.?[0-9a-f]*p[-+]?\d+|\d+e[-+]?\d+)(?![\w.])/gi) ?? [], f.name).toEqual([]);
+    }
+  });
+
+  it.runIf(GCC)('compiles with the host gcc as C99, -Wall -Wextra -Werror, and links without libm', async () => {
+    for (const [i, files] of cSets().entries()) {
+      const d = path.join(tmp, `host-${i}`);
+      fs.mkdirSync(d);
+      for (const f of files) fs.writeFileSync(path.join(d, f.name), f.text);
+      fs.writeFileSync(path.join(d, 'main.c'), '#include "offramp_policy.h"\nint main(void) { return offramp_stages[0].exits != 1; }\n');
+      for (const src of ['main.c', 'offramp_policy.c', 'offramp_decide.c']) await run('gcc', [...CFLAGS, '-c', src], d);
+      await run('gcc', ['main.o', 'offramp_policy.o', 'offramp_decide.o', '-o', 'main'], d);
+      expect(spawnSync(path.join(d, 'main')).status).toBe(0);
+      // what the library needs from outside: nothing of libm (binutils' nm lists the undefined symbols)
+      const undef = spawnSync('nm', ['-u', 'offramp_decide.o'], { cwd: d, encoding: 'utf8' });
+      if (undef.status === 0) expect(undef.stdout).not.toMatch(/\b(?:exp|log|sqrt)f?\b/);
+      else if (process.env.CI) throw new Error('nm is missing');
+    }
+  }, 60_000);
+
+  // Arm's procedure call standard (AAPCS) names the run-time helpers of software floating point __aeabi_d*
+  // (double) and __aeabi_f* (float): with a single-precision FPU neither may be called.
+  it.runIf(ARM_GCC)('compiles with arm-none-eabi-gcc for a Cortex-M4F (hard float, fpv4-sp-d16) and calls no software float', async () => {
+    for (const [i, files] of cSets().entries()) {
+      const d = path.join(tmp, `m4f-${i}`);
+      fs.mkdirSync(d);
+      for (const f of files) fs.writeFileSync(path.join(d, f.name), f.text);
+      for (const src of ['offramp_policy.c', 'offramp_decide.c'])
+        await run('arm-none-eabi-gcc', ['-mcpu=cortex-m4', '-mthumb', '-mfloat-abi=hard', '-mfpu=fpv4-sp-d16', '-O2', '-Wall', '-Wextra', '-Werror', '-std=c99', '-pedantic', '-Wdouble-promotion', '-c', src], d);
+      const undef = spawnSync('arm-none-eabi-nm', ['-u', 'offramp_decide.o'], { cwd: d, encoding: 'utf8' });
+      expect(undef.status).toBe(0);
+      expect(undef.stdout).not.toMatch(/__aeabi_[df]|\b(?:exp|log|sqrt)f?\b/);
+    }
+  }, 60_000);
 
   it('manifests emit-c cannot serve are refused with the file named', () => {
     const m = manifest();
@@ -521,7 +676,7 @@ describe('offramp emit-c', () => {
     expect(first[1].toString()).toContain('policy (the manifest): {"kind":"entropy","thresholds":[0.2,0.3,null]}');
     expect((await runCli(['emit-c', mfile, '-o', out])).code).toBe(0);
     expect(['offramp_policy.h', 'offramp_policy.c'].map((f) => fs.readFileSync(path.join(out, f)))).toEqual(first);
-    expect(fs.readdirSync(out).sort()).toEqual(['offramp_policy.c', 'offramp_policy.h']);
+    expect(fs.readdirSync(out).sort()).toEqual([...C_FILES].sort());
   });
 
   it('--policy overrides (inline JSON or a file); without any policy it is a usage error', async () => {
@@ -567,6 +722,6 @@ describe('offramp emit-c', () => {
     expect(bad.code).toBe(1);
     expect(fs.existsSync(path.join(tmp, 'cli-out3'))).toBe(false);
     expect((await runCli(['emit-c', dir, '-o', out])).code).toBe(0);
-    expect(fs.readdirSync(out).sort()).toEqual(['offramp_policy.c', 'offramp_policy.h']);
+    expect(fs.readdirSync(out).sort()).toEqual([...C_FILES].sort());
   });
 });

@@ -138,7 +138,8 @@ describe('the packed package', () => {
     for (const f of ['offramp_policy.h', 'offramp_policy.c', 'offramp_kernels.h', 'offramp_run.c'])
       expect(fs.existsSync(path.join(app, 'firmware-src', f)), f).toBe(true);
     expect(fs.readFileSync(path.join(app, 'firmware-src', 'offramp_kernels.h'))).toEqual(fs.readFileSync(path.join(ROOT, 'lib/kernels/offramp_kernels.h')));
-    for (const f of ['offramp_policy.h', 'offramp_policy.c']) expect(fs.existsSync(path.join(app, 'decision-src', f)), f).toBe(true);
+    for (const f of ['offramp_policy.h', 'offramp_policy.c', 'offramp_config.h']) expect(fs.existsSync(path.join(app, 'decision-src', f)), f).toBe(true);
+    expect(fs.readFileSync(path.join(app, 'decision-src', 'offramp_decide.c'))).toEqual(fs.readFileSync(path.join(ROOT, 'lib/emit/c/offramp_decide.c')));
     const m8 = JSON.parse(fs.readFileSync(path.join(app, 'out/int8/manifest.json'), 'utf8'));
     expect(m8.quantization).toBeDefined();
     expect(m8.policy.rule.kind).toBeDefined();

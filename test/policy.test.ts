@@ -1,12 +1,14 @@
-// Exit-policy math against worked examples and closed forms.
+// Exit-policy math against worked examples and closed forms. The policy computes in float32 (as the
+// firmware does), so closed forms computed in float64 agree to float32's ~7 significant digits (6 asked).
 import { describe, expect, it } from 'vitest';
 import {
   argmax, budgetCap, checkPolicy, chain, confidence, cosine, decisionCost, entropy, entropyOfProbs, js, l1, l2, margin, runFrame,
   softmax, streamStart, streamStep, worstCase, type ExitView, type StreamPolicy,
 } from '../lib/policy/index.js';
+import { exp32, fromBits32, log32, nextUp32, sqrt32, toBits32 } from '../lib/policy/f32.js';
 import { OfframpError } from '../lib/errors.js';
 
-const sm = (z: number[]) => [...softmax(z, 0, z.length, new Float64Array(z.length))];
+const sm = (z: number[]) => [...softmax(z, 0, z.length, new Float32Array(z.length))];
 /** Logits whose softmax is p (ln p, any shift). */
 const logitsOf = (p: number[]) => p.map((x) => Math.log(x));
 /** One view over a list of per-exit logit vectors. */
@@ -20,20 +22,20 @@ describe('softmax and scores', () => {
     // closed form eᶻⁱ / Σ eᶻ
     const z = [0.5, -1, 2];
     const s = z.reduce((a, x) => a + Math.exp(x), 0);
-    sm(z).forEach((v, i) => expect(v).toBeCloseTo(Math.exp(z[i]) / s, 14));
+    sm(z).forEach((v, i) => expect(v).toBeCloseTo(Math.exp(z[i]) / s, 6));
     // max-subtracted: a shift of 1000 neither overflows nor changes the result
-    sm(z.map((x) => x + 1000)).forEach((v, i) => expect(v).toBeCloseTo(Math.exp(z[i]) / s, 12));
+    sm(z.map((x) => x + 1000)).forEach((v, i) => expect(v).toBeCloseTo(Math.exp(z[i]) / s, 6));
     expect(sm([1000, 0])[0]).toBe(1);
   });
 
   it('confidence and margin are the top-1 and top-1 − top-2 of the softmax', () => {
     const z = [0.3, 2.1, -0.4, 1.7];
     const p = sm(z).sort((a, b) => b - a);
-    expect(confidence(z, 0, 4)).toBeCloseTo(p[0], 14);
-    expect(margin(z, 0, 4)).toBeCloseTo(p[0] - p[1], 14);
+    expect(confidence(z, 0, 4)).toBeCloseTo(p[0], 6);
+    expect(margin(z, 0, 4)).toBeCloseTo(p[0] - p[1], 6);
     expect(margin([2, 2, 0], 0, 3)).toBe(0);
     expect(argmax([1, 3, 3, 0], 0, 4)).toBe(1); // ties: lowest index, as numpy.argmax
-    expect(confidence([9, 1, 2, 3], 1, 3)).toBeCloseTo(sm([1, 2, 3])[2], 14); // offsets
+    expect(confidence([9, 1, 2, 3], 1, 3)).toBeCloseTo(sm([1, 2, 3])[2], 6); // offsets
   });
 
   it('normalised entropy: uniform 1, binary entropy h(0.1), closed form', () => {
@@ -42,32 +44,87 @@ describe('softmax and scores', () => {
     expect(entropy(logitsOf([0.9, 0.1]), 0, 2)).toBeCloseTo(0.469, 4);
     // closed form −Σ p ln p / ln n
     const z = [1.5, -0.2, 0.7, 3, 0];
-    expect(entropy(z, 0, 5)).toBeCloseTo(entropyOfProbs(sm(z)) / Math.log(5), 13);
+    expect(entropy(z, 0, 5)).toBeCloseTo(entropyOfProbs(sm(z)) / Math.log(5), 6);
     expect(entropy([50, 0, 0], 0, 3)).toBeLessThan(1e-18);
     expect(entropy([1], 0, 1)).toBe(0);
+  });
+});
+
+describe('float32 arithmetic of the decisions (lib/policy/f32.ts)', () => {
+  /** Error of a float32 result in units in the last place of the float32 nearest the exact value. */
+  const ulps = (got: number, exact: number): number => {
+    const e = Math.abs(Math.fround(exact));
+    const ulp = e < 2 ** -126 ? 2 ** -149 : fromBits32(toBits32(e) + 1) - e;
+    return Math.abs(got - exact) / ulp;
+  };
+  // Math.exp and Math.log are float64 (V8: within 1 ulp of float64, 2^-29 of a float32 ulp): exact at float32 scale.
+  it('exp32 and log32 are within 1 ulp of float32 of Math.exp and Math.log, and mostly correctly rounded', () => {
+    let maxExp = 0, maxLog = 0, atExp = 0, atLog = 0, roundedExp = 0, roundedLog = 0, nExp = 0, nLog = 0;
+    // every 499th float32 bit pattern: all exponents, subnormals included
+    for (let u = 0; u < 2 ** 32; u += 499) {
+      const x = fromBits32(u);
+      if (!Number.isFinite(x)) continue;
+      if (x > -104 && x < 88.72) {
+        const g = exp32(x), e = ulps(g, Math.exp(x));
+        nExp++; roundedExp += +(g === Math.fround(Math.exp(x)));
+        if (e > maxExp) { maxExp = e; atExp = x; }
+      }
+      if (x > 0) {
+        const g = log32(x), e = ulps(g, Math.log(x));
+        nLog++; roundedLog += +(g === Math.fround(Math.log(x)));
+        if (e > maxLog) { maxLog = e; atLog = x; }
+      }
+    }
+    console.log(`exp32: max ${maxExp.toFixed(3)} ulp (at ${atExp}), ${(100 * roundedExp / nExp).toFixed(2)} % correctly rounded of ${nExp}; ` +
+      `log32: max ${maxLog.toFixed(3)} ulp (at ${atLog}), ${(100 * roundedLog / nLog).toFixed(2)} % of ${nLog}`);
+    expect(maxExp).toBeLessThan(1);
+    expect(maxLog).toBeLessThan(1);
+    expect(roundedExp / nExp).toBeGreaterThan(0.98);
+    expect(roundedLog / nLog).toBeGreaterThan(0.98);
+  });
+
+  it('special values as IEEE 754 and C99 Annex F give them', () => {
+    expect(exp32(0)).toBe(1);
+    expect(exp32(-0)).toBe(1);
+    expect(exp32(-Infinity)).toBe(0);
+    expect(exp32(Infinity)).toBe(Infinity);
+    expect(exp32(89)).toBe(Infinity);     // e^89 > FLT_MAX ≈ 3.4028e38 = e^88.72
+    expect(exp32(-104)).toBe(0);          // e^-104 < half the least subnormal 2^-149 ≈ e^-103.28
+    expect(exp32(-100)).toBe(Math.fround(Math.exp(-100)));   // a subnormal, rounded once
+    expect(Number.isNaN(exp32(NaN))).toBe(true);
+    expect(log32(1)).toBe(0);
+    expect(log32(0)).toBe(-Infinity);
+    expect(log32(Infinity)).toBe(Infinity);
+    expect(Number.isNaN(log32(-1))).toBe(true);
+    expect(log32(2 ** -149)).toBe(Math.fround(-149 * Math.LN2));
+    expect(log32(2)).toBe(Math.fround(Math.LN2));
+    expect(sqrt32(2)).toBe(Math.fround(Math.SQRT2));
+    expect(nextUp32(0)).toBe(2 ** -149);
+    expect(nextUp32(1)).toBe(1 + 2 ** -23);
+    expect(nextUp32(-1)).toBe(-1 + 2 ** -24);
   });
 });
 
 describe('distances on softmax vectors', () => {
   it('Jensen–Shannon in bits: 1 for disjoint supports, H(M) − (H(P)+H(Q))/2 otherwise', () => {
     // the divergence is bounded by 1 bit, reached by distributions with disjoint supports (Lin 1991, IEEE Trans. Inf. Theory 37(1))
-    expect(js([1, 0], [0, 1], 2)).toBeCloseTo(1, 14);
+    expect(js([1, 0], [0, 1], 2)).toBeCloseTo(1, 6);
     // P = (½, ½), Q = (1, 0): M = (¾, ¼); JS = h(¼) − (1 + 0)/2 = 0.811278 − 0.5 = 0.311278 bits (worked by hand)
     expect(js([0.5, 0.5], [1, 0], 2)).toBeCloseTo(0.311278, 6);
     const P = [0.2, 0.5, 0.3], Q = [0.6, 0.1, 0.3];
     const M = P.map((p, i) => (p + Q[i]) / 2);
     const bits = (p: number[]) => entropyOfProbs(p) / Math.LN2;
-    expect(js(P, Q, 3)).toBeCloseTo(bits(M) - (bits(P) + bits(Q)) / 2, 13);
-    expect(js(P, Q, 3)).toBeCloseTo(js(Q, P, 3), 15);
+    expect(js(P, Q, 3)).toBeCloseTo(bits(M) - (bits(P) + bits(Q)) / 2, 6);
+    expect(js(P, Q, 3)).toBeCloseTo(js(Q, P, 3), 6);
     expect(js(P, P, 3)).toBe(0);
   });
 
   it('L1, L2, cosine on orthogonal and equal vectors', () => {
     expect(l1([1, 0], [0, 1], 2)).toBe(2);
-    expect(l2([1, 0], [0, 1], 2)).toBeCloseTo(Math.SQRT2, 15);
+    expect(l2([1, 0], [0, 1], 2)).toBe(Math.fround(Math.SQRT2));   // the float32 nearest √2
     expect(cosine([1, 0], [0, 1], 2)).toBe(1);
-    expect(cosine([0.3, 0.7], [0.3, 0.7], 2)).toBeCloseTo(0, 15);
-    expect(l1([0.2, 0.8], [0.5, 0.5], 2)).toBeCloseTo(0.6, 15);
+    expect(cosine([0.3, 0.7], [0.3, 0.7], 2)).toBeCloseTo(0, 6);
+    expect(l1([0.2, 0.8], [0.5, 0.5], 2)).toBeCloseTo(0.6, 6);
   });
 });
 

@@ -259,7 +259,7 @@ int main(int argc, char **argv) {
 }
 `);
     fs.writeFileSync(path.join(dir, 'q.bin'), q);
-    execFileSync('gcc', ['-std=c99', '-O2', '-ffp-contract=off', '-o', 'decide', 'main.c', 'offramp_policy.c', '-lm'], { cwd: path.join(dir, 'firmware') });
+    execFileSync('gcc', ['-std=c99', '-O2', '-ffp-contract=off', '-o', 'decide', 'main.c', 'offramp_policy.c', 'offramp_decide.c'], { cwd: path.join(dir, 'firmware') });
     execFileSync(path.join(dir, 'firmware/decide'), [path.join(dir, 'q.bin'), path.join(dir, 'd.bin')]);
     const got = new Int32Array(fs.readFileSync(path.join(dir, 'd.bin')).buffer.slice(0));
     expect(Array.from(got)).toEqual(Array.from(want));

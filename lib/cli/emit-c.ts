@@ -22,7 +22,7 @@ function readPolicy(v: string): { value: unknown; from: string; file?: string } 
 
 export function emitCCommand(program: Command): void {
   program.command('emit-c')
-    .description('on a quantized folder: the whole int8 network with its exits and policy as a C99 library; on a float folder: the decision code (offramp_policy.h, offramp_policy.c)')
+    .description('on a quantized folder: the whole int8 network with its exits and policy as a C99 library; on a float folder: the decision code (offramp_policy.{h,c}, offramp_config.h, offramp_decide.{h,c}, offramp_chain.h)')
     .argument('<dir>', 'quantized or split folder (or its manifest.json)')
     .requiredOption('-o, --out <dir>', 'folder for the C files')
     .option('--policy <json|file>', "policy JSON (inline or a file); required while the manifest holds none")

@@ -1,5 +1,6 @@
-// emit-c on disk: read the manifest once (its bytes are what the banner's
-// sha256 names), take its policy unless one is given, write both files.
+// emit-c on disk: read the manifest once (its bytes are what the banners'
+// sha256 names), take its policy unless one is given, write every C file
+// (the generated ones and the library's fixed ones) all or none.
 import crypto from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
@@ -30,7 +31,7 @@ export function writeC(where: string, outDir: string, o: WriteCOptions = {}): Em
     manifest, manifestName, manifestSha256: crypto.createHash('sha256').update(bytes).digest('hex'),
     policy: chosen.value as Policy, policyFrom: chosen.from, policyFile: chosen === o.policy ? o.policy.file ?? '--policy' : file,
   }, file);
-  // Both files or neither; OUTDIR is made only when they are written.
+  // Every file or none (each to a temporary beside it, then all renamed); OUTDIR is made only when they are written.
   const written = out.files.map((f) => path.join(outDir, f.name));
   writeAllAtomic(out.files.map((f, k) => ({ file: written[k], data: f.text })));
   return { ...out, written, policyFrom: chosen.from };

@@ -1,6 +1,11 @@
 // Distances between two softmax vectors of n classes, for the stream policies:
 // how far a frame's exit output has moved from the scene's reference.
 // Jensen–Shannon is the divergence (not its square root) in bits, so it lies in [0, 1].
+// float32 throughout, as scores.ts (and the C that mirrors both) computes.
+import * as F from './f32.js';
+
+// local bindings, read once (see scores.ts)
+const f32 = Math.fround, log32 = F.log32, sqrt32 = F.sqrt32;
 
 export type DistanceKind = 'l1' | 'l2' | 'cosine' | 'js';
 export const DISTANCES: readonly DistanceKind[] = ['l1', 'l2', 'cosine', 'js'];
@@ -8,23 +13,29 @@ export const DISTANCES: readonly DistanceKind[] = ['l1', 'l2', 'cosine', 'js'];
 /** Σ |pᵢ − qᵢ|, in [0, 2]. */
 export function l1(p: ArrayLike<number>, q: ArrayLike<number>, n: number): number {
   let s = 0;
-  for (let i = 0; i < n; i++) s += Math.abs(p[i] - q[i]);
+  for (let i = 0; i < n; i++) s = f32(s + Math.abs(f32(f32(p[i]) - f32(q[i]))));
   return s;
 }
 
 /** √Σ (pᵢ − qᵢ)², in [0, √2]. */
 export function l2(p: ArrayLike<number>, q: ArrayLike<number>, n: number): number {
   let s = 0;
-  for (let i = 0; i < n; i++) { const d = p[i] - q[i]; s += d * d; }
-  return Math.sqrt(s);
+  for (let i = 0; i < n; i++) { const d = f32(f32(p[i]) - f32(q[i])); s = f32(s + f32(d * d)); }
+  return sqrt32(s);
 }
 
-/** 1 − p·q / (‖p‖ ‖q‖), in [0, 1] for non-negative vectors. */
+/** 1 − p·q / √(‖p‖² ‖q‖²), in [0, 1] for non-negative vectors. */
 export function cosine(p: ArrayLike<number>, q: ArrayLike<number>, n: number): number {
   let pq = 0, pp = 0, qq = 0;
-  for (let i = 0; i < n; i++) { pq += p[i] * q[i]; pp += p[i] * p[i]; qq += q[i] * q[i]; }
-  return 1 - pq / Math.sqrt(pp * qq);
+  for (let i = 0; i < n; i++) {
+    const a = f32(p[i]), b = f32(q[i]);
+    pq = f32(pq + f32(a * b)); pp = f32(pp + f32(a * a)); qq = f32(qq + f32(b * b));
+  }
+  return f32(1 - f32(pq / sqrt32(f32(pp * qq))));
 }
+
+/** 1 / (2 ln 2) in float32: half the sum of two KL terms, from nats to bits. */
+export const JS_SCALE = f32(0.5 / Math.LN2);
 
 /**
  * Jensen–Shannon divergence in bits: ½ KL(p‖m) + ½ KL(q‖m), m = (p + q) / 2; 0·log 0 = 0.
@@ -33,11 +44,12 @@ export function cosine(p: ArrayLike<number>, q: ArrayLike<number>, n: number): n
 export function js(p: ArrayLike<number>, q: ArrayLike<number>, n: number): number {
   let s = 0;
   for (let i = 0; i < n; i++) {
-    const m = 0.5 * (p[i] + q[i]);
-    if (p[i] > 0) s += p[i] * Math.log(p[i] / m);
-    if (q[i] > 0) s += q[i] * Math.log(q[i] / m);
+    const a = f32(p[i]), b = f32(q[i]);
+    const m = f32(0.5 * f32(a + b));
+    if (a > 0) s = f32(s + f32(a * log32(f32(a / m))));
+    if (b > 0) s = f32(s + f32(b * log32(f32(b / m))));
   }
-  return s * (0.5 / Math.LN2);
+  return f32(s * JS_SCALE);
 }
 
 export function distance(kind: DistanceKind, p: ArrayLike<number>, q: ArrayLike<number>, n: number): number {

@@ -6,6 +6,7 @@ import { OfframpError } from '../errors.js';
 import { argmax, confidence, entropy, margin } from './scores.js';
 import { DISTANCES, type DistanceKind } from './distance.js';
 import { patienceOps, scoreDecisionOps, units } from './overhead.js';
+import { f32 } from './f32.js';
 
 export type ScoreKind = 'confidence' | 'entropy' | 'margin';
 export const SCORES: readonly ScoreKind[] = ['confidence', 'entropy', 'margin'];
@@ -74,7 +75,12 @@ export interface Chain { exits: number; classes: number; cap: number }
 export const chain = (exits: number, classes: number, cap = exits): Chain => ({ exits, classes, cap });
 
 /** Exit outputs on demand: logits of exit k (k = exits: the final output), `classes` values from `offset(k)`. */
-export interface ExitView { data(k: number): ArrayLike<number>; offset(k: number): number }
+export interface ExitView {
+  data(k: number): ArrayLike<number>;
+  offset(k: number): number;
+  /** Optional: exit k's softmax as `softmax` computes it, `classes` values from `offset(k)` as the logits are, for a caller that keeps them (the stream tuner). */
+  probs?(k: number): ArrayLike<number>;
+}
 
 /** Patience's memory across the exits of one sample. */
 export interface FrameState { last: number; run: number }
@@ -84,7 +90,8 @@ export const frameStart = (): FrameState => ({ last: -1, run: 0 });
 export function orientedScore(kind: ScoreKind, z: ArrayLike<number>, off: number, n: number): number {
   return kind === 'confidence' ? confidence(z, off, n) : kind === 'margin' ? margin(z, off, n) : -entropy(z, off, n);
 }
-export const orientedThreshold = (kind: ScoreKind, t: number | null): number => (t === null ? Infinity : kind === 'entropy' ? -t : t);
+/** Thresholds are compared as float32, as the C holds them (a tuned threshold is a float32 score already). */
+export const orientedThreshold = (kind: ScoreKind, t: number | null): number => (t === null ? Infinity : kind === 'entropy' ? -f32(t) : f32(t));
 
 const scoreOf = (p: FramePolicy): ScoreKind | undefined => (p.kind === 'patience' ? undefined : p.kind === 'budget' ? p.score : p.kind);
 

@@ -5,6 +5,7 @@
 // composes them for callers that have every exit output at hand.
 import { argmax, softmax } from './scores.js';
 import { distance } from './distance.js';
+import { f32 } from './f32.js';
 import { argmaxOps, compareOps, softmaxOps, units } from './overhead.js';
 import { fullModel, runFrame, type Chain, type ExitView, type FramePolicy, type StreamPolicy } from './policy.js';
 
@@ -16,13 +17,13 @@ export interface StreamState {
   /** the scene's result, reused while frames stay close */
   label: number;
   /** softmax at `exit` of the frame that opened the scene */
-  ref: Float64Array;
+  ref: Float32Array;
   /** softmax of the frame under test (scratch, swapped into ref on open) */
-  probs: Float64Array;
+  probs: Float32Array;
   /** frames since the last one that reached the final output (the refresh counts them) */
   age: number;
 }
-export const streamStart = (classes: number): StreamState => ({ scene: -1, exit: -1, label: -1, ref: new Float64Array(classes), probs: new Float64Array(classes), age: 0 });
+export const streamStart = (classes: number): StreamState => ({ scene: -1, exit: -1, label: -1, ref: new Float32Array(classes), probs: new Float32Array(classes), age: 0 });
 
 /** A refresh is due: R − 1 frames in a row stopped short of the final output, so this one runs on to it, untested. */
 export const refreshDue = (p: StreamPolicy, s: StreamState): boolean => p.refresh !== undefined && s.scene >= 0 && s.age >= p.refresh - 1;
@@ -37,13 +38,24 @@ export function compareExit(p: StreamPolicy, s: StreamState): number {
 
 export interface StreamTest { reuse: boolean; distance: number; overhead: number }
 
-/** Compare the frame's output at the scene's exit with the reference. Needs a scene; a reuse ages it. */
-export function streamTest(p: StreamPolicy, s: StreamState, z: ArrayLike<number>, off: number, c: Chain): StreamTest {
+/** Exit k's softmax into `out`: the view's own when it keeps them, else computed. */
+function softmaxAt(v: ExitView, k: number, n: number, out: Float32Array): void {
+  if (!v.probs) { softmax(v.data(k), v.offset(k), n, out); return; }
+  const q = v.probs(k), off = v.offset(k);
+  for (let i = 0; i < n; i++) out[i] = q[off + i];
+}
+
+/**
+ * Compare the frame's output at the scene's exit with the reference. Needs a scene; a reuse ages it.
+ * `pre`: that output's softmax (from `off`, as z) when the caller has it (as `softmax` computes it), else computed from z.
+ */
+export function streamTest(p: StreamPolicy, s: StreamState, z: ArrayLike<number>, off: number, c: Chain, pre?: ArrayLike<number>): StreamTest {
   const n = c.classes;
-  softmax(z, off, n, s.probs);
+  if (pre) for (let i = 0; i < n; i++) s.probs[i] = pre[off + i];
+  else softmax(z, off, n, s.probs);
   const d = distance(p.distance, s.probs, s.ref, n);
   // agreeing: a change of label opens a scene even within the distance threshold
-  const reuse = d < p.thresholds[0] && (p.kind !== 'agreeing' || argmax(s.probs, 0, n) === s.label);
+  const reuse = d < f32(p.thresholds[0]) && (p.kind !== 'agreeing' || argmax(s.probs, 0, n) === s.label);
   if (reuse) s.age = aged(s, s.exit, c);
   return { reuse, distance: d, overhead: units(compareOps(p.distance, n, p.kind === 'agreeing')) };
 }
@@ -64,7 +76,7 @@ export function streamOpen(p: StreamPolicy, s: StreamState, v: ExitView, stop: n
     overhead += (k + 1) * (units(argmaxOps(n)) + 1);
   }
   if (tested && k === s.exit) { const t = s.ref; s.ref = s.probs; s.probs = t; }
-  else { softmax(v.data(k), v.offset(k), n, s.ref); overhead += units(softmaxOps(n)); }
+  else { softmaxAt(v, k, n, s.ref); overhead += units(softmaxOps(n)); }
   s.scene += 1;
   s.exit = k;
   s.label = label;
@@ -83,7 +95,7 @@ export function streamStep(p: StreamPolicy, s: StreamState, v: ExitView, c: Chai
   let tested = false;
   const forced = refreshDue(p, s);
   if (s.scene >= 0 && !forced) {
-    const t = streamTest(p, s, v.data(k), v.offset(k), c);
+    const t = streamTest(p, s, v.data(k), v.offset(k), c, v.probs?.(k));
     overhead += t.overhead;
     dist = t.distance;
     if (t.reuse) return { exit: k, label: s.label, reused: true, scene: s.scene, overhead, distance: dist };

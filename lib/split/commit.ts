@@ -27,7 +27,7 @@ export const INT8_DIR = 'int8';
  * Files that describe one manifest (each names its SHA-256): a split removes them, a build writes
  * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old.
  */
-export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'firmware/offramp_net.h', 'firmware/offramp_net.c', `${INT8_DIR}/manifest.json`];
+export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'firmware/offramp_config.h', 'firmware/offramp_net.h', 'firmware/offramp_net.c', `${INT8_DIR}/manifest.json`];
 
 /**
  * Split folders a build nests in its own (`build --int8` writes the quantized split into DIR/int8).

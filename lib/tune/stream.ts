@@ -11,8 +11,9 @@
 import { OfframpError } from '../errors.js';
 import { fixedSequence } from '../certify/sequence.js';
 import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scenes.js';
-import { chainFor, DISTANCES, distance, fullModel, isStream, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
+import { chainFor, DISTANCES, distance, fullModel, isStream, nextUp32, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
+import type { ExitView } from '../policy/index.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
 import type { Guarantee } from './guarantee.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
@@ -48,6 +49,25 @@ export interface StreamTuneResult extends TuneResult<StreamPolicy> {
 
 type Run = StreamEval & { correct: number; cost: number };
 
+/**
+ * Each frame's softmax at each exit, computed once per cache (float32 exp is costly in JavaScript,
+ * and every candidate policy asks for the same ones): filled on first use, keyed by the cache,
+ * which tuning never changes.
+ */
+const softmaxMemo = new WeakMap<ExitCache, { probs: Float32Array; done: Uint8Array }>();
+/** The memo (laid out as the logits), with frame i's softmax at exit k filled in. */
+function probsAt(c: ExitCache, i: number, k: number): Float32Array {
+  let m = softmaxMemo.get(c);
+  if (!m) { m = { probs: new Float32Array(c.logits.length), done: new Uint8Array(c.samples * (c.exits + 1)) }; softmaxMemo.set(c, m); }
+  const at = i * (c.exits + 1) + k;
+  if (!m.done[at]) { softmax(c.logits, at * c.classes, c.classes, m.probs.subarray(at * c.classes, (at + 1) * c.classes)); m.done[at] = 1; }
+  return m.probs;
+}
+function cachedView(c: ExitCache, i: number): ExitView {
+  const base = i * (c.exits + 1) * c.classes;
+  return { data: () => c.logits, offset: (k) => base + k * c.classes, probs: (k) => probsAt(c, i, k) };
+}
+
 /** Run a stream policy over frames idx (in order) of the cache; `out` receives each frame's answer. */
 export function evalStream(c: ExitCache, idx: Int32Array, p: StreamPolicy | FramePolicy, reach: Float64Array, out?: Int32Array): Run {
   const E = c.exits, C = c.classes;
@@ -66,7 +86,7 @@ export function evalStream(c: ExitCache, idx: Int32Array, p: StreamPolicy | Fram
     const ch = chainFor(p.then ?? fullModel(E), reach, E, C);
     const s = streamStart(C);
     for (let j = 0; j < idx.length; j++) {
-      const i = idx[j], r = streamStep(p, s, viewOf(c, i), ch);
+      const i = idx[j], r = streamStep(p, s, cachedView(c, i), ch);
       hist[r.exit]++; cost += reach[r.exit] + r.overhead; correct += r.label === c.labels[i] ? 1 : 0;
       if (r.reused) reused++;
       if (out) out[j] = r.label;
@@ -94,18 +114,18 @@ export function sceneShares(c: ExitCache, idx: Int32Array, lab: Int32Array, ids:
 /** Distance-threshold candidates: quantiles of the distances between consecutive frames' softmax at the exits given. */
 function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[], grid: number): number[] {
   const C = c.classes, E1 = c.exits + 1;
-  const a = new Float64Array(C), b = new Float64Array(C);
   const ds: number[] = [];
   for (const k of exits) for (let j = 1; j < idx.length; j++) {
-    softmax(c.logits, (idx[j - 1] * E1 + k) * C, C, a);
-    softmax(c.logits, (idx[j] * E1 + k) * C, C, b);
-    const d = distance(kind, a, b, C);
+    const a = (idx[j - 1] * E1 + k) * C, b = (idx[j] * E1 + k) * C;
+    probsAt(c, idx[j - 1], k);
+    const m = probsAt(c, idx[j], k);
+    const d = distance(kind, m.subarray(a, a + C), m.subarray(b, b + C), C);
     if (Number.isFinite(d)) ds.push(d);
   }
   ds.sort((x, y) => x - y);
   const out = new Set<number>();
-  // just above a quantile, so "d < τ" reuses the frames at that quantile too
-  for (let g = 1; g <= grid && ds.length; g++) { const v = ds[Math.round((g / grid) * (ds.length - 1))]; out.add(v > 0 ? v * (1 + 1e-9) : Number.MIN_VALUE); }
+  // the next float32 above a quantile, so "d < τ" (in float32, as the firmware compares) reuses the frames at that quantile too
+  for (let g = 1; g <= grid && ds.length; g++) out.add(nextUp32(ds[Math.round((g / grid) * (ds.length - 1))]));
   return [...out].sort((x, y) => x - y);
 }
 

@@ -22,7 +22,7 @@ const DRIVER = path.resolve(import.meta.dirname, 'c/firmware_main.c');
 /** Compile every .c of an emit-c folder with the driver; returns the executable. */
 export function compileFirmware(src: string, exe: string): void {
   const files = fs.readdirSync(src).filter((f) => f.endsWith('.c')).map((f) => path.join(src, f));
-  const r = spawnSync('gcc', [...CFLAGS, '-I', src, ...files, DRIVER, '-o', exe, '-lm'], { encoding: 'utf8' });
+  const r = spawnSync('gcc', [...CFLAGS, '-I', src, ...files, DRIVER, '-o', exe], { encoding: 'utf8' });
   if (r.status !== 0) throw new Error(`gcc: ${r.stderr}`);
 }
 
