@@ -28,18 +28,22 @@ static inline uint32_t offramp_load32(const void *p) { uint32_t v; memcpy(&v, p,
 static inline void offramp_dot_2x2(const int8_t *a, const int8_t *b, const int16_t *p, const int16_t *q, int32_t n, int32_t acc[4]) {
   int32_t ap = 0, bp = 0, aq = 0, bq = 0;
   const int8_t *end = a + n;
-  const int32_t wb = (int32_t)(b - a), cq = (int32_t)(q - p);
+  const int32_t wb = (int32_t)(b - a);
+  /* each column word is loaded once and used twice, right away: fourteen values live at most, so the
+   * loop runs in registers (four accumulators, four weight pairs, one column word, four pointers) */
   while (a < end) {
     const uint32_t wa0 = offramp_load32(a), wb0 = offramp_load32(a + wb);
-    const int32_t p02 = (int32_t)offramp_load32(p), p13 = (int32_t)offramp_load32(p + 2);
-    const int32_t q02 = (int32_t)offramp_load32(p + cq), q13 = (int32_t)offramp_load32(p + cq + 2);
-    int32_t w01 = __sxtb16((int32_t)wa0), w23 = __sxtb16((int32_t)(wa0 >> 8));
-    ap = __smlad(w01, p02, ap); ap = __smlad(w23, p13, ap);
-    aq = __smlad(w01, q02, aq); aq = __smlad(w23, q13, aq);
-    w01 = __sxtb16((int32_t)wb0); w23 = __sxtb16((int32_t)(wb0 >> 8));
-    bp = __smlad(w01, p02, bp); bp = __smlad(w23, p13, bp);
-    bq = __smlad(w01, q02, bq); bq = __smlad(w23, q13, bq);
-    a += 4; p += 4;
+    const int32_t a01 = __sxtb16((int32_t)wa0), a23 = __sxtb16((int32_t)(wa0 >> 8));
+    const int32_t b01 = __sxtb16((int32_t)wb0), b23 = __sxtb16((int32_t)(wb0 >> 8));
+    int32_t c = (int32_t)offramp_load32(p);
+    ap = __smlad(a01, c, ap); bp = __smlad(b01, c, bp);
+    c = (int32_t)offramp_load32(p + 2);
+    ap = __smlad(a23, c, ap); bp = __smlad(b23, c, bp);
+    c = (int32_t)offramp_load32(q);
+    aq = __smlad(a01, c, aq); bq = __smlad(b01, c, bq);
+    c = (int32_t)offramp_load32(q + 2);
+    aq = __smlad(a23, c, aq); bq = __smlad(b23, c, bq);
+    a += 4; p += 4; q += 4;
   }
   acc[0] = ap; acc[1] = bp; acc[2] = aq; acc[3] = bq;
 }
