@@ -10,7 +10,7 @@
 // a cliff. Every setting carries a refresh period R, tuned with the rest.
 import { OfframpError } from '../errors.js';
 import { fixedSequence } from '../certify/sequence.js';
-import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scenes.js';
+import { SCENE_FORMS, sceneDropBound, scenesNeeded, type SceneForm, type SceneShares } from '../certify/scenes.js';
 import { chainFor, DISTANCES, distance, fullModel, isStream, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
@@ -79,7 +79,8 @@ export function evalStream(c: ExitCache, idx: Int32Array, p: StreamPolicy | Fram
 /** Per-scene lost and gained shares of answers `lab` (one per frame of idx) against the full model. */
 export function sceneShares(c: ExitCache, idx: Int32Array, lab: Int32Array, ids: Int32Array, full: Int32Array): SceneShares {
   let n = 0, lost = 0, gained = 0, len = 0, l = 0, g = 0, cur = -1;
-  const flush = () => { if (len) { n++; lost += l / len; gained += g / len; } len = 0; l = 0; g = 0; };
+  const lostEach: number[] = [], gainedEach: number[] = [];
+  const flush = () => { if (len) { n++; lost += l / len; gained += g / len; lostEach.push(l / len); gainedEach.push(g / len); } len = 0; l = 0; g = 0; };
   for (let j = 0; j < idx.length; j++) {
     const i = idx[j];
     if (ids[i] !== cur) { flush(); cur = ids[i]; }
@@ -88,7 +89,7 @@ export function sceneShares(c: ExitCache, idx: Int32Array, lab: Int32Array, ids:
     if (fr && !pr) l++; else if (!fr && pr) g++;
   }
   flush();
-  return { n, lost: n ? lost / n : 0, gained: n ? gained / n : 0, labelled: c.labelled };
+  return { n, lost: n ? lost / n : 0, gained: n ? gained / n : 0, labelled: c.labelled, lostEach: Float64Array.from(lostEach), gainedEach: Float64Array.from(gainedEach) };
 }
 
 /** Distance-threshold candidates: quantiles of the distances between consecutive frames' softmax at the exits given. */
@@ -136,14 +137,15 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const thens: (FramePolicy | undefined)[] = [undefined, ...(o.then ?? [])];
 
   // search: every (kind, distance, exit, then, refresh, threshold) on the head
-  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; lostOnly: boolean; e: StreamEval; bolder?: Rec }
+  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; form: SceneForm; e: StreamEval; bolder?: Rec }
   const recs: Rec[] = [];
   const searched = (policy: StreamPolicy, kind: string): Rec => {
     const e = evalStream(c, parts.tune, policy, reach, tuneLab);
     const s = sceneShares(c, parts.tune, tuneLab, sc.ids, full);
-    // with labels, the form of the bound (paired, or the lost share alone) is fixed here, on the search part
-    const paired = sceneDropBound(s, delta).bound, lost = sceneDropBound(s, delta, true).bound;
-    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: Math.min(paired, lost), lostOnly: s.labelled && lost < paired, e: strip(e) };
+    // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
+    let form = SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb = Infinity;
+    for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < hb) { hb = b; form = f; } }
+    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb, form, e: strip(e) };
   };
   // the neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller)
   const bolder = (r: Rec): Rec => (r.bolder ??= searched({ ...r.policy, thresholds: [r.policy.thresholds[0] * BOLDER] }, r.kind));
@@ -178,7 +180,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     return h;
   };
   // intersection–union: the setting and its neighbour are each tested at level δ
-  const bounds = (r: Rec) => [r, bolder(r)].map((x) => sceneDropBound(certify(x).shares, delta, x.lostOnly));
+  const bounds = (r: Rec) => [r, bolder(r)].map((x) => sceneDropBound(certify(x).shares, delta, x.form));
   const seq = fixedSequence(ordered, (r) => bounds(r).every((b) => b.bound <= limit));
   // every passed setting is certified together (family-wise); the cheapest of them is kept
   const cheapest = (rs: Rec[]) => rs.reduce<Rec | undefined>((m, r) => (!m || r.cost < m.cost ? r : m), undefined);
@@ -197,12 +199,18 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   // advice, not a promise: scenes the same per-scene rates would need, for the first setting that failed or, when
   // nothing passed, the front setting closest to passing
   const need = (r: Rec) => {
-    const ns = [r, bolder(r)].map((x) => scenesNeeded(certify(x).shares, limit, delta, 1e7, x.lostOnly));
+    const ns = [r, bolder(r)].map((x) => scenesNeeded(certify(x).shares, limit, delta, x.form));
     return ns.some((n) => n === undefined) ? undefined : Math.max(...(ns as number[]));
   };
-  let needed = seq.failed && need(seq.failed);
   let nextRec = seq.failed;
-  if (!last) for (const r of fr) { const n = need(r); if (n !== undefined && (needed === undefined || n < needed)) { needed = n; nextRec = r; } }
+  if (!last) {
+    // the front setting whose certification bound (its own or its neighbour's) came closest, among those whose
+    // estimates are below the promise (more scenes help only them); one "scenes needed" each is a few thousand bounds
+    const worst = (r: Rec) => Math.max(...bounds(r).map((x) => x.bound));
+    const hopeful = fr.filter((r) => bounds(r).every((x) => x.estimate < limit));
+    nextRec = hopeful.reduce<Rec | undefined>((m, r) => (!m || worst(r) < worst(m) ? r : m), undefined) ?? nextRec;
+  }
+  const needed = nextRec && need(nextRec);
   const next = nextRec && { policy: nextRec.policy, ...boundOf(nextRec), ...(needed !== undefined && { needed }) };
   const b = last ? bounds(last)[0] : undefined;
   const guarantee: Guarantee = {
