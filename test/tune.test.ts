@@ -159,7 +159,8 @@ describe('tune on synthetic caches', () => {
     const u = makeCache(extra.samples, extra.exits, extra.classes, extra.logits);
     const paired = tune(lab, syntheticCosts(3), { maxDrop: 1, grid: 16, unlabelled: u }).guarantee!;
     expect(paired.method).toMatch(/unlabelled/);
-    expect([paired.evidence, paired.unlabelled]).toEqual([1000, 8000]);
+    // labelled and unlabelled rows: each split in half, one half searching, the other certifying
+    expect([paired.evidence, paired.unlabelled]).toEqual([1000, 4000]);
     const bare = makeCache(lab.samples, lab.exits, lab.classes, lab.logits);
     const alone = tune(bare, syntheticCosts(3), { maxDrop: 1, grid: 16 });
     const more = tune(bare, syntheticCosts(3), { maxDrop: 1, grid: 16, unlabelled: u });

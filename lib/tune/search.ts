@@ -14,11 +14,16 @@
 // probability ≥ confidence, jointly, so any of them may be chosen: the cheapest
 // whose thresholds nudged one grid step cheaper still keep the drop within
 // maxDrop as observed (robustness; see `nudge`). When none does, the full model is kept and the result says so.
+//
+// Labelled rows with unlabelled ones: both are split alike and both search parts search (an unlabelled row's
+// label is the full model's answer). Each front setting's evidence on the certification part (paired drop on
+// the labelled rows, disagreement on all rows, or both) is the form tightest on the search part, so it is fixed
+// before a certifying row is seen; disagreement wins ties, so labels cost nothing where they do not help.
 // Everything iterates in fixed orders: same cache, same result.
 import { OfframpError } from '../errors.js';
 import { decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
 import { dropBound, fixedSequence, rowsNeeded, type AgreementCounts, type DropBound, type PairedCounts } from '../certify/index.js';
-import { reachOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
+import { reachOf, rowsOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
 import { discordant, patienceTable, preparePart, scoreTable, tally, type Discordant, type Part, type Table } from './evaluate.js';
 import type { Guarantee } from './guarantee.js';
 
@@ -264,6 +269,31 @@ function countsOf(labelled: boolean, n: number, d: Discordant, extra?: { n: numb
   return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra && extra.n >= n ? { agreement } : {}) };
 }
 
+/**
+ * With labelled and unlabelled rows, which evidence bounds a setting: the paired drop on the labelled rows, the
+ * disagreement on all rows (labelled ones counted as unlabelled too: disagreement bounds the drop whatever the labels),
+ * or both (δ split as dropBound does). Disagreement first, so that a tie keeps what leaving the labels out would give.
+ */
+export const MIXED_FORMS = ['disagreement', 'paired', 'paired+disagreement'] as const;
+export type MixedForm = (typeof MIXED_FORMS)[number];
+
+function mixedCounts(form: MixedForm, nl: number, dl: Discordant, nu: number, du: Discordant): { paired?: PairedCounts; agreement?: AgreementCounts } {
+  const paired = { n: nl, lost: dl.lost, gained: dl.gained }, agreement = { n: nl + nu, disagree: dl.disagree + du.disagree };
+  return form === 'paired' ? { paired } : form === 'disagreement' ? { agreement } : { paired, agreement };
+}
+
+/** The form whose bound is tightest on the search part's counts carried over to the certification part's sizes: fixed before any certifying row is seen. */
+function mixedForm(bound: (o: { paired?: PairedCounts; agreement?: AgreementCounts }) => DropBound, nl: number, dl: Discordant, nu: number, du: Discordant, toL: number, toU: number): MixedForm {
+  const sc = (d: Discordant, n: number, to: number): Discordant => {
+    const f = to / Math.max(n, 1), r = (x: number) => Math.min(Math.round(x * f), to);
+    return { lost: r(d.lost), gained: r(d.gained), disagree: r(d.disagree) };
+  };
+  const l = sc(dl, nl, toL), u = sc(du, nu, toU);
+  let best: MixedForm = MIXED_FORMS[0], b = Infinity;
+  for (const f of MIXED_FORMS) { const x = bound(mixedCounts(f, toL, l, toU, u)).bound; if (x < b - 1e-12) { b = x; best = f; } }
+  return best;
+}
+
 /** The observed drop of some counts (what dropBound estimates), without computing a bound. */
 const observed = (o: { paired?: PairedCounts; agreement?: AgreementCounts }): number =>
   o.paired ? (o.paired.n ? (o.paired.lost - o.paired.gained) / o.paired.n : 0) : o.agreement!.n ? o.agreement!.disagree / o.agreement!.n : 0;
@@ -295,35 +325,48 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   if (u && (u.exits !== E || u.classes !== c.classes)) throw new OfframpError('data', `unlabelled rows have ${u.exits} exits and ${u.classes} classes, expected ${E} and ${c.classes}`);
   const reach = reachOf(costs, E);
   const parts = splitParts(c.samples, heldOut, 'interleave');
-  const tuneP = preparePart(c, parts.tune), heldP = preparePart(c, parts.held);
-  const extraP = u && u.samples ? preparePart(u, Int32Array.from({ length: u.samples }, (_, i) => i)) : undefined;
+  // Labelled and unlabelled rows together (`mixed`): the unlabelled rows are split like the labelled ones; the search
+  // runs on both search parts (an unlabelled row's label is the full model's answer), and each setting's certification
+  // uses the form of evidence that is tightest on the search part (mixedForm)
+  const mixed = !!(c.labelled && u && u.samples >= 2);
+  const uParts = mixed ? splitParts(u!.samples, heldOut, 'interleave') : undefined;
+  const searchCache = mixed ? concatRows(rowsOf(c, parts.tune), rowsOf(u!, uParts!.tune)) : c;
+  const tuneP = preparePart(searchCache, mixed ? Int32Array.from({ length: searchCache.samples }, (_, i) => i) : parts.tune), heldP = preparePart(c, parts.held);
+  const extraP = u && u.samples ? preparePart(u, mixed ? uParts!.held : Int32Array.from({ length: u.samples }, (_, i) => i)) : undefined;
+  const labTuneP = mixed ? preparePart(c, parts.tune) : undefined, uTuneP = mixed ? preparePart(u!, uParts!.tune) : undefined;
   const fullPolicy = fullModel(E);
   const fullTh = new Float64Array(E).fill(Infinity);
   const fullSp: Space = { table: { s: new Float64Array(Math.max(tuneP.n, heldP.n) * Math.max(E, 4)).fill(-Infinity), stride: Math.max(E, 4) }, dc: 0 };
   const full: Point = { policy: fullPolicy, tune: evalOf(new Pool(tuneP, reach).eval(fullSp, fullTh, E), tuneP.n), held: evalOf(new Pool(heldP, reach).eval(fullSp, fullTh, E), heldP.n) };
 
   const risk = riskOn(tuneP, delta);
-  const searched = search(c, tuneP, reach, o.kinds ?? TUNE_KINDS, grid, o.budgetScore ?? 'confidence', risk);
+  const searched = search(searchCache, tuneP, reach, o.kinds ?? TUNE_KINDS, grid, o.budgetScore ?? 'confidence', risk);
   const settings = searched.reduce((a, s) => a + s.recs.length, 0);
 
   // Every front point on the certification part: its figures and its bound.
   const bound = boundMemo(delta);
-  const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space }>();
+  const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space; form?: MixedForm }>();
   const kinds: KindResult[] = [];
+  // the counts a setting's bound reads on the certification part (its form fixed on the search part when mixed)
+  const countsAt = (sp: Space, xsp: Space | undefined, th: Float64Array, cap: number, form?: MixedForm) => form
+    ? mixedCounts(form, heldP.n, discordant(sp.table, heldP, th, cap), extraP!.n, discordant(xsp!.table, extraP!, th, cap))
+    : countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, th, cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, th, cap) });
   for (const s of searched) {
     const sp = s.k.space(c, heldP), xsp = extraP && s.k.space(u!, extraP);
+    const lsp = labTuneP && s.k.space(c, labTuneP), usp = uTuneP && s.k.space(u!, uTuneP);
     const heldPool = new Pool(heldP, reach);
     const points: Point[] = [];
     for (const r of s.front) {
       const h = heldPool.eval(sp, r.th, r.cap, false);
-      const counts = countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, r.th, r.cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, r.th, r.cap) });
+      const form = mixed ? mixedForm(bound, labTuneP!.n, discordant(lsp!.table, labTuneP!, r.th, r.cap), uTuneP!.n, discordant(usp!.table, uTuneP!, r.th, r.cap), heldP.n, extraP!.n) : undefined;
+      const counts = countsAt(sp, xsp, r.th, r.cap, form);
       const b = bound(counts);
       const pt: Point = {
         policy: s.k.policy(r, reach, E, c.classes), tune: evalOf(r, tuneP.n), held: evalOf({ ...h, hist: h.hist.slice() }, heldP.n),
         cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
       };
       points.push(pt);
-      certOf.set(r, { pt, counts, b, s, sp, xsp });
+      certOf.set(r, { pt, counts, b, s, sp, xsp, form });
     }
     kinds.push({ kind: s.k.kind, evaluated: s.recs.length, front: points, chosen: full });
   }
@@ -339,8 +382,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     const x = certOf.get(r)!;
     const nth = nudge(r, x.s.cands);
     if (!nth) return true;
-    const counts = countsOf(c.labelled, heldP.n, discordant(x.sp.table, heldP, nth, r.cap), x.xsp && { n: extraP!.n, d: discordant(x.xsp.table, extraP!, nth, r.cap) });
-    const nb = observed(counts) * 100;
+    const nb = observed(countsAt(x.sp, x.xsp, nth, r.cap, x.form)) * 100;
     x.pt.cert!.nudged = nb;
     return !robust || nb <= maxDrop;
   };
@@ -357,11 +399,12 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const failed = seq.failed && certOf.get(seq.failed)!;
   const neededOf = (x: NonNullable<typeof failed>) => rowsNeeded(x.counts, maxDrop / 100, delta);
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
-  const method = cb ? cb.b.method : c.labelled ? (extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
+  const method = cb ? cb.b.method : c.labelled ? (mixed ? 'disagreement' : extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
+  const usesUnlabelled = !!extraP && (mixed ? method !== 'paired' : !c.labelled || extraP.n >= heldP.n);
   const guarantee: Guarantee = {
-    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP && (!c.labelled || extraP.n >= heldP.n) ? extraP.n : 0,
+    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: usesUnlabelled ? extraP!.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
-    method: `${METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
+    method: `${mixed && method === 'disagreement' ? 'disagreement with the full model on labelled and unlabelled rows (Clopper–Pearson)' : METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
     margin: maxDrop - (cb ? cb.b.bound * 100 : 0), tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
     ...(next?.needed !== undefined ? { needed: next.needed } : {}),
     ...(next ? { next } : {}),
@@ -369,13 +412,23 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     assumes: [
       'new data comes from the same source as the tuning data, each sample an independent draw (for recordings in time order, tune with --stream)',
       c.labelled ? 'the labels are right' : 'accuracy is agreement with the full model; the bound on disagreement also bounds the drop in accuracy against true labels',
-      ...(extraP && (!c.labelled || extraP.n >= heldP.n) ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
+      ...(mixed && method === 'disagreement' ? ['accuracy is bounded through disagreement with the full model, which bounds the drop against true labels too'] : []),
+      ...(usesUnlabelled ? [`the unlabelled rows come from the same source and were not used for anything else${mixed ? ' (half of them search, the other half certify)' : ''}`] : []),
     ],
   };
   return {
     labelled: c.labelled, maxDrop, split: { mode: 'interleave', heldOut, tune: tuneP.n, held: heldP.n },
     reach: [...reach], full, kinds, chosen, settings, guarantee,
   };
+}
+
+/** Two caches of the same exits and classes, rows of the first then the second (labels as each gives them). */
+function concatRows(a: ExitCache, b: ExitCache): ExitCache {
+  const logits = new Float32Array(a.logits.length + b.logits.length);
+  logits.set(a.logits); logits.set(b.logits, a.logits.length);
+  const labels = new Int32Array(a.samples + b.samples);
+  labels.set(a.labels); labels.set(b.labels, a.samples);
+  return { ...a, samples: a.samples + b.samples, logits, labels };
 }
 
 /**
