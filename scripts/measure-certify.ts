@@ -116,7 +116,9 @@ if (todo.has('scarce')) {
     const rw = onRows(cache, costs, withLab.chosen.policy as FramePolicy, judge), ra = onRows(cache, costs, alone.chosen.policy as FramePolicy, judge);
     say(`scarce (${head}) block ${b}: 400 labelled + 20000 unlabelled: ${gOf(withLab.guarantee!)}; real drop ${rw.drop.toFixed(2)} pp, saving ${rw.saving.toFixed(1)} %`);
     say(`scarce (${head}) block ${b}: 20000 unlabelled alone: ${gOf(alone.guarantee!)}; real drop ${ra.drop.toFixed(2)} pp, saving ${ra.saving.toFixed(1)} %`);
-    void noLab;
+    // the same rows with the labels left out (no --labels)
+    const left = tune(noLab, costs, { maxDrop: 1, unlabelled: u }), rl = onRows(cache, costs, left.chosen.policy as FramePolicy, judge);
+    say(`scarce (${head}) block ${b}: the same 400 + 20000 without labels: ${gOf(left.guarantee!)}; real drop ${rl.drop.toFixed(2)} pp, saving ${rl.saving.toFixed(1)} %`);
   }
 }
 

@@ -21,7 +21,7 @@
 // before a certifying row is seen; disagreement wins ties, so labels cost nothing where they do not help.
 // Everything iterates in fixed orders: same cache, same result.
 import { OfframpError } from '../errors.js';
-import { decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
+import { argmax, decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
 import { dropBound, fixedSequence, rowsNeeded, type AgreementCounts, type DropBound, type PairedCounts } from '../certify/index.js';
 import { reachOf, rowsOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
 import { discordant, patienceTable, preparePart, scoreTable, tally, type Discordant, type Part, type Table } from './evaluate.js';
@@ -282,15 +282,24 @@ function mixedCounts(form: MixedForm, nl: number, dl: Discordant, nu: number, du
   return form === 'paired' ? { paired } : form === 'disagreement' ? { agreement } : { paired, agreement };
 }
 
-/** The form whose bound is tightest on the search part's counts carried over to the certification part's sizes: fixed before any certifying row is seen. */
-function mixedForm(bound: (o: { paired?: PairedCounts; agreement?: AgreementCounts }) => DropBound, nl: number, dl: Discordant, nu: number, du: Discordant, toL: number, toU: number): MixedForm {
+/**
+ * One form for the whole run, fixed before any certifying row is seen: the one whose fixed sequence, run on the
+ * search part's counts carried over to the certification part's sizes, reaches the cheapest setting (ties: the
+ * earlier form). One form for all settings, not one each: a form chosen per setting on a few hundred labelled
+ * search rows is often chosen by luck, and one unlucky form ends the sequence for every cheaper setting.
+ */
+function mixedFormOf<R extends { cost: number }>(bound: (o: { paired?: PairedCounts; agreement?: AgreementCounts }) => DropBound, ordered: readonly R[], dOf: (r: R) => { dl: Discordant; du: Discordant },
+  nl: number, nu: number, toL: number, toU: number, maxDrop: number): MixedForm {
   const sc = (d: Discordant, n: number, to: number): Discordant => {
     const f = to / Math.max(n, 1), r = (x: number) => Math.min(Math.round(x * f), to);
     return { lost: r(d.lost), gained: r(d.gained), disagree: r(d.disagree) };
   };
-  const l = sc(dl, nl, toL), u = sc(du, nu, toU);
-  let best: MixedForm = MIXED_FORMS[0], b = Infinity;
-  for (const f of MIXED_FORMS) { const x = bound(mixedCounts(f, toL, l, toU, u)).bound; if (x < b - 1e-12) { b = x; best = f; } }
+  let best: MixedForm = MIXED_FORMS[0], cost = Infinity;
+  for (const f of MIXED_FORMS) {
+    const seq = fixedSequence(ordered, (r) => { const { dl, du } = dOf(r); return bound(mixedCounts(f, toL, sc(dl, nl, toL), toU, sc(du, nu, toU))).bound * 100 <= maxDrop; });
+    const c = seq.passed.reduce((m, r) => Math.min(m, r.cost), Infinity);
+    if (c < cost) { cost = c; best = f; }
+  }
   return best;
 }
 
@@ -327,10 +336,12 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const parts = splitParts(c.samples, heldOut, 'interleave');
   // Labelled and unlabelled rows together (`mixed`): the unlabelled rows are split like the labelled ones; the search
   // runs on both search parts (an unlabelled row's label is the full model's answer), and each setting's certification
-  // uses the form of evidence that is tightest on the search part (mixedForm)
+  // uses the form of evidence chosen on the search part (mixedFormOf)
   const mixed = !!(c.labelled && u && u.samples >= 2);
   const uParts = mixed ? splitParts(u!.samples, heldOut, 'interleave') : undefined;
-  const searchCache = mixed ? concatRows(rowsOf(c, parts.tune), rowsOf(u!, uParts!.tune)) : c;
+  // the search aims at what will certify: where unlabelled rows outnumber labelled ones the disagreement form
+  // usually bounds best, so it searches on agreement with the full model (as without labels); else on the labels
+  const searchCache = mixed ? concatRows(rowsOf(u!.samples >= c.samples ? asUnlabelled(c) : c, parts.tune), rowsOf(u!, uParts!.tune)) : c;
   const tuneP = preparePart(searchCache, mixed ? Int32Array.from({ length: searchCache.samples }, (_, i) => i) : parts.tune), heldP = preparePart(c, parts.held);
   const extraP = u && u.samples ? preparePart(u, mixed ? uParts!.held : Int32Array.from({ length: u.samples }, (_, i) => i)) : undefined;
   const labTuneP = mixed ? preparePart(c, parts.tune) : undefined, uTuneP = mixed ? preparePart(u!, uParts!.tune) : undefined;
@@ -351,14 +362,23 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const countsAt = (sp: Space, xsp: Space | undefined, th: Float64Array, cap: number, form?: MixedForm) => form
     ? mixedCounts(form, heldP.n, discordant(sp.table, heldP, th, cap), extraP!.n, discordant(xsp!.table, extraP!, th, cap))
     : countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, th, cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, th, cap) });
+  // The fixed sequence's order: the merged front, cautious first, ordered by the search part alone.
+  const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < full.tune.meanMacs * tuneP.n);
+  let form: MixedForm | undefined;
+  if (mixed) {
+    const dOf = new Map<Rec, { dl: Discordant; du: Discordant }>();
+    for (const s of searched) {
+      const lsp = s.k.space(c, labTuneP!), usp = s.k.space(u!, uTuneP!);
+      for (const r of s.front) dOf.set(r, { dl: discordant(lsp.table, labTuneP!, r.th, r.cap), du: discordant(usp.table, uTuneP!, r.th, r.cap) });
+    }
+    form = mixedFormOf(bound, ordered, (r) => dOf.get(r)!, labTuneP!.n, uTuneP!.n, heldP.n, extraP!.n, maxDrop);
+  }
   for (const s of searched) {
     const sp = s.k.space(c, heldP), xsp = extraP && s.k.space(u!, extraP);
-    const lsp = labTuneP && s.k.space(c, labTuneP), usp = uTuneP && s.k.space(u!, uTuneP);
     const heldPool = new Pool(heldP, reach);
     const points: Point[] = [];
     for (const r of s.front) {
       const h = heldPool.eval(sp, r.th, r.cap, false);
-      const form = mixed ? mixedForm(bound, labTuneP!.n, discordant(lsp!.table, labTuneP!, r.th, r.cap), uTuneP!.n, discordant(usp!.table, uTuneP!, r.th, r.cap), heldP.n, extraP!.n) : undefined;
       const counts = countsAt(sp, xsp, r.th, r.cap, form);
       const b = bound(counts);
       const pt: Point = {
@@ -371,8 +391,6 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     kinds.push({ kind: s.k.kind, evaluated: s.recs.length, front: points, chosen: full });
   }
 
-  // The fixed sequence: the merged front, cautious first, ordered by the search part alone.
-  const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < full.tune.meanMacs * tuneP.n);
   const seq = fixedSequence(ordered, (r) => certOf.get(r)!.b.bound * 100 <= maxDrop);
   for (const r of seq.passed) Object.assign(certOf.get(r)!.pt.cert!, { tested: true, passed: true });
   if (seq.failed) certOf.get(seq.failed)!.pt.cert!.tested = true;
@@ -420,6 +438,13 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     labelled: c.labelled, maxDrop, split: { mode: 'interleave', heldOut, tune: tuneP.n, held: heldP.n },
     reach: [...reach], full, kinds, chosen, settings, guarantee,
   };
+}
+
+/** The cache with the full model's answers as labels. */
+function asUnlabelled(c: ExitCache): ExitCache {
+  const E1 = c.exits + 1, labels = new Int32Array(c.samples);
+  for (let i = 0; i < c.samples; i++) labels[i] = argmax(c.logits, (i * E1 + c.exits) * c.classes, c.classes);
+  return { ...c, labels, labelled: false };
 }
 
 /** Two caches of the same exits and classes, rows of the first then the second (labels as each gives them). */
