@@ -158,7 +158,7 @@ if (todo.has('stream')) {
     const got = evalStream(nw.cache, idx, p as StreamPolicy, reach), full = evalStream(nw.cache, idx, fullModel(nw.cache.exits), reach);
     return { drop: (full.accuracy - got.accuracy) * 100, saving: (1 - got.meanMacs / full.meanMacs) * 100 };
   };
-  for (const maxDrop of [1, 2]) {
+  for (const maxDrop of (process.env.MAX_DROPS ?? '1,2').split(',').map(Number)) {
     const t0 = Date.now();
     const r = tuneStream(rec.cache, rec.costs, { maxDrop, segments: seg });
     const real = onNew(r.chosen.policy);

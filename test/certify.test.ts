@@ -1,6 +1,6 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
-import { binomialCdf, clopperPearsonLower, clopperPearsonUpper, dropBound, fixedSequence, hoeffdingBentkusUpper, incompleteBeta, rowsNeeded } from '../lib/certify/index.js';
+import { binomialCdf, chainedSequences, clopperPearsonLower, clopperPearsonUpper, dropBound, fixedSequence, hoeffdingBentkusUpper, incompleteBeta, rowsNeeded } from '../lib/certify/index.js';
 import { mulberry32 } from '../lib/graph/build.js';
 import { bettingUpper, empiricalBernsteinUpper } from '../lib/certify/mean.js';
 
@@ -172,5 +172,53 @@ describe('empirical Bernstein and betting bounds on a mean', () => {
     expect(empiricalBernsteinUpper([0.5], 0.05)).toBe(1);
     expect(() => bettingUpper([1.5], 0.05)).toThrow(/outside/);
     expect(() => bettingUpper([0.5], 1)).toThrow(/δ/);
+  });
+});
+
+// Two fixed sequences at δ/2 each, a finished one handing its level on (lib/certify/sequence.ts: a graphical
+// procedure of chains, Bretz et al. 2009; its error control by the sequential rejection principle, Goeman & Solari 2010).
+describe('chained fixed sequences', () => {
+  it('split δ, hand a finished chain\'s level on, and pass a setting standing in both chains once', () => {
+    const levels: [string, number][] = [];
+    // 'a' passes at any level, 'b' needs δ/2, 'c' never passes
+    const need: Record<string, number> = { a: 0, b: 0.05, c: Infinity };
+    const r = chainedSequences([['a'], ['b', 'c'], ['a', 'c']], 0.1, (t, level) => { levels.push([t, level]); return level >= need[t] - 1e-12; });
+    expect(r.passed).toEqual(['a', 'b']);
+    expect(r.failed).toEqual([undefined, 'c', 'c']);
+    // 'a' heads chains 1 and 3 at once: tested once, at 2δ/3; chain 1, finished, hands its δ/3 to chains 2 and 3,
+    // so 'b' is tested at δ/3 + δ/6 = δ/2 (chain 3, now at 'c', keeps its δ/2: nothing gives 'c' more)
+    expect(levels.filter(([t]) => t === 'a')).toHaveLength(1);
+    expect(levels[0][1]).toBeCloseTo(0.2 / 3, 12);
+    expect(levels.filter(([t]) => t === 'b').map(([, l]) => l)).toEqual([expect.closeTo(0.05, 12)]);
+    expect(levels.filter(([t]) => t === 'c').every(([, l]) => l <= 0.1 + 1e-12)).toBe(true);
+    expect(chainedSequences([], 0.1, () => true)).toEqual({ passed: [], failed: [] });
+    // weights: chain 1 holds δ/4, chain 2 3δ/4; 'b' needs δ/2, so passes only once 'a' has finished chain 1
+    const seen: number[] = [];
+    expect(chainedSequences([['a'], ['b']], 0.1, (t, l) => { if (t === 'b') seen.push(l); return l >= need[t] - 1e-12; }, [0.25, 0.75]).passed).toEqual(['a', 'b']);
+    expect(seen).toEqual([expect.closeTo(0.1, 12)]);
+    expect(() => chainedSequences([['a'], ['b']], 0.1, () => true, [0.5, 0.6])).toThrow(/weights/);
+  });
+
+  it('keep the family-wise error within δ by simulation, and pass where one badly ordered sequence stops', () => {
+    // 30 settings, true loss rates rising with cost saved, but a few cautious-looking ones (first in chain A) are bad;
+    // chain B is ordered by the true rates. Broken: any passed setting whose true rate exceeds the promise.
+    const truth = Array.from({ length: 30 }, (_, i) => 0.0004 * i), maxDrop = 0.006, delta = 0.1, n = 3000, draws = 400;
+    const bad = [20, 25]; // rates 0.8 % and 1 %, over the promise
+    const chainA = [...bad, ...truth.map((_, i) => i).filter((i) => !bad.includes(i))], chainB = truth.map((_, i) => i);
+    const rnd = mulberry32(5);
+    let broken = 0, brokenOne = 0, chained = 0, single = 0;
+    for (let d = 0; d < draws; d++) {
+      const lost = truth.map((p) => binomial(n, p, rnd));
+      const ok = (i: number, level: number) => clopperPearsonUpper(lost[i], n, level) <= maxDrop;
+      const r = chainedSequences([chainA, chainB], delta, ok);
+      if (r.passed.some((i) => truth[i] > maxDrop)) broken++;
+      chained += r.passed.length ? Math.max(...r.passed) : 0;
+      const f = fixedSequence(chainA, (i) => ok(i, delta));
+      if (f.passed.some((i) => truth[i] > maxDrop)) brokenOne++;
+      single += f.passed.length ? Math.max(...f.passed) : 0;
+    }
+    console.log(`chained sequences: broken ${broken}/${draws} (allowed ≈ ${delta * draws}); boldest passed on average ${(chained / draws).toFixed(1)} against ${(single / draws).toFixed(1)} for the one badly ordered sequence (broken ${brokenOne})`);
+    expect(broken / draws).toBeLessThanOrEqual(delta + 3 * Math.sqrt(delta * (1 - delta) / draws));
+    expect(chained / draws).toBeGreaterThan(single / draws + 5);
   });
 });

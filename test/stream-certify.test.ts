@@ -100,10 +100,12 @@ describe('certified stream tuning', () => {
   const costs = syntheticCosts(2), reach = reachOf(costs, 2);
   const small = { kinds: ['difference'] as const, distances: ['js'] as const, grid: 6, refresh: [8, 32] };
 
-  it('keeps its promise on new recordings: over 200 draws, broken in at most 1 − C (plus slack)', () => {
+  it('keeps its promise on new recordings: over 200 draws at each of two promises, broken in at most 1 − C (plus slack)', () => {
     // each draw: a tuning recording of 160 scenes, then a new recording of 400 scenes from the same source;
     // broken = the chosen setting's drop on the new recording exceeds --max-drop (frame-weighted, and scene-averaged)
-    const C = 0.9, maxDrop = 6, draws = 200;
+    // at 6 points, and at 3, where the bound binds (fewer draws certify)
+    for (const maxDrop of [6, 3]) {
+    const C = 0.9, draws = 200;
     let brokenF = 0, brokenS = 0, certified = 0, saving = 0, worst = -Infinity;
     const fullPolicy: FramePolicy = { kind: 'confidence', thresholds: [null, null] };
     for (let d = 0; d < draws; d++) {
@@ -129,9 +131,9 @@ describe('certified stream tuning', () => {
     expect(brokenF / draws).toBeLessThanOrEqual(1 - C + slack);
     expect(brokenS / draws).toBeLessThanOrEqual(1 - C + slack);
     // not vacuous: most draws certify a stream setting that saves
-    expect(certified).toBeGreaterThan(draws * 0.8);
-    expect(saving / draws).toBeGreaterThan(0.3);
-  });
+    if (maxDrop === 6) { expect(certified).toBeGreaterThan(draws * 0.8); expect(saving / draws).toBeGreaterThan(0.3); }
+    }
+  }, 300_000);
 
   it('when data is short it keeps the full model and says how many scenes it would need', () => {
     const t = sceneStream({ scenes: 16, minLen: 10, maxLen: 30, seed: 4, exits: 2 });

@@ -1,5 +1,5 @@
 export { logGamma, incompleteBeta, betaQuantile, binomialCdf, clopperPearsonUpper, clopperPearsonLower } from './binomial.js';
 export { hoeffdingBentkusP, hoeffdingBentkusUpper } from './bentkus.js';
 export { dropBound, rowsNeeded, type PairedCounts, type AgreementCounts, type DropBound } from './drop.js';
-export { fixedSequence, type Sequence } from './sequence.js';
+export { chainedSequences, fixedSequence, type Chains, type Sequence } from './sequence.js';
 export type { Guarantee } from './guarantee.js';
