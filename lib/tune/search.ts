@@ -15,10 +15,10 @@
 // whose thresholds nudged one grid step cheaper still keep the drop within
 // maxDrop as observed (robustness; see `nudge`). When none does, the full model is kept and the result says so.
 //
-// Labelled rows with unlabelled ones: both are split alike and both search parts search (an unlabelled row's
-// label is the full model's answer). Each front setting's evidence on the certification part (paired drop on
-// the labelled rows, disagreement on all rows, or both) is the form tightest on the search part, so it is fixed
-// before a certifying row is seen; disagreement wins ties, so labels cost nothing where they do not help.
+// With unlabelled rows (`--unlabelled`): they are split like the data's rows and both search parts search (an
+// unlabelled row's label is the full model's answer). The evidence is fixed by sizes alone: disagreement with the
+// full model on all certifying rows, or, with labels and fewer unlabelled rows than labelled ones, the paired drop
+// on the labels. Where disagreement bounds, labels change nothing: the run is the one without them.
 // Everything iterates in fixed orders: same cache, same result.
 import { OfframpError } from '../errors.js';
 import { argmax, decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
@@ -270,37 +270,18 @@ function countsOf(labelled: boolean, n: number, d: Discordant, extra?: { n: numb
 }
 
 /**
- * With labelled and unlabelled rows, which evidence bounds a setting: the paired drop on the labelled rows, the
- * disagreement on all rows (labelled ones counted as unlabelled too: disagreement bounds the drop whatever the labels),
- * or both (δ split as dropBound does). Disagreement first, so that a tie keeps what leaving the labels out would give.
+ * With unlabelled rows besides the data, which evidence bounds every setting: disagreement with the full model on
+ * all rows (labelled ones counted as unlabelled too: disagreement bounds the drop whatever the labels), or, where
+ * labelled rows outnumber the unlabelled ones, the paired drop on the labelled rows. The rule reads sizes only.
+ * Where disagreement bounds, the run is the run without labels on the same rows, setting for setting: labels
+ * cannot make it worse. Chosen on the search part per setting or per run, the form was tried and did worse on
+ * average over 200 synthetic draws (a form chosen on a few hundred search rows is chosen by luck).
  */
-export const MIXED_FORMS = ['disagreement', 'paired', 'paired+disagreement'] as const;
-export type MixedForm = (typeof MIXED_FORMS)[number];
+export type MixedForm = 'disagreement' | 'paired' | 'paired+disagreement';
 
 function mixedCounts(form: MixedForm, nl: number, dl: Discordant, nu: number, du: Discordant): { paired?: PairedCounts; agreement?: AgreementCounts } {
   const paired = { n: nl, lost: dl.lost, gained: dl.gained }, agreement = { n: nl + nu, disagree: dl.disagree + du.disagree };
   return form === 'paired' ? { paired } : form === 'disagreement' ? { agreement } : { paired, agreement };
-}
-
-/**
- * One form for the whole run, fixed before any certifying row is seen: the one whose fixed sequence, run on the
- * search part's counts carried over to the certification part's sizes, reaches the cheapest setting (ties: the
- * earlier form). One form for all settings, not one each: a form chosen per setting on a few hundred labelled
- * search rows is often chosen by luck, and one unlucky form ends the sequence for every cheaper setting.
- */
-function mixedFormOf<R extends { cost: number }>(bound: (o: { paired?: PairedCounts; agreement?: AgreementCounts }) => DropBound, ordered: readonly R[], dOf: (r: R) => { dl: Discordant; du: Discordant },
-  nl: number, nu: number, toL: number, toU: number, maxDrop: number): MixedForm {
-  const sc = (d: Discordant, n: number, to: number): Discordant => {
-    const f = to / Math.max(n, 1), r = (x: number) => Math.min(Math.round(x * f), to);
-    return { lost: r(d.lost), gained: r(d.gained), disagree: r(d.disagree) };
-  };
-  let best: MixedForm = MIXED_FORMS[0], cost = Infinity;
-  for (const f of MIXED_FORMS) {
-    const seq = fixedSequence(ordered, (r) => { const { dl, du } = dOf(r); return bound(mixedCounts(f, toL, sc(dl, nl, toL), toU, sc(du, nu, toU))).bound * 100 <= maxDrop; });
-    const c = seq.passed.reduce((m, r) => Math.min(m, r.cost), Infinity);
-    if (c < cost) { cost = c; best = f; }
-  }
-  return best;
 }
 
 /** The observed drop of some counts (what dropBound estimates), without computing a bound. */
@@ -334,17 +315,17 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   if (u && (u.exits !== E || u.classes !== c.classes)) throw new OfframpError('data', `unlabelled rows have ${u.exits} exits and ${u.classes} classes, expected ${E} and ${c.classes}`);
   const reach = reachOf(costs, E);
   const parts = splitParts(c.samples, heldOut, 'interleave');
-  // Labelled and unlabelled rows together (`mixed`): the unlabelled rows are split like the labelled ones; the search
-  // runs on both search parts (an unlabelled row's label is the full model's answer), and each setting's certification
-  // uses the form of evidence chosen on the search part (mixedFormOf)
-  const mixed = !!(c.labelled && u && u.samples >= 2);
+  // Unlabelled rows besides the data (`mixed`): they are split like the data's rows; the search runs on both search
+  // parts (an unlabelled row's label is the full model's answer) and certification reads both certification parts,
+  // in the form the sizes fix (MixedForm): with labels and fewer unlabelled rows, the paired drop on the labels
+  const mixed = !!(u && u.samples >= 2);
+  const form: MixedForm | undefined = mixed ? (c.labelled && c.samples > u!.samples ? 'paired' : 'disagreement') : undefined;
   const uParts = mixed ? splitParts(u!.samples, heldOut, 'interleave') : undefined;
   // the search aims at what will certify: where unlabelled rows outnumber labelled ones the disagreement form
   // usually bounds best, so it searches on agreement with the full model (as without labels); else on the labels
-  const searchCache = mixed ? concatRows(rowsOf(u!.samples >= c.samples ? asUnlabelled(c) : c, parts.tune), rowsOf(u!, uParts!.tune)) : c;
+  const searchCache = mixed ? concatRows(rowsOf(form === 'disagreement' ? asUnlabelled(c) : c, parts.tune), rowsOf(u!, uParts!.tune)) : c;
   const tuneP = preparePart(searchCache, mixed ? Int32Array.from({ length: searchCache.samples }, (_, i) => i) : parts.tune), heldP = preparePart(c, parts.held);
   const extraP = u && u.samples ? preparePart(u, mixed ? uParts!.held : Int32Array.from({ length: u.samples }, (_, i) => i)) : undefined;
-  const labTuneP = mixed ? preparePart(c, parts.tune) : undefined, uTuneP = mixed ? preparePart(u!, uParts!.tune) : undefined;
   const fullPolicy = fullModel(E);
   const fullTh = new Float64Array(E).fill(Infinity);
   const fullSp: Space = { table: { s: new Float64Array(Math.max(tuneP.n, heldP.n) * Math.max(E, 4)).fill(-Infinity), stride: Math.max(E, 4) }, dc: 0 };
@@ -356,29 +337,22 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
 
   // Every front point on the certification part: its figures and its bound.
   const bound = boundMemo(delta);
-  const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space; form?: MixedForm }>();
+  const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space; heldCost: number }>();
   const kinds: KindResult[] = [];
-  // the counts a setting's bound reads on the certification part (its form fixed on the search part when mixed)
+  // the counts a setting's bound reads on the certification part (in the form the sizes fix when mixed)
   const countsAt = (sp: Space, xsp: Space | undefined, th: Float64Array, cap: number, form?: MixedForm) => form
     ? mixedCounts(form, heldP.n, discordant(sp.table, heldP, th, cap), extraP!.n, discordant(xsp!.table, extraP!, th, cap))
     : countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, th, cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, th, cap) });
   // The fixed sequence's order: the merged front, cautious first, ordered by the search part alone.
   const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < full.tune.meanMacs * tuneP.n);
-  let form: MixedForm | undefined;
-  if (mixed) {
-    const dOf = new Map<Rec, { dl: Discordant; du: Discordant }>();
-    for (const s of searched) {
-      const lsp = s.k.space(c, labTuneP!), usp = s.k.space(u!, uTuneP!);
-      for (const r of s.front) dOf.set(r, { dl: discordant(lsp.table, labTuneP!, r.th, r.cap), du: discordant(usp.table, uTuneP!, r.th, r.cap) });
-    }
-    form = mixedFormOf(bound, ordered, (r) => dOf.get(r)!, labTuneP!.n, uTuneP!.n, heldP.n, extraP!.n, maxDrop);
-  }
   for (const s of searched) {
     const sp = s.k.space(c, heldP), xsp = extraP && s.k.space(u!, extraP);
-    const heldPool = new Pool(heldP, reach);
+    const heldPool = new Pool(heldP, reach), extraPool = mixed ? new Pool(extraP!, reach) : undefined;
     const points: Point[] = [];
     for (const r of s.front) {
       const h = heldPool.eval(sp, r.th, r.cap, false);
+      // the cost compared when choosing: on every certifying row, unlabelled ones included
+      const heldCost = (h.cost + (extraPool ? extraPool.eval(xsp!, r.th, r.cap, false).cost : 0)) / (heldP.n + (mixed ? extraP!.n : 0));
       const counts = countsAt(sp, xsp, r.th, r.cap, form);
       const b = bound(counts);
       const pt: Point = {
@@ -386,7 +360,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
         cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
       };
       points.push(pt);
-      certOf.set(r, { pt, counts, b, s, sp, xsp, form });
+      certOf.set(r, { pt, counts, b, s, sp, xsp, heldCost });
     }
     kinds.push({ kind: s.k.kind, evaluated: s.recs.length, front: points, chosen: full });
   }
@@ -400,16 +374,17 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     const x = certOf.get(r)!;
     const nth = nudge(r, x.s.cands);
     if (!nth) return true;
-    const nb = observed(countsAt(x.sp, x.xsp, nth, r.cap, x.form)) * 100;
+    const nb = observed(countsAt(x.sp, x.xsp, nth, r.cap, form)) * 100;
     x.pt.cert!.nudged = nb;
     return !robust || nb <= maxDrop;
   };
   const eligible = seq.passed.filter(ok);
-  let chosen: Point = full;
+  let chosen: Point = full, chosenCost = Infinity;
+  const kindCost = kinds.map(() => Infinity);
   for (const r of eligible) {
-    const x = certOf.get(r)!, kr = kinds[searched.indexOf(x.s)];
-    if (x.pt.held.meanMacs < chosen.held.meanMacs) chosen = x.pt;
-    if (x.pt.held.meanMacs < kr.chosen.held.meanMacs) kr.chosen = x.pt;
+    const x = certOf.get(r)!, ki = searched.indexOf(x.s);
+    if (x.heldCost < Math.min(chosenCost, full.held.meanMacs)) { chosen = x.pt; chosenCost = x.heldCost; }
+    if (x.heldCost < Math.min(kindCost[ki], full.held.meanMacs)) { kinds[ki].chosen = x.pt; kindCost[ki] = x.heldCost; }
   }
 
   const chosenRec = eligible.find((r) => certOf.get(r)!.pt === chosen);
@@ -417,12 +392,12 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const failed = seq.failed && certOf.get(seq.failed)!;
   const neededOf = (x: NonNullable<typeof failed>) => rowsNeeded(x.counts, maxDrop / 100, delta);
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
-  const method = cb ? cb.b.method : c.labelled ? (mixed ? 'disagreement' : extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
-  const usesUnlabelled = !!extraP && (mixed ? method !== 'paired' : !c.labelled || extraP.n >= heldP.n);
+  const method = cb ? cb.b.method : form ?? (c.labelled ? 'paired' : 'disagreement');
+  const usesUnlabelled = !!extraP && method !== 'paired';
   const guarantee: Guarantee = {
     confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: usesUnlabelled ? extraP!.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
-    method: `${mixed && method === 'disagreement' ? 'disagreement with the full model on labelled and unlabelled rows (Clopper–Pearson)' : METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
+    method: `${mixed && method === 'disagreement' ? `disagreement with the full model on ${c.labelled ? 'labelled and ' : ''}unlabelled rows (Clopper–Pearson)` : METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
     margin: maxDrop - (cb ? cb.b.bound * 100 : 0), tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
     ...(next?.needed !== undefined ? { needed: next.needed } : {}),
     ...(next ? { next } : {}),
@@ -430,7 +405,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     assumes: [
       'new data comes from the same source as the tuning data, each sample an independent draw (for recordings in time order, tune with --stream)',
       c.labelled ? 'the labels are right' : 'accuracy is agreement with the full model; the bound on disagreement also bounds the drop in accuracy against true labels',
-      ...(mixed && method === 'disagreement' ? ['accuracy is bounded through disagreement with the full model, which bounds the drop against true labels too'] : []),
+      ...(mixed && c.labelled && method === 'disagreement' ? ['accuracy is bounded through disagreement with the full model, which bounds the drop against true labels too'] : []),
       ...(usesUnlabelled ? [`the unlabelled rows come from the same source and were not used for anything else${mixed ? ' (half of them search, the other half certify)' : ''}`] : []),
     ],
   };
