@@ -30,7 +30,7 @@ beforeAll(() => {
   labels = path.join(tmp, 'y.npy');
   writeNpy(labels, Int32Array.from({ length: 48 }, () => Math.floor(r() * 4)), [48]);
   free = path.join(tmp, 'u.npy');
-  writeNpy(free, Float32Array.from({ length: 20 * 16 }, () => r() * 2 - 1), [20, 16]);
+  writeNpy(free, Float32Array.from({ length: 40 * 16 }, () => r() * 2 - 1), [40, 16]);
 });
 
 const build = (out: string, extra: string[]) => offramp(['build', model, '--data', data, '--candidates', '3', '--target', 'm4f', '--int8', '-o', out, ...extra]);
@@ -45,6 +45,8 @@ describe('build --int8', () => {
     const g = m.policy!.guarantee!;
     expect(g).toBeDefined();
     expect(b.int8.guarantee).toEqual(g);
+    // 40 unlabelled rows, more than the 24 labelled tuning rows: disagreement on all rows bounds, and the unlabelled
+    // rows are split like the labelled ones, half of them certifying
     expect(g).toMatchObject({ confidence: 0.9, maxDrop: 1, unit: 'samples', unlabelled: 20 });
     // 24 tuning rows, about half of them certifying: far fewer than ln(2/δ)/maxDrop (common practice:
     // the zero-loss Clopper–Pearson count, ≈ 300 at 1 point and δ = 0.1), so nothing is certified

@@ -3,7 +3,7 @@
 // coverage over many random tuning/new-recording draws).
 import { describe, expect, it } from 'vitest';
 import { mulberry32 } from '../lib/graph/build.js';
-import { sceneDropBound, scenesNeeded } from '../lib/certify/scenes.js';
+import { SCENE_FORMS, sceneDropBound, scenesNeeded, type SceneShares } from '../lib/certify/scenes.js';
 import { reachOf, makeCache } from '../lib/tune/cache.js';
 import { sceneIds, sceneSplit, fullAnswers } from '../lib/tune/scenes.js';
 import { evalStream, sceneShares, tuneStream } from '../lib/tune/stream.js';
@@ -41,45 +41,58 @@ describe('scenes as evidence', () => {
     expect([...ids]).toEqual([0, 0, 0, 0, 0, 0, 1, 1, 1, 1]);
   });
 
-  it('the scene bound covers the true scene-averaged drop in at least C of draws (labelled and not)', () => {
+  /** Shares of n scenes drawn one by one, as the tuner hands them over. */
+  const sharesOf = (lostEach: number[], gainedEach: number[], labelled: boolean): SceneShares => ({
+    n: lostEach.length, lost: lostEach.reduce((a, b) => a + b, 0) / lostEach.length, gained: gainedEach.reduce((a, b) => a + b, 0) / lostEach.length,
+    labelled, lostEach: Float64Array.from(lostEach), gainedEach: Float64Array.from(gainedEach),
+  });
+
+  it('every form of the scene bound covers the true scene-averaged drop in at least C of draws (labelled and not)', () => {
     // per-scene shares drawn from a known mixture: most scenes lose nothing, some lose a run of frames, some gain
-    // (Hoeffding–Bentkus holds for any loss in [0, 1]: Bates et al. 2021, Theorem 1 and Prop. 5)
+    // (Hoeffding–Bentkus holds for any loss in [0, 1]: Bates et al. 2021, Theorem 1 and Prop. 5; the betting bound:
+    // Waudby-Smith & Ramdas 2023; empirical Bernstein: Maurer & Pontil 2009, Theorem 4)
     const rnd = mulberry32(17);
     const n = 120, delta = 0.1, draws = 600;
     const lostOf = () => (rnd() < 0.15 ? 0.1 + 0.4 * rnd() : 0), gainOf = () => (rnd() < 0.1 ? 0.2 * rnd() : 0);
     const trueLost = 0.15 * 0.3, trueGain = 0.1 * 0.1;
-    let brokenL = 0, brokenU = 0, brokenO = 0;
+    const broken = new Map<string, number>();
     for (let d = 0; d < draws; d++) {
-      let l = 0, g = 0;
-      for (let i = 0; i < n; i++) { l += lostOf(); g += gainOf(); }
-      if (sceneDropBound({ n, lost: l / n, gained: g / n, labelled: true }, delta).bound < trueLost - trueGain) brokenL++;
-      if (sceneDropBound({ n, lost: l / n, gained: 0, labelled: false }, delta).bound < trueLost) brokenU++;
-      if (sceneDropBound({ n, lost: l / n, gained: g / n, labelled: true }, delta, true).bound < trueLost - trueGain) brokenO++;
+      const l = Array.from({ length: n }, lostOf), g = Array.from({ length: n }, gainOf);
+      for (const f of SCENE_FORMS.labelled) if (sceneDropBound(sharesOf(l, g, true), delta, f).bound < trueLost - trueGain) broken.set(`labelled ${f}`, (broken.get(`labelled ${f}`) ?? 0) + 1);
+      for (const f of SCENE_FORMS.unlabelled) if (sceneDropBound(sharesOf(l, l.map(() => 0), false), delta, f).bound < trueLost) broken.set(`unlabelled ${f}`, (broken.get(`unlabelled ${f}`) ?? 0) + 1);
     }
-    console.log(`scene bound coverage: labelled broken ${brokenL}/${draws}, lost share alone ${brokenO}/${draws}, unlabelled ${brokenU}/${draws} (allowed ≈ ${delta * draws})`);
+    console.log(`scene bound coverage (allowed ≈ ${delta * draws} of ${draws}): ${[...SCENE_FORMS.labelled.map((f) => `labelled ${f}`), ...SCENE_FORMS.unlabelled.map((f) => `unlabelled ${f}`)].map((k) => `${k} ${broken.get(k) ?? 0}`).join(', ')}`);
     // binomial slack: 3 standard deviations of a share δ over `draws` draws (common practice)
     const slack = 3 * Math.sqrt((delta * (1 - delta)) / draws);
-    expect(brokenL / draws).toBeLessThanOrEqual(delta + slack);
-    expect(brokenU / draws).toBeLessThanOrEqual(delta + slack);
-    expect(brokenO / draws).toBeLessThanOrEqual(delta + slack);
+    for (const v of broken.values()) expect(v / draws).toBeLessThanOrEqual(delta + slack);
+    expect(() => sceneDropBound(sharesOf([0.1], [0], false), delta, 'net:betting')).toThrow(/labels/);
   });
 
-  it('with no loss observed the bound is the closed form 1 − δ^(1/n) (Hoeffding\'s term, Bates et al. 2021)', () => {
+  it('with no loss observed, Hoeffding–Bentkus on lost shares is the closed form 1 − δ^(1/n) (Hoeffding\'s term, Bates et al. 2021)', () => {
     // h1(0, b) = −ln(1 − b), so exp(−n·h1) = (1 − b)^n ≤ δ at b = 1 − δ^(1/n); Bentkus' e·(1 − b)^n is larger there
     for (const n of [10, 100, 736]) {
-      expect(sceneDropBound({ n, lost: 0, gained: 0, labelled: false }, 0.05).bound).toBeCloseTo(1 - 0.05 ** (1 / n), 9);
-      expect(sceneDropBound({ n, lost: 0, gained: 0, labelled: true }, 0.05).bound).toBeCloseTo(1 - 0.025 ** (1 / n), 9);
-      expect(sceneDropBound({ n, lost: 0, gained: 0, labelled: true }, 0.05, true).bound).toBeCloseTo(1 - 0.05 ** (1 / n), 9);
+      const zero = Array.from({ length: n }, () => 0);
+      expect(sceneDropBound(sharesOf(zero, zero, false), 0.05, 'lost:hb').bound).toBeCloseTo(1 - 0.05 ** (1 / n), 9);
+      expect(sceneDropBound(sharesOf(zero, zero, true), 0.05, 'lost:hb').bound).toBeCloseTo(1 - 0.05 ** (1 / n), 9);
+      // the betting bound on net shares pays for their range [−1, 1], twice the lost share's: here Hoeffding–Bentkus is
+      // tighter, and the search part's choice of form takes it
+      const bet = sceneDropBound(sharesOf(zero, zero, true), 0.05).bound;
+      expect(bet).toBeGreaterThan(1 - 0.05 ** (1 / n));
+      if (n > 10) expect(bet).toBeLessThan(sceneDropBound(sharesOf(zero.slice(0, n / 10), zero.slice(0, n / 10), true), 0.05).bound);
     }
   });
 
-  it('scenes needed: the bound reaches the promise there and not one scene before', () => {
-    const s = { n: 50, lost: 0.004, gained: 0.001, labelled: true };
-    const need = scenesNeeded(s, 0.02, 0.05)!;
-    expect(need).toBeGreaterThan(50);
-    expect(sceneDropBound({ ...s, n: need }, 0.05).bound).toBeLessThanOrEqual(0.02);
-    expect(sceneDropBound({ ...s, n: need - 1 }, 0.05).bound).toBeGreaterThan(0.02);
-    expect(scenesNeeded({ ...s, lost: 0.03 }, 0.02, 0.05)).toBeUndefined();
+  it('scenes needed: the bound on the scenes seen, repeated in order, reaches the promise there and not well before', () => {
+    const l = Array.from({ length: 50 }, (_, i) => (i % 10 === 0 ? 0.04 : 0)), g = Array.from({ length: 50 }, (_, i) => (i % 25 === 1 ? 0.02 : 0));
+    const s = sharesOf(l, g, true);
+    const rep = (k: number) => sharesOf(Array.from({ length: k }, (_, i) => l[i % 50]), Array.from({ length: k }, (_, i) => g[i % 50]), true);
+    for (const f of SCENE_FORMS.labelled) {
+      const need = scenesNeeded(s, 0.02, 0.05, f)!;
+      expect(need).toBeGreaterThan(50);
+      expect(sceneDropBound(rep(need), 0.05, f).bound).toBeLessThanOrEqual(0.02);
+      expect(sceneDropBound(rep(Math.floor(need * 0.99) - 1), 0.05, f).bound).toBeGreaterThan(0.02);
+    }
+    expect(scenesNeeded(sharesOf(l.map((x) => x * 10), g, true), 0.02, 0.05)).toBeUndefined();
   });
 });
 
@@ -87,10 +100,12 @@ describe('certified stream tuning', () => {
   const costs = syntheticCosts(2), reach = reachOf(costs, 2);
   const small = { kinds: ['difference'] as const, distances: ['js'] as const, grid: 6, refresh: [8, 32] };
 
-  it('keeps its promise on new recordings: over 200 draws, broken in at most 1 − C (plus slack)', () => {
+  it('keeps its promise on new recordings: over 200 draws at each of two promises, broken in at most 1 − C (plus slack)', () => {
     // each draw: a tuning recording of 160 scenes, then a new recording of 400 scenes from the same source;
     // broken = the chosen setting's drop on the new recording exceeds --max-drop (frame-weighted, and scene-averaged)
-    const C = 0.9, maxDrop = 6, draws = 200;
+    // at 6 points, and at 3, where the bound binds (fewer draws certify)
+    for (const maxDrop of [6, 3]) {
+    const C = 0.9, draws = 200;
     let brokenF = 0, brokenS = 0, certified = 0, saving = 0, worst = -Infinity;
     const fullPolicy: FramePolicy = { kind: 'confidence', thresholds: [null, null] };
     for (let d = 0; d < draws; d++) {
@@ -116,9 +131,9 @@ describe('certified stream tuning', () => {
     expect(brokenF / draws).toBeLessThanOrEqual(1 - C + slack);
     expect(brokenS / draws).toBeLessThanOrEqual(1 - C + slack);
     // not vacuous: most draws certify a stream setting that saves
-    expect(certified).toBeGreaterThan(draws * 0.8);
-    expect(saving / draws).toBeGreaterThan(0.3);
-  });
+    if (maxDrop === 6) { expect(certified).toBeGreaterThan(draws * 0.8); expect(saving / draws).toBeGreaterThan(0.3); }
+    }
+  }, 300_000);
 
   it('when data is short it keeps the full model and says how many scenes it would need', () => {
     const t = sceneStream({ scenes: 16, minLen: 10, maxLen: 30, seed: 4, exits: 2 });

@@ -204,8 +204,9 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     expect(t.drop).toBeLessThanOrEqual(0.5);
     expect(l.drop).toBeLessThanOrEqual(2.5);
     expect(loose.guarantee.certified).toBe(true);
-    // the honest price: well short of the uncertified saving (printed above), but a real one
-    expect(l.saving).toBeGreaterThan(0.2);
+    // the net shares bounded as one paired number per scene (betting bound), two chains of fixed sequences: about
+    // 78 % where bounding lost and gained shares apart, one sequence, certified about 70 % (issue 20)
+    expect(l.saving).toBeGreaterThan(0.72);
     // the certification part replayed alone through the staged runner, from a fresh stream: it spends what the tuner counted, refresh included
     const n = loose.split.tune;
     writeNpy(path.join(tmp, 'tail.npy'), long.x.slice(n * per), [long.F - n, 1, 28, 28]);

@@ -14,11 +14,16 @@
 // probability ≥ confidence, jointly, so any of them may be chosen: the cheapest
 // whose thresholds nudged one grid step cheaper still keep the drop within
 // maxDrop as observed (robustness; see `nudge`). When none does, the full model is kept and the result says so.
+//
+// With unlabelled rows (`--unlabelled`): they are split like the data's rows and both search parts search (an
+// unlabelled row's label is the full model's answer). The evidence is fixed by sizes alone: disagreement with the
+// full model on all certifying rows, or, with labels and fewer unlabelled rows than labelled ones, the paired drop
+// on the labels. Where disagreement bounds, labels change nothing: the run is the one without them.
 // Everything iterates in fixed orders: same cache, same result.
 import { OfframpError } from '../errors.js';
-import { decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
+import { argmax, decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } from '../policy/index.js';
 import { dropBound, fixedSequence, rowsNeeded, type AgreementCounts, type DropBound, type PairedCounts } from '../certify/index.js';
-import { reachOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
+import { reachOf, rowsOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
 import { discordant, patienceTable, preparePart, scoreTable, tally, type Discordant, type Part, type Table } from './evaluate.js';
 import type { Guarantee } from './guarantee.js';
 
@@ -264,6 +269,21 @@ function countsOf(labelled: boolean, n: number, d: Discordant, extra?: { n: numb
   return { paired: { n, lost: d.lost, gained: d.gained }, ...(extra && extra.n >= n ? { agreement } : {}) };
 }
 
+/**
+ * With unlabelled rows besides the data, which evidence bounds every setting: disagreement with the full model on
+ * all rows (labelled ones counted as unlabelled too: disagreement bounds the drop whatever the labels), or, where
+ * labelled rows outnumber the unlabelled ones, the paired drop on the labelled rows. The rule reads sizes only.
+ * Where disagreement bounds, the run is the run without labels on the same rows, setting for setting: labels
+ * cannot make it worse. Chosen on the search part per setting or per run, the form was tried and did worse on
+ * average over 200 synthetic draws (a form chosen on a few hundred search rows is chosen by luck).
+ */
+export type MixedForm = 'disagreement' | 'paired' | 'paired+disagreement';
+
+function mixedCounts(form: MixedForm, nl: number, dl: Discordant, nu: number, du: Discordant): { paired?: PairedCounts; agreement?: AgreementCounts } {
+  const paired = { n: nl, lost: dl.lost, gained: dl.gained }, agreement = { n: nl + nu, disagree: dl.disagree + du.disagree };
+  return form === 'paired' ? { paired } : form === 'disagreement' ? { agreement } : { paired, agreement };
+}
+
 /** The observed drop of some counts (what dropBound estimates), without computing a bound. */
 const observed = (o: { paired?: PairedCounts; agreement?: AgreementCounts }): number =>
   o.paired ? (o.paired.n ? (o.paired.lost - o.paired.gained) / o.paired.n : 0) : o.agreement!.n ? o.agreement!.disagree / o.agreement!.n : 0;
@@ -295,41 +315,56 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   if (u && (u.exits !== E || u.classes !== c.classes)) throw new OfframpError('data', `unlabelled rows have ${u.exits} exits and ${u.classes} classes, expected ${E} and ${c.classes}`);
   const reach = reachOf(costs, E);
   const parts = splitParts(c.samples, heldOut, 'interleave');
-  const tuneP = preparePart(c, parts.tune), heldP = preparePart(c, parts.held);
-  const extraP = u && u.samples ? preparePart(u, Int32Array.from({ length: u.samples }, (_, i) => i)) : undefined;
+  // Unlabelled rows besides the data (`mixed`): they are split like the data's rows; the search runs on both search
+  // parts (an unlabelled row's label is the full model's answer) and certification reads both certification parts,
+  // in the form the sizes fix (MixedForm): with labels and fewer unlabelled rows, the paired drop on the labels
+  const mixed = !!(u && u.samples >= 2);
+  const form: MixedForm | undefined = mixed ? (c.labelled && c.samples > u!.samples ? 'paired' : 'disagreement') : undefined;
+  const uParts = mixed ? splitParts(u!.samples, heldOut, 'interleave') : undefined;
+  // the search aims at what will certify: where unlabelled rows outnumber labelled ones the disagreement form
+  // usually bounds best, so it searches on agreement with the full model (as without labels); else on the labels
+  const searchCache = mixed ? concatRows(rowsOf(form === 'disagreement' ? asUnlabelled(c) : c, parts.tune), rowsOf(u!, uParts!.tune)) : c;
+  const tuneP = preparePart(searchCache, mixed ? Int32Array.from({ length: searchCache.samples }, (_, i) => i) : parts.tune), heldP = preparePart(c, parts.held);
+  const extraP = u && u.samples ? preparePart(u, mixed ? uParts!.held : Int32Array.from({ length: u.samples }, (_, i) => i)) : undefined;
   const fullPolicy = fullModel(E);
   const fullTh = new Float64Array(E).fill(Infinity);
   const fullSp: Space = { table: { s: new Float64Array(Math.max(tuneP.n, heldP.n) * Math.max(E, 4)).fill(-Infinity), stride: Math.max(E, 4) }, dc: 0 };
   const full: Point = { policy: fullPolicy, tune: evalOf(new Pool(tuneP, reach).eval(fullSp, fullTh, E), tuneP.n), held: evalOf(new Pool(heldP, reach).eval(fullSp, fullTh, E), heldP.n) };
 
   const risk = riskOn(tuneP, delta);
-  const searched = search(c, tuneP, reach, o.kinds ?? TUNE_KINDS, grid, o.budgetScore ?? 'confidence', risk);
+  const searched = search(searchCache, tuneP, reach, o.kinds ?? TUNE_KINDS, grid, o.budgetScore ?? 'confidence', risk);
   const settings = searched.reduce((a, s) => a + s.recs.length, 0);
 
   // Every front point on the certification part: its figures and its bound.
   const bound = boundMemo(delta);
-  const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space }>();
+  const certOf = new Map<Rec, { pt: Point; counts: ReturnType<typeof countsOf>; b: DropBound; s: Searched; sp: Space; xsp?: Space; heldCost: number }>();
   const kinds: KindResult[] = [];
+  // the counts a setting's bound reads on the certification part (in the form the sizes fix when mixed)
+  const countsAt = (sp: Space, xsp: Space | undefined, th: Float64Array, cap: number, form?: MixedForm) => form
+    ? mixedCounts(form, heldP.n, discordant(sp.table, heldP, th, cap), extraP!.n, discordant(xsp!.table, extraP!, th, cap))
+    : countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, th, cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, th, cap) });
+  // The fixed sequence's order: the merged front, cautious first, ordered by the search part alone.
+  const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < full.tune.meanMacs * tuneP.n);
   for (const s of searched) {
     const sp = s.k.space(c, heldP), xsp = extraP && s.k.space(u!, extraP);
-    const heldPool = new Pool(heldP, reach);
+    const heldPool = new Pool(heldP, reach), extraPool = mixed ? new Pool(extraP!, reach) : undefined;
     const points: Point[] = [];
     for (const r of s.front) {
       const h = heldPool.eval(sp, r.th, r.cap, false);
-      const counts = countsOf(c.labelled, heldP.n, discordant(sp.table, heldP, r.th, r.cap), xsp && { n: extraP!.n, d: discordant(xsp.table, extraP!, r.th, r.cap) });
+      // the cost compared when choosing: on every certifying row, unlabelled ones included
+      const heldCost = (h.cost + (extraPool ? extraPool.eval(xsp!, r.th, r.cap, false).cost : 0)) / (heldP.n + (mixed ? extraP!.n : 0));
+      const counts = countsAt(sp, xsp, r.th, r.cap, form);
       const b = bound(counts);
       const pt: Point = {
         policy: s.k.policy(r, reach, E, c.classes), tune: evalOf(r, tuneP.n), held: evalOf({ ...h, hist: h.hist.slice() }, heldP.n),
         cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
       };
       points.push(pt);
-      certOf.set(r, { pt, counts, b, s, sp, xsp });
+      certOf.set(r, { pt, counts, b, s, sp, xsp, heldCost });
     }
     kinds.push({ kind: s.k.kind, evaluated: s.recs.length, front: points, chosen: full });
   }
 
-  // The fixed sequence: the merged front, cautious first, ordered by the search part alone.
-  const ordered = riskFront(searched.flatMap((s) => s.front), risk).reverse().filter((r) => !isFull(r, E) && r.cost < full.tune.meanMacs * tuneP.n);
   const seq = fixedSequence(ordered, (r) => certOf.get(r)!.b.bound * 100 <= maxDrop);
   for (const r of seq.passed) Object.assign(certOf.get(r)!.pt.cert!, { tested: true, passed: true });
   if (seq.failed) certOf.get(seq.failed)!.pt.cert!.tested = true;
@@ -339,17 +374,17 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     const x = certOf.get(r)!;
     const nth = nudge(r, x.s.cands);
     if (!nth) return true;
-    const counts = countsOf(c.labelled, heldP.n, discordant(x.sp.table, heldP, nth, r.cap), x.xsp && { n: extraP!.n, d: discordant(x.xsp.table, extraP!, nth, r.cap) });
-    const nb = observed(counts) * 100;
+    const nb = observed(countsAt(x.sp, x.xsp, nth, r.cap, form)) * 100;
     x.pt.cert!.nudged = nb;
     return !robust || nb <= maxDrop;
   };
   const eligible = seq.passed.filter(ok);
-  let chosen: Point = full;
+  let chosen: Point = full, chosenCost = Infinity;
+  const kindCost = kinds.map(() => Infinity);
   for (const r of eligible) {
-    const x = certOf.get(r)!, kr = kinds[searched.indexOf(x.s)];
-    if (x.pt.held.meanMacs < chosen.held.meanMacs) chosen = x.pt;
-    if (x.pt.held.meanMacs < kr.chosen.held.meanMacs) kr.chosen = x.pt;
+    const x = certOf.get(r)!, ki = searched.indexOf(x.s);
+    if (x.heldCost < Math.min(chosenCost, full.held.meanMacs)) { chosen = x.pt; chosenCost = x.heldCost; }
+    if (x.heldCost < Math.min(kindCost[ki], full.held.meanMacs)) { kinds[ki].chosen = x.pt; kindCost[ki] = x.heldCost; }
   }
 
   const chosenRec = eligible.find((r) => certOf.get(r)!.pt === chosen);
@@ -357,11 +392,12 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const failed = seq.failed && certOf.get(seq.failed)!;
   const neededOf = (x: NonNullable<typeof failed>) => rowsNeeded(x.counts, maxDrop / 100, delta);
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
-  const method = cb ? cb.b.method : c.labelled ? (extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
+  const method = cb ? cb.b.method : form ?? (c.labelled ? 'paired' : 'disagreement');
+  const usesUnlabelled = !!extraP && method !== 'paired';
   const guarantee: Guarantee = {
-    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP && (!c.labelled || extraP.n >= heldP.n) ? extraP.n : 0,
+    confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: usesUnlabelled ? extraP!.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
-    method: `${METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
+    method: `${mixed && method === 'disagreement' ? `disagreement with the full model on ${c.labelled ? 'labelled and ' : ''}unlabelled rows (Clopper–Pearson)` : METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
     margin: maxDrop - (cb ? cb.b.bound * 100 : 0), tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
     ...(next?.needed !== undefined ? { needed: next.needed } : {}),
     ...(next ? { next } : {}),
@@ -369,13 +405,30 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
     assumes: [
       'new data comes from the same source as the tuning data, each sample an independent draw (for recordings in time order, tune with --stream)',
       c.labelled ? 'the labels are right' : 'accuracy is agreement with the full model; the bound on disagreement also bounds the drop in accuracy against true labels',
-      ...(extraP && (!c.labelled || extraP.n >= heldP.n) ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
+      ...(mixed && c.labelled && method === 'disagreement' ? ['accuracy is bounded through disagreement with the full model, which bounds the drop against true labels too'] : []),
+      ...(usesUnlabelled ? [`the unlabelled rows come from the same source and were not used for anything else${mixed ? ' (half of them search, the other half certify)' : ''}`] : []),
     ],
   };
   return {
     labelled: c.labelled, maxDrop, split: { mode: 'interleave', heldOut, tune: tuneP.n, held: heldP.n },
     reach: [...reach], full, kinds, chosen, settings, guarantee,
   };
+}
+
+/** The cache with the full model's answers as labels. */
+function asUnlabelled(c: ExitCache): ExitCache {
+  const E1 = c.exits + 1, labels = new Int32Array(c.samples);
+  for (let i = 0; i < c.samples; i++) labels[i] = argmax(c.logits, (i * E1 + c.exits) * c.classes, c.classes);
+  return { ...c, labels, labelled: false };
+}
+
+/** Two caches of the same exits and classes, rows of the first then the second (labels as each gives them). */
+function concatRows(a: ExitCache, b: ExitCache): ExitCache {
+  const logits = new Float32Array(a.logits.length + b.logits.length);
+  logits.set(a.logits); logits.set(b.logits, a.logits.length);
+  const labels = new Int32Array(a.samples + b.samples);
+  labels.set(a.labels); labels.set(b.labels, a.samples);
+  return { ...a, samples: a.samples + b.samples, logits, labels };
 }
 
 /**
