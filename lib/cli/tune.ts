@@ -1,5 +1,7 @@
 // `offramp tune DIR --data X.npy [--labels y.npy]`: capture every exit once,
 // search policies and thresholds on the cache, write the chosen one into the manifest.
+import fs from 'node:fs';
+import path from 'node:path';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
@@ -16,6 +18,9 @@ import { OfframpError, usageError } from '../errors.js';
 import { emit, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
+
+/** Files of a build folder that describe its manifest (split/commit.ts): a tuning leaves them as they were. */
+const DESCRIBING = ['report.html', 'report.json', 'firmware'];
 
 /** Threshold candidates per exit: the search grows with its square on two exits, so it is bounded. */
 export const MAX_GRID = 1024;
@@ -36,8 +41,9 @@ export function tuneCommand(program: Command): void {
     .option('--grid <n>', 'threshold candidates per exit', '32')
     .option('--report <file>', 'write a self-contained HTML report')
     .option('--json', 'machine-readable result (schema offramp-tune/2)')
+    .option('--verbose', 'also print the split, the method, the exit histogram and the fronts')
     .option('--no-write', 'leave the manifest as it is')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string }) => {
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; verbose?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
       const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
@@ -80,12 +86,14 @@ export function tuneCommand(program: Command): void {
           }, chain.manifest.stages));
           written = `${chain.dir}/manifest.json`;
         }
+        // A build's reports and firmware keep describing the manifest they were made for: say so, with the fix.
+        const stale = written ? DESCRIBING.map((f) => path.join(chain.dir, f)).filter((f) => fs.existsSync(f)) : [];
         const report: TuneReport = {
-          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written,
+          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, stale,
           stages: chain.manifest.stages.map((s) => ({ index: s.index, macs: s.macs, exits: s.exits })),
         };
         if (o.report) writeAtomic(o.report, tuneHtml(report));
-        emit(o.json ? tuneJson(report) : tuneText(report));
+        emit(o.json ? tuneJson(report) : tuneText(report, { verbose: o.verbose }));
       } finally { await chain.release(); }
     });
 }

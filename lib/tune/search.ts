@@ -20,7 +20,8 @@ import { decisionCost, fullModel, worstCase, type FramePolicy, type ScoreKind } 
 import { dropBound, fixedSequence, rowsNeeded, type AgreementCounts, type DropBound, type PairedCounts } from '../certify/index.js';
 import { reachOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
 import { discordant, patienceTable, preparePart, scoreTable, tally, type Discordant, type Part, type Table } from './evaluate.js';
-import type { Guarantee } from './guarantee.js';
+import { recordedGuarantee, type Guarantee } from './guarantee.js';
+import { roundNoise } from '../util/json.js';
 
 export type FrameKind = FramePolicy['kind'];
 export const TUNE_KINDS: readonly FrameKind[] = ['confidence', 'entropy', 'margin', 'patience', 'budget'];
@@ -320,7 +321,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
       const b = bound(counts);
       const pt: Point = {
         policy: s.k.policy(r, reach, E, c.classes), tune: evalOf(r, tuneP.n), held: evalOf({ ...h, hist: h.hist.slice() }, heldP.n),
-        cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
+        cert: { estimate: roundNoise(b.estimate * 100), bound: b.bound * 100, tested: false, passed: false },
       };
       points.push(pt);
       certOf.set(r, { pt, counts, b, s, sp, xsp });
@@ -358,7 +359,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const neededOf = (x: NonNullable<typeof failed>) => rowsNeeded(x.counts, maxDrop / 100, delta);
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
   const method = cb ? cb.b.method : c.labelled ? (extraP && extraP.n >= heldP.n ? 'paired+disagreement' : 'paired') : 'disagreement';
-  const guarantee: Guarantee = {
+  const guarantee: Guarantee = recordedGuarantee({
     confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: extraP && (!c.labelled || extraP.n >= heldP.n) ? extraP.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
     method: `${METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
@@ -371,7 +372,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
       c.labelled ? 'the labels are right' : 'accuracy is agreement with the full model; the bound on disagreement also bounds the drop in accuracy against true labels',
       ...(extraP && (!c.labelled || extraP.n >= heldP.n) ? ['the unlabelled rows come from the same source and were not used for anything else'] : []),
     ],
-  };
+  });
   return {
     labelled: c.labelled, maxDrop, split: { mode: 'interleave', heldOut, tune: tuneP.n, held: heldP.n },
     reach: [...reach], full, kinds, chosen, settings, guarantee,

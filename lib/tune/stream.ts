@@ -14,7 +14,8 @@ import { sceneDropBound, scenesNeeded, type SceneShares } from '../certify/scene
 import { chainFor, DISTANCES, distance, fullModel, isStream, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
-import type { Guarantee } from './guarantee.js';
+import { recordedGuarantee, type Guarantee } from './guarantee.js';
+import { roundNoise } from '../util/json.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
 
 export interface StreamEval extends Eval { scenes: number; reused: number }
@@ -185,7 +186,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const last = cheapest(seq.passed);
 
   // a point's own bound (it passes only when its bolder neighbour's passes too)
-  const boundOf = (r: Rec) => { const [b] = bounds(r); return { estimate: b.estimate * 100, bound: b.bound * 100 }; };
+  const boundOf = (r: Rec) => { const [b] = bounds(r); return { estimate: roundNoise(b.estimate * 100), bound: b.bound * 100 }; };
   const passedSet = new Set(seq.passed), testedSet = new Set([...seq.passed, ...(seq.failed ? [seq.failed] : [])]);
   const pointOf = (r: Rec): Point<StreamPolicy> => ({ policy: r.policy, tune: r.e, held: certify(r).e, cert: { ...boundOf(r), tested: testedSet.has(r), passed: passedSet.has(r) } });
   const kinds: KindResult<StreamPolicy>[] = kindList.map((kind) => {
@@ -205,7 +206,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   if (!last) for (const r of fr) { const n = need(r); if (n !== undefined && (needed === undefined || n < needed)) { needed = n; nextRec = r; } }
   const next = nextRec && { policy: nextRec.policy, ...boundOf(nextRec), ...(needed !== undefined && { needed }) };
   const b = last ? bounds(last)[0] : undefined;
-  const guarantee: Guarantee = {
+  const guarantee: Guarantee = recordedGuarantee({
     confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
     estimate: b ? b.estimate * 100 : 0, bound: b ? b.bound * 100 : 0,
     method: b ? `${b.method}, fixed-sequence over the front` : 'the full model (nothing cheaper certified)',
@@ -213,7 +214,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     tested: seq.passed.length + (seq.failed ? 1 : 0), passed: seq.passed.length,
     ...(needed !== undefined && { needed }), ...(next && { next }),
     assumes: [...STREAM_ASSUMES, `scenes from ${sc.source}: ${tuneScenes} searched, ${heldScenes} certified`],
-  };
+  });
   return {
     labelled: c.labelled, maxDrop, split: { mode: 'tail', heldOut, tune: parts.tune.length, held: parts.held.length }, reach: [...reach],
     full: fullPt, kinds, chosen, settings: recs.length, guarantee, scenes: { source: sc.source, tune: tuneScenes, held: heldScenes },
