@@ -16,7 +16,7 @@ import { checkOutDir } from '../util/fsx.js';
 interface BuildFlags {
   data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head: string;
   seed: string; json?: boolean; target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string;
-  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean; confidence: string; unlabelled?: string;
+  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean; verbose?: boolean; confidence: string; unlabelled?: string;
 }
 
 /** Sets of up to `exits` exits out of `candidates` cuts: what build tunes one by one. */
@@ -47,6 +47,7 @@ export function buildCommand(program: Command): void {
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
     .option('--json', 'print the report as JSON (schema offramp-build/2)')
+    .option('--verbose', 'also print the cuts, the method, the stage files and the budget per precision with how each figure is counted')
     .action(modelAction(async (file: string, o: BuildFlags) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
@@ -72,7 +73,7 @@ export function buildCommand(program: Command): void {
         describe: (b) => [{ name: 'report.json', data: buildJson(b) }, { name: 'report.html', data: buildHtml(b) }],
       });
       const json = buildJson(r);
-      emit(o.json ? json : buildText(r) + `\ngrafted    ${r.model} (stage files and model are named by their content)\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
+      emit(o.json ? json : buildText(r, { verbose: o.verbose }));
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
     }));
 }

@@ -7,7 +7,7 @@ import type { Eval, Point, PointBound, TuneResult } from '../tune/search.js';
 import type { Guarantee } from '../tune/guarantee.js';
 import type { Policy } from '../policy/policy.js';
 import { si, table, toJson } from './units.js';
-import { clean, count, exitLabel, points, promiseSentence } from './words.js';
+import { count, dropWords, exitLabel, promiseSentence } from './words.js';
 
 export const TUNE_SCHEMA = 'offramp-tune/2';
 
@@ -71,8 +71,6 @@ function thin<T>(xs: T[], n: number, keep: (x: T) => boolean = () => false): T[]
 /** A setting that never leaves early: every threshold null on a score policy. */
 export const isFull = (p: Policy) => ['confidence', 'entropy', 'margin'].includes(p.kind) && p.thresholds.every((x) => x === null);
 
-/** A drop in words; a negative one is a gain. */
-export const dropWords = (x: number) => (x < 0 ? `${points(-x)} better` : `drop ${points(x)}`);
 
 /** "exit-0 47.4 %, exit-1 15.2 %, final 30.7 %": where the frames leave the chain, on one line. */
 export const leavesLine = (names: string[], share: number[]) => share.map((s, k) => `${exitLabel(names, k)} ${pct(s, 1)}`).join(', ');

@@ -35,5 +35,5 @@ export function promiseSentence(g: Guarantee, against = 'the full model'): strin
     `(certified on ${count(g.evidence, g.unit)}${g.unlabelled ? ` and ${count(g.unlabelled, 'unlabelled rows')}` : ''}: bound ${points(g.bound)})`;
 }
 
-/** Rounds away binary floating-point noise from a figure derived from counts (a share, or points from shares). */
-export const clean = (x: number) => (Number.isFinite(x) ? Number(x.toPrecision(12)) : x);
+/** A drop in words; a negative one is a gain. */
+export const dropWords = (x: number) => (x < 0 ? `${points(-x)} better` : `drop ${points(x)}`);
