@@ -1,5 +1,8 @@
 // `offramp check DIR --against MODEL`: the chain computes what the model does.
 import fs from 'node:fs';
+import path from 'node:path';
+import { createHash } from 'node:crypto';
+import type { Manifest } from '../split/manifest.js';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { checkAgreement, checkChain, npySamples, randomSamples } from '../run/check.js';
@@ -7,25 +10,35 @@ import { table, toJson } from '../report/units.js';
 import { OfframpError, usageError } from '../errors.js';
 import { collect, emit, parseNumber } from './common.js';
 
+/** The model a manifest names as its source, when its bytes are still the ones recorded; else a usage error asking for --against. */
+function sourceModel(dir: string, m: Manifest): string {
+  const file = path.join(dir, m.source.file);
+  let same = false;
+  try { same = createHash('sha256').update(fs.readFileSync(file)).digest('hex') === m.source.sha256; } catch { same = false; }
+  if (!same) throw usageError(`${file}: the source model the manifest names is missing or changed since the split; give --against MODEL`);
+  return file;
+}
+
 const num = (x: number) => (x === 0 ? '0' : x.toExponential(2));
 
 export function checkCommand(program: Command): void {
   program.command('check')
     .description('run the model and the split chain on the same inputs and compare every output')
     .argument('<dir>', 'split folder (or its manifest.json)')
-    .requiredOption('--against <model>', 'the source ONNX model')
+    .option('--against <model>', 'the source ONNX model (default: the model the manifest names as its source, if it is still there unchanged)')
     .option('--data <file>', '.npy inputs, [N, ...]; NAME=FILE per input for several (repeatable)', collect, [])
     .option('--samples <n>', 'samples to run', '4')
     .option('--seed <n>', 'seed of the random inputs', '1')
     .option('--rtol <x>', 'relative tolerance for float outputs (integers must be exact)', '1e-5')
     .option('--min-agreement <share>', 'quantized chains: least share of samples whose top-1 class matches the model (0 reports only)', '0')
     .option('--json', 'machine-readable result')
-    .action(async (dir: string, o: { against: string; data: string[]; samples: string; seed: string; rtol: string; minAgreement: string; json?: boolean }) => {
+    .action(async (dir: string, o: { against?: string; data: string[]; samples: string; seed: string; rtol: string; minAgreement: string; json?: boolean }) => {
       const n = parseNumber(o.samples, '--samples', { int: true, min: 1, max: 1_000_000 });
       const rtol = parseNumber(o.rtol, '--rtol', { min: 0 }), seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
       const minAgreement = parseNumber(o.minAgreement, '--min-agreement', { min: 0, max: 1 });
       const chain = await loadChain(dir);
       try {
+        const against = o.against ?? sourceModel(chain.dir, chain.manifest);
         const inputs = chain.manifest.inputs;
         let samples;
         if (o.data.length) {
@@ -42,24 +55,24 @@ export function checkCommand(program: Command): void {
         const source = o.data.length ? 'data' : `random seed ${seed}`;
         if (chain.manifest.quantization) {
           // An int8 chain is judged as a classifier: top-1 agreement and the largest logit error, not float tolerance.
-          const q = await checkAgreement(chain, o.against, samples, minAgreement);
+          const q = await checkAgreement(chain, against, samples, minAgreement);
           if (o.json) emit(toJson({ schema: 'offramp-check/1', quantized: true, ...q, source }) + '\n');
           else {
             const rows = q.outputs.map((a) => [a.name, `${a.agree}/${a.samples}`, `${(a.agreement * 100).toFixed(2)} %`, num(a.maxAbs), a.maxSteps === undefined ? '-' : a.maxSteps.toFixed(1), a.ok ? 'ok' : `FAIL${a.note ? ` (${a.note})` : ''}`]);
             emit(`${q.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), int8 chain: top-1 agreement with the model${minAgreement ? `, at least ${(minAgreement * 100).toFixed(2)} %` : ''}\n\n` +
               `${table(['output', 'same top-1', 'agreement', 'max abs', 'int8 steps', 'result'], rows)}\n`);
           }
-          if (!q.ok) throw new OfframpError('runtime', `the int8 chain agrees with ${o.against} on less than ${(minAgreement * 100).toFixed(2)} % of samples, or an output is missing`, dir);
+          if (!q.ok) throw new OfframpError('runtime', `the int8 chain agrees with ${against} on less than ${(minAgreement * 100).toFixed(2)} % of samples, or an output is missing`, dir);
           return;
         }
-        const r = await checkChain(chain, o.against, samples, { rtol });
+        const r = await checkChain(chain, against, samples, { rtol });
         if (o.json) emit(toJson({ schema: 'offramp-check/1', ...r, rtol, source }) + '\n');
         else {
           const rows = r.diffs.map((d) => [d.name, d.dtype, String(d.elements), num(d.maxAbs), num(d.maxRel), String(d.mismatched), d.ok ? 'ok' : `FAIL${d.note ? ` (${d.note})` : ''}`]);
           emit(`${r.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), float rtol ${o.rtol}, integers exact\n\n` +
             `${table(['output', 'dtype', 'elements', 'max abs', 'max rel', 'over', 'result'], rows)}\n`);
         }
-        if (!r.ok) throw new OfframpError('runtime', `the chain differs from ${o.against} beyond tolerance`, dir);
+        if (!r.ok) throw new OfframpError('runtime', `the chain differs from ${against} beyond tolerance`, dir);
       } finally { await chain.release(); }
     });
 }

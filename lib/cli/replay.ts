@@ -5,7 +5,8 @@ import { loadChain } from '../run/chain.js';
 import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
 import { replay, withDrop, type ReplayResult } from '../tune/replay.js';
 import { argmax } from '../policy/index.js';
-import { checkPolicy, type Policy } from '../policy/policy.js';
+import { checkPolicy, isStream, type Policy } from '../policy/policy.js';
+import { exitLabel, FINAL } from '../report/words.js';
 import { si, table, toJson } from '../report/units.js';
 import { OfframpError } from '../errors.js';
 import { emit } from './common.js';
@@ -27,18 +28,20 @@ function readPolicy(v: string): unknown {
 export const replayCsv = (r: ReplayResult): string => {
   const withTruth = r.frames.some((f) => f.truth !== undefined);
   const head = ['frame', 'exit', 'exit_index', 'macs', 'label', 'scene', 'reused', ...(withTruth ? ['truth', 'correct'] : [])];
-  return [head.join(','), ...r.frames.map((f) => [f.frame, f.exitName, f.exit, f.macs, f.label, f.scene, f.reused ? 1 : 0, ...(withTruth ? [f.truth, f.truth === f.label ? 1 : 0] : [])].join(','))].join('\n') + '\n';
+  return [head.join(','), ...r.frames.map((f) => [f.frame, f.exit === r.exits.length - 1 ? FINAL : f.exitName, f.exit, f.macs, f.label, f.scene, f.reused ? 1 : 0, ...(withTruth ? [f.truth, f.truth === f.label ? 1 : 0] : [])].join(','))].join('\n') + '\n';
 };
 
 function replayText(r: ReplayResult): string {
   const s = r.summary;
   const pct = (x: number) => `${(x * 100).toFixed(2)} %`;
+  const stream = isStream(r.policy);
   return [
     `policy: ${JSON.stringify(r.policy)}`,
     '',
-    table(['frames', 'accuracy', 'mean MACs', 'full MACs', 'saving', 'scenes', 'reused'], [[String(s.frames), s.accuracy === undefined ? '-' : pct(s.accuracy), si(s.meanMacs), si(s.fullMacs), pct(s.saving), String(s.scenes), pct(s.reusedShare)]]),
+    // scenes and reuse belong to stream policies; a per-frame policy starts a scene on every frame
+    table(['frames', 'accuracy', 'mean MACs', 'full MACs', 'saving', ...(stream ? ['scenes', 'reused'] : [])], [[String(s.frames), s.accuracy === undefined ? '-' : pct(s.accuracy), si(s.meanMacs), si(s.fullMacs), pct(s.saving), ...(stream ? [String(s.scenes), pct(s.reusedShare)] : [])]]),
     '',
-    table(['exit', 'share'], s.exitShare.map((x, k) => [r.exits[k], pct(x)])),
+    table(['exit', 'share'], s.exitShare.map((x, k) => [exitLabel(r.exits, k), pct(x)])),
     ...(s.drop === undefined ? [] : ['', `observed drop ${s.drop.toFixed(2)} pp against the full model (${pct(s.fullAccuracy!)}) on these frames` +
       (s.promise ? `; promised ≤ ${s.promise.maxDrop} pp at ${+(s.promise.confidence * 100).toFixed(4)} % confidence: ${s.promise.kept ? 'kept' : 'BROKEN'}` : '')]),
   ].join('\n') + '\n';

@@ -14,7 +14,7 @@ import type { Guarantee } from '../certify/guarantee.js';
 
 export const BUILD_SCHEMA = 'offramp-build/2';
 
-const pct = (x: number, d = 1) => `${(x * 100).toFixed(d)}%`;
+const pct = (x: number, d = 1) => `${(x * 100).toFixed(d)} %`;
 const num = (x: number | null) => (x === null ? '-' : Number(x.toPrecision(4)).toString());
 
 export function policyText(p: Policy): string {
@@ -199,7 +199,7 @@ export function buildHtml(r: BuildResult): string {
   const e2e = q && h.labelled && h.samples === d.samples ? ` Against the float model (${pct(h.fullAccuracy, 2)}): ${dropWords(roundNoise((h.fullAccuracy - d.accuracy) * 100))}, quantization included (observed on the same samples).` : '';
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>offramp build: ${esc(r.dir)}</title>
-<style>body{font-family:sans-serif;max-width:1080px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}td:first-child,th:first-child{text-align:left}code{font-size:90%}.verdict{font-size:120%;font-weight:bold}.over{color:#b00}.promise{font-weight:bold}</style>
+<style>body{font-family:sans-serif;max-width:1080px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right;white-space:nowrap}td:first-child,th:first-child{text-align:left}code{font-size:90%}.verdict{font-size:120%;font-weight:bold}.over{color:#b00}.promise{font-weight:bold}</style>
 </head><body data-chain="${chain}">
 <h1>Early exits for <code>${esc(path.basename(r.source))}</code></h1>
 <p class="verdict ${b && !b.fits ? 'over' : ''}">${b ? (b.fits ? 'Every stage fits the target.' : `Over budget: ${esc(b.over.map((o) => `stage ${o.stage} ${o.resource} by ${bytes(-o.margin)}`).join('; '))}.`) : 'No target given: stages are not judged.'}</p>
