@@ -50,6 +50,23 @@ describe('offramp build', () => {
     expect(j.heldOut.exitShare.reduce((a: number, b: number) => a + b, 0)).toBeCloseTo(1, 9);
     expect(JSON.parse(fs.readFileSync(path.join(out, 'report.json'), 'utf8'))).toEqual(j);
   });
+  it('prints what a person reads first: the result, the promise in one sentence, the next command, on one screen', () => {
+    const out = path.join(dir, 't');
+    const r = offramp(['build', MODEL, '--data', x, '--labels', y, '--max-drop', '5', '--target', 'm4f', '-o', out]);
+    expect(r.code, r.stderr).toBe(0);
+    const lines = r.stdout.trimEnd().split('\n');
+    expect(lines.length).toBeLessThanOrEqual(25);
+    expect(lines[0]).toMatch(/^built      .*: \d+ exits? .*\d+ stages; the stages compute what the grafted model does/);
+    expect(lines[1]).toMatch(/^chosen     .*MACs per sample on average instead of .*, \d+\.\d % saved$/);
+    expect(r.stdout).toMatch(/^promise    on new data like this, accuracy drops by at most 5 points against the full model, with 95 % confidence \(certified on \d+ samples: bound \d+\.\d\d points\)$/m);
+    expect(r.stdout).toMatch(new RegExp(`^next       offramp replay ${out.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')} --data `, 'm'));
+    // one name for the final output, and no conventions block by default
+    expect(r.stdout).toMatch(/ final /);
+    expect(r.stdout).not.toMatch(/\(final\)|figures    weights/);
+    const v = offramp(['build', MODEL, '--data', x, '--labels', y, '--max-drop', '5', '--target', 'm4f', '-o', path.join(dir, 'tv'), '--verbose']);
+    expect(v.stdout).toMatch(/^figures    weights: bytes as stored/m);
+    expect(v.stdout).toMatch(/fixed-sequence testing over \d+ front settings/);
+  });
   it('gives byte-identical files for the same inputs', () => {
     const a = path.join(dir, 'a'), b = path.join(dir, 'b');
     offramp(['build', MODEL, '--data', x, '--labels', y, '--max-drop', '5', '--target', 'm4f', '-o', b, '--json']);
@@ -86,8 +103,8 @@ describe('offramp build', () => {
     const r = offramp(['build', MODEL, '--data', tiny, '--labels', tinyY, '-o', path.join(dir, 'tiny')]);
     expect(r.code).toBe(0);
     const lines = r.stdout.split('\n');
-    expect(lines.filter((l) => l.includes('not certified'))).toHaveLength(1);
-    expect(r.stdout).toMatch(/MACs .* 0\.0% saved/);
+    expect(lines.filter((l) => l.startsWith('promise    no promise: '))).toHaveLength(1);
+    expect(r.stdout).toMatch(/^chosen     the full model on every sample .*no early exit could be certified$/m);
     const j = JSON.parse(fs.readFileSync(path.join(dir, 'tiny', 'report.json'), 'utf8'));
     expect(j.guarantee.certified).toBe(false);
     expect(j.heldOut.meanMacs).toBe(j.heldOut.fullMacs);
