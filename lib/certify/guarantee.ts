@@ -38,11 +38,11 @@ export interface Guarantee {
   assumes: string[];
 }
 
-/** The guarantee as recorded: observed drops and margins made from shares lose their floating-point noise. */
+/** The guarantee as recorded: observed drops (differences of measured shares) lose their floating-point noise; bounds stay as computed. */
 export function recordedGuarantee(g: Guarantee): Guarantee {
   const r = (x: number) => roundNoise(x);
   return {
-    ...g, estimate: r(g.estimate), margin: r(g.margin),
+    ...g, estimate: r(g.estimate),
     ...(g.nudged !== undefined && { nudged: r(g.nudged) }),
     ...(g.next && { next: { ...g.next, estimate: r(g.next.estimate) } }),
   };
