@@ -79,7 +79,7 @@ describe('build --int8', () => {
     const html = fs.readFileSync(path.join(out, 'report.html'), 'utf8');
     // the page describes the int8 chain: its promise in words, its method, and the float chain's beside it
     expect(html).toContain('data-chain="int8"');
-    expect(html.match(/<b>promise: drop ≤ 100 pp/g)).toHaveLength(1);
+    expect(html.match(/How it is certified: drop ≤ 100 pp/g)).toHaveLength(1);
     expect(html).toContain('accuracy drops by at most 100 points against the full int8 chain');
     expect(html).toContain('accuracy drops by at most 100 points against the full model');
     for (const st of m.stages) expect(html).toContain(st.file);

@@ -87,9 +87,9 @@ export function buildJson(r: BuildResult): string {
 const promiseText = (g: Guarantee | null): string[] =>
   g ? guaranteeLines(g, policyText).map((l, i) => (i ? '           ' + l.trim() : `promise    ${l.replace(/^promise: /, '')}`)) : [];
 
-/** The same for the HTML page: the first line bold. */
+/** The same for the HTML page, in the method's words (the plain sentence heads the page). */
 const promiseHtml = (g: Guarantee | null): string =>
-  g ? `<b>${esc(guaranteeLines(g, policyText)[0])}</b>${guaranteeLines(g, policyText).slice(1).map((l) => ` ${esc(l.trim())}`).join('')}.` : '';
+  g ? `<span class="method">How it is certified: ${esc(guaranteeLines(g, policyText).map((l) => l.trim().replace(/^promise: /, '')).join('; '))}.</span>` : '';
 
 /** The long form of the build (every figure), behind --verbose: cuts, methods, stage files, the budget per precision. */
 function buildDetail(r: BuildResult): string[] {
