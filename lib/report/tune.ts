@@ -68,6 +68,12 @@ function thin<T>(xs: T[], n: number, keep: (x: T) => boolean = () => false): T[]
   return [...pick].sort((a, b) => a - b).map((i) => xs[i]);
 }
 
+/** The chosen setting in words: its kind once, then its thresholds. */
+const chosenName = (p: Policy, stream: boolean) => {
+  const st = settingText(p);
+  return stream ? `${p.kind} stream policy (${st})` : st.startsWith(p.kind) ? st : `${p.kind} (${st})`;
+};
+
 /** A setting that never leaves early: every threshold null on a score policy. */
 export const isFull = (p: Policy) => ['confidence', 'entropy', 'margin'].includes(p.kind) && p.thresholds.every((x) => x === null);
 
@@ -87,7 +93,7 @@ export function tuneText(t: TuneReport, o: { verbose?: boolean; frontRows?: numb
   const r = t.result, full = r.full.held, c = r.chosen.held, unit = t.stream ? 'frame' : 'sample';
   const early = !isFull(r.chosen.policy);
   const out: string[] = [
-    early ? `chosen     ${r.chosen.policy.kind}${t.stream ? ' stream policy' : ''} (${settingText(r.chosen.policy)}): ${si(c.meanMacs)} MACs per ${unit} instead of ${si(full.meanMacs)}, ${saving(full, c)} saved`
+    early ? `chosen     ${chosenName(r.chosen.policy, t.stream)}: ${si(c.meanMacs)} MACs per ${unit} instead of ${si(full.meanMacs)}, ${saving(full, c)} saved`
       : `chosen     the full model on every ${unit} (${si(full.meanMacs)} MACs): no early exit could be certified`,
     `accuracy   ${pct(c.accuracy)} vs ${pct(full.accuracy)} for the full model (${dropWords(+drop(full, c))}) on the ${count(r.split.held, t.stream ? 'frames' : 'samples')} that certify${r.labelled ? '' : ' (agreement with the full model: no labels)'}`,
   ];
