@@ -31,7 +31,7 @@ describe('offramp build', () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
-    expect(j.schema).toBe('offramp-build/2');
+    expect(j.schema).toBe('offramp-build/3');
     expect(j.exits.length).toBeGreaterThan(0);
     expect(j.guarantee.certified).toBe(true);
     expect(j.guarantee.bound).toBeLessThanOrEqual(5);

@@ -46,7 +46,7 @@ export function buildCommand(program: Command): void {
     .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G', 'linear')
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
-    .option('--json', 'print the report as JSON (schema offramp-build/2)')
+    .option('--json', 'print the report as JSON (schema offramp-build/3)')
     .option('--verbose', 'also print the cuts, the method, the stage files and the budget per precision with how each figure is counted')
     .action(modelAction(async (file: string, o: BuildFlags) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });

@@ -12,7 +12,8 @@ import { MANIFEST_FILE, type ManifestPolicy } from '../split/manifest.js';
 import { frontSeries, guaranteeLines } from './tune.js';
 import type { Guarantee } from '../certify/guarantee.js';
 
-export const BUILD_SCHEMA = 'offramp-build/2';
+/** /3: as /2 plus `int8.againstFloat`, the deployed int8 chain set against the float model. */
+export const BUILD_SCHEMA = 'offramp-build/3';
 
 const pct = (x: number, d = 1) => `${(x * 100).toFixed(d)} %`;
 const num = (x: number | null) => (x === null ? '-' : Number(x.toPrecision(4)).toString());
@@ -75,6 +76,11 @@ function int8Summary(r: BuildResult) {
     heldOut: heldOutOf(t),
     guarantee: q.policy.guarantee ?? null,
     agreement: q.agreement.outputs.map((a) => ({ output: a.name, samples: a.samples, agreement: a.agreement, maxAbs: a.maxAbs })),
+    // The deployed chain against the model the engineer trained, quantization included: observed on the
+    // certification rows both chains were tuned with (labelled builds only), not certified.
+    againstFloat: r.policy.tuned.labelled && t.labelled && r.policy.tuned.samples === t.samples
+      ? { samples: t.samples, accuracy: t.accuracy, floatAccuracy: r.policy.tuned.fullAccuracy, dropPoints: roundNoise((r.policy.tuned.fullAccuracy - t.accuracy) * 100) }
+      : null,
     stages: q.manifest.stages.map((st) => ({ file: st.file, weightBytes: st.weightBytes, peakActivationBytes: st.peakActivationBytes, arenaBytes: st.arenaBytes ?? null, handoverBytes: st.handoverBytes })),
   };
 }
@@ -143,7 +149,7 @@ export function buildText(r: BuildResult, o: { verbose?: boolean } = {}): string
     ? `chosen     ${policyText(policy)}: ${si(Math.round(d.meanMacs))} MACs per sample on average instead of ${si(d.fullMacs)}, ${pct(d.saving)} saved${q ? ` (float32 chain: ${pct(h.saving)})` : ''}`
     : `chosen     the full model on every sample (${si(d.fullMacs)} MACs): no early exit could be certified`);
   lines.push(`accuracy   ${pct(d.accuracy, 2)} vs ${pct(d.fullAccuracy, 2)} for ${full} (${dropWords(d.dropPoints)})` +
-    (q && h.labelled && h.samples === d.samples ? `, vs ${pct(h.fullAccuracy, 2)} for the float model (${dropWords(roundNoise((h.fullAccuracy - d.accuracy) * 100))}, quantization included)` : '') +
+    (q?.againstFloat ? `, vs ${pct(q.againstFloat.floatAccuracy, 2)} for the float model (${dropWords(q.againstFloat.dropPoints)}, quantization included)` : '') +
     ` on ${d.samples} held-out samples${d.labelled ? '' : ' (agreement with its own answers: no labels)'}`);
   if (g) lines.push(`promise    ${promiseSentence(g, full)}`);
   const b = r.budget;
@@ -196,7 +202,7 @@ export function buildHtml(r: BuildResult): string {
   const chain = q ? 'int8' : 'float32';
   const full = q ? 'the full int8 chain' : 'the full model';
   const g = q ? q.guarantee : s.guarantee;
-  const e2e = q && h.labelled && h.samples === d.samples ? ` Against the float model (${pct(h.fullAccuracy, 2)}): ${dropWords(roundNoise((h.fullAccuracy - d.accuracy) * 100))}, quantization included (observed on the same samples).` : '';
+  const e2e = q?.againstFloat ? ` Against the float model (${pct(q.againstFloat.floatAccuracy, 2)}): ${dropWords(q.againstFloat.dropPoints)}, quantization included (observed on the same samples).` : '';
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>offramp build: ${esc(r.dir)}</title>
 <style>body{font-family:sans-serif;max-width:1080px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right;white-space:nowrap}td:first-child,th:first-child{text-align:left}code{font-size:90%}.verdict{font-size:120%;font-weight:bold}.over{color:#b00}.promise{font-weight:bold}</style>
