@@ -6,6 +6,10 @@ import os from 'node:os';
 import path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import type { ChainBench, ChainPair } from './chain.js';
+import type { ConvBench } from './measure.js';
+import type { FirmwareBench } from './firmware.js';
+import { BUILTIN_TARGETS, FROM_MEMORY_RATES, ratioText } from '../lib/chip/target.js';
+import { readMeasuredRates } from '../lib/chip/rates.js';
 
 const CHILD = path.join(path.dirname(fileURLToPath(import.meta.url)), 'child.js');
 
@@ -66,8 +70,52 @@ async function parent(): Promise<void> {
 arena plan (EfficientNet-B0, ${ar.values} activations)`);
     line('whole model', `${ar.wholeMs.toFixed(2)} ms`, `target < 50 ms: ratio ${(ar.wholeMs / 50).toFixed(2)} (${ar.wholeMethod})`);
     line(`third quarter, ${ar.partValues} values`, `${ar.partMs.toFixed(2)} ms`, `target < 50 ms: ratio ${(ar.partMs / 50).toFixed(2)} (${ar.partMethod})`);
+    measureSection();
+    firmwareSection();
   } finally {
     fs.rmSync(dir, { recursive: true, force: true });
+  }
+}
+
+// Exact instruction counts on the emulated cores (bench/measure.ts). A single-issue core (M4) needs at
+// least one cycle per instruction, so MACs per instruction bounds its MACs per cycle from above; the
+// dual-issue M7 can at most double it.
+function measureSection(): void {
+  const r = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'measure.js')], { encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(`bench measure failed: ${r.stderr}`);
+  const got = JSON.parse(r.stdout) as ConvBench[] | { skipped: string };
+  console.log('\nplain C 3×3 convolutions on the emulated cores (16×16×8 → 14×14×16, gcc -O2; exact instruction counts)');
+  if (!Array.isArray(got)) { console.log(`  skipped: ${got.skipped}`); return; }
+  const rates = readMeasuredRates();
+  for (const c of got) {
+    const t = BUILTIN_TARGETS[c.core]!;
+    const old = FROM_MEMORY_RATES[c.core]!, r = rates.cores[c.core];
+    line(`${c.core} int8: instructions per MAC`, `${c.perMac.toFixed(3)}`, `${c.instructions} for ${c.macs} MACs; ${(1 / c.perMac).toFixed(3)} MAC/instruction`);
+    line(`${c.core} float32: instructions per MAC`, `${c.floatPerMac.toFixed(3)}`, `${c.floatInstructions} for ${c.macs} MACs; ${(1 / c.floatPerMac).toFixed(3)} MAC/instruction`);
+    line(`${c.core} profile rates (MAC/cycle)`, `${ratioText(t.int8MacsPerCycle)} / ${ratioText(t.macsPerCycle)}`,
+      `int8 / float32, measured (whole int8 networks ${r.int8.instructionsPerMac}/MAC, the float conv ${r.float32.instructionsPerMac}/MAC, at ${r.cyclesPerInstruction} cycles per instruction, estimated); from memory they were ${old.int8} / ${old.float}`);
+  }
+  const m4 = got.find((c) => c.core === 'm4f')!;
+  line('one measurement, m4f: build', `${m4.buildMs.toFixed(0)} ms`, 'compile and link with the harness');
+  line('one measurement, m4f: QEMU run', `${m4.runMs.toFixed(0)} ms`, `1 frame; ${m4.frameMs.toFixed(2)} ms per more frame`);
+  line('emulated instructions / s', `${(m4.emulatedPerSec / 1e6).toFixed(0)} M`, 'with the counter plugin on');
+}
+
+// The whole int8 network as emit-c writes it (bench/firmware.ts).
+function firmwareSection(): void {
+  const r = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'firmware.js')], { encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(`bench firmware failed: ${r.stderr}`);
+  const got = JSON.parse(r.stdout.trim().split('\n').pop()!) as FirmwareBench[] | { skipped: string };
+  console.log('\nint8 firmware (emit-c on a quantized folder; exact instruction counts on the emulated cores, the whole network per frame)');
+  if (!Array.isArray(got)) { console.log(`  skipped: ${got.skipped}`); return; }
+  for (const b of got) {
+    console.log(`${b.model}: ${(b.macs / 1e6).toFixed(2)} M MACs, ${b.classes} classes`);
+    for (const c of b.cores) {
+      const goal = b.model.startsWith('Fashion') && c.core === 'm4f';
+      line(`${c.core}: instructions per MAC`, c.fullPerMac.toFixed(3), goal ? `goal ≤ 2.5: ratio ${(c.fullPerMac / 2.5).toFixed(2)}` : `${c.fullPerFrame} per frame; with the policy ${c.policyPerFrame}`);
+      line(`${c.core}: decision instructions per frame`, c.decisionPerFrame.toFixed(0), `${c.decisionsPerFrame.toFixed(2)} decisions per frame${goal ? `; goal ≤ 1500: ratio ${(c.decisionPerFrame / 1500).toFixed(2)}` : ''}`);
+    }
+    if (b.host) line('host gcc -O2 / onnxruntime QDQ, per frame', `${b.host.firmwareUsPerFrame.toFixed(1)} µs`, `onnxruntime ${b.host.onnxruntimeUsPerFrame.toFixed(1)} µs: ratio ${b.host.ratio.toFixed(2)} (${b.host.frames} frames, best of 3; the firmware's time includes its process start)`);
   }
 }
 

@@ -23,8 +23,10 @@ export { costJson, costText, costMarkdown, COST_SCHEMA } from './report/cost.js'
 export { OfframpError, type ErrorKind } from './errors.js';
 export { VERSION } from './version.js';
 export { memoryOrder, memoryOrderOf, reorderModel, reorderGraph, type MemoryOrder, type StageOrder, type MemoryOrderOptions } from './cost/reorder.js';
-export { parseBytes, readTargetFile, targetFromJson, resolveTarget, BUILTIN_TARGETS, type Target, type TargetOptions, type Ratio } from './chip/target.js';
-export { budgetOf, checkBudget, stageFootprints, CONVENTIONS as BUDGET_CONVENTIONS, type Budget, type StageBudget, type StageFootprint, type Footprint, type Fit, type Over, type Precision } from './chip/budget.js';
+export { parseBytes, readTargetFile, targetFromJson, resolveTarget, BUILTIN_TARGETS, FROM_MEMORY_RATES, type Target, type TargetOptions, type Ratio, type RateBasis } from './chip/target.js';
+export { readMeasuredRates, macsPerCycleText, RATES_SCHEMA, type MeasuredRates } from './chip/rates.js';
+export { measuredBudget, cyclesOfInstructions, type MeasuredBudget, type MeasuredFigures } from './chip/measured.js';
+export { budgetOf, checkBudget, stageFootprints, CONVENTIONS as BUDGET_CONVENTIONS, type Budget, type StageBudget, type StageFootprint, type Footprint, type Fit, type Over, type Precision, type LatencyBasis } from './chip/budget.js';
 export { budgetText, budgetMarkdown, reorderText, reorderMarkdown } from './report/budget.js';
 export { scanModel, planCuts, rankCuts, cutsAtFractions, resolveCut, type Cut, type CutPlan } from './cuts/scan.js';
 export { exitOutputs, exitCuts } from './cuts/exits.js';

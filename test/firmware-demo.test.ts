@@ -11,9 +11,13 @@ import path from 'node:path';
 import { offramp } from './helpers/cli.js';
 import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureDevice } from '../lib/measure/device.js';
 import { GCC, compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
 
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the firmware tests need it under CI');
+const EMU = toolchainStatus().ready;
+if (!EMU && process.env.CI) throw new Error(`the emulated Cortex-M tests need the toolchain under CI: ${toolchainStatus().message}`);
 const MODEL = path.resolve(import.meta.dirname, '../models-demo/fan-monitor.onnx');
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-fw-demo-'));
 const f = (n: string) => path.join(tmp, n);
@@ -24,13 +28,14 @@ beforeAll(() => {
   const c = samples(3000, 202), v = samples(2000, 303);
   writeNpy(f('x.npy'), c.x, [3000, 1, BINS, FRAMES]); writeNpy(f('y.npy'), c.y, [3000]);
   val = v.x;
-  const r = offramp(['build', MODEL, '--data', f('x.npy'), '--labels', f('y.npy'), '--head', 'grid:4', '--target', 'm4f', '--int8', '-o', f('b')]);
+  // with the emulator, the build measures its int8 firmware too (build --measure)
+  const r = offramp(['build', MODEL, '--data', f('x.npy'), '--labels', f('y.npy'), '--head', 'grid:4', '--target', 'm4f', '--int8', ...(EMU ? ['--measure', '--measure-rows', '40'] : []), '-o', f('b')]);
   if (r.code !== 0) throw new Error(r.stderr);
   const e = offramp(['emit-c', f('b/int8'), '-o', f('fw')]);
   if (e.code !== 0) throw new Error(e.stderr);
-});
+}, 600_000);
 
-describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
+describe.skipIf(!GCC)('int8 firmware of the demo model', { timeout: 600_000 }, () => {
   it('is a self-contained C99 library: no double, no libm, no malloc', () => {
     const names = fs.readdirSync(f('fw'));
     expect(names).toContain('offramp_model.h');
@@ -66,4 +71,40 @@ describe.skipIf(!GCC)('int8 firmware of the demo model', () => {
     expect(Math.max(...o.steps.keys())).toBeLessThanOrEqual(1);
     expect(agree).toBeGreaterThanOrEqual(0.995);
   });
+});
+
+describe.skipIf(!EMU)('int8 firmware of the demo model on emulated Cortex-M cores', { timeout: 600_000 }, () => {
+  it('build --measure leads its report with the device figures: the policy against the whole network, measured on the emulated m4f', async () => {
+    const j = JSON.parse(fs.readFileSync(f('b/report.json'), 'utf8'));
+    const d = j.device;
+    expect(d.schema).toBe('offramp-measure/1');
+    expect(d.core).toBe('m4f');
+    expect(d.frames).toBe(40);
+    expect(d.answers.equalToReference).toBe(40);
+    expect(d.basis.clockMhz).toBe(80);   // the target's clock
+    expect(d.perFrame.policyMicroseconds).toBeCloseTo((d.perFrame.policy * d.basis.cyclesPerInstruction) / 80, 0);
+    // the same firmware measured by the command on the same rows: the same exact counts
+    const again = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core: 'm4f', rows: 40, clockMhz: 80 });
+    expect(again.perFrame).toEqual(d.perFrame);
+    expect(again.stages).toEqual(d.stages);
+    expect(fs.readFileSync(f('b/report.html'), 'utf8')).toContain('On the device (emulated m4f)');
+  });
+
+  for (const core of ['m4f', 'm7', 'm55']) {
+    it(`${core}: every answer equal to the TypeScript reference (the DSP kernels where the core has them); exact, repeatable counts`, async () => {
+      const r = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core, rows: 60 });
+      expect(r.answers.equalToReference).toBe(r.frames);
+      expect(r.frames).toBe(60);
+      // whole-network frames run every stage: their instructions equal the stages' sum plus the input and the final argmax
+      const stageSum = r.stages.reduce((a, s) => a + s.instructions, 0);
+      expect(r.perFrame.full).toBeGreaterThan(stageSum);
+      expect(r.perFrame.full).toBeLessThan(stageSum * 1.05);
+      expect(r.perFrame.policy).toBeLessThan(r.perFrame.full);
+      console.log(`demo int8 firmware on ${core}: ${r.perFrame.policy} instructions per frame with the policy, ${r.perFrame.full} whole network (${(r.perFrame.savedShare * 100).toFixed(1)} % saved); per MAC by stage ${r.stages.map((s) => s.instructionsPerMac.toFixed(2)).join(' / ')}; flash ${r.flash.libraryBytes} B, RAM ${r.ram.libraryBytes} B + stack ${r.ram.stackPeakBytes} B; ${r.answers.equalToOnnxruntime}/${r.frames} equal to onnxruntime`);
+      if (core === 'm4f') {
+        const again = await measureDevice({ dir: f('b/int8'), data: f('x.npy'), labels: f('y.npy'), core, rows: 60 });
+        expect(JSON.stringify(again)).toBe(JSON.stringify(r));
+      }
+    });
+  }
 });

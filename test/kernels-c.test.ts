@@ -17,6 +17,12 @@ import { netTables } from '../lib/firmware/tables.js';
 import { firmwareSourceDirs } from '../lib/firmware/write.js';
 import type { Program, Step, Tensor8 } from '../lib/firmware/program.js';
 import { GCC, CFLAGS } from './helpers/firmware.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureFirmware } from '../lib/measure/measure.js';
+import { cString } from '../lib/emit/c.js';
+
+const EMU = toolchainStatus().ready;
+if (!EMU && process.env.CI) throw new Error(`the emulated kernel tests need the toolchain under CI: ${toolchainStatus().message}`);
 
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the kernel tests need it under CI');
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-kernels-'));
@@ -98,7 +104,7 @@ function reference(s: Step, x: Int8Array): Int8Array {
   return y;
 }
 
-describe.skipIf(!GCC)('C kernels against the TypeScript reference', () => {
+describe.skipIf(!GCC)('C kernels against the TypeScript reference', { timeout: 600_000 }, () => {
   it('conv (2-D, 1-D, grouped, depthwise), dense, max and average pooling, rescale: every output byte equal', () => {
     const steps: Step[] = [];
     for (let j = 0; j < 60; j++) steps.push(convStep(j, false, false));
@@ -128,15 +134,39 @@ describe.skipIf(!GCC)('C kernels against the TypeScript reference', () => {
     const input = Buffer.concat(xs.flatMap((x) => [Buffer.from(Int32Array.of(x.length).buffer), Buffer.from(x.buffer)]));
     const run = spawnSync(exe, { input, maxBuffer: 1 << 26 });
     expect(run.status).toBe(0);
-    let at = 0, bad = 0;
     const out = new Int8Array(run.stdout.buffer, run.stdout.byteOffset, run.stdout.length);
+    expect(compare(steps, xs, out)).toBe(0);
+    console.log(`C kernels: ${steps.length} random cases (${steps.filter((s) => s.kind === 'conv').length} conv, ${steps.filter((s) => s.kind === 'dense').length} dense, ${steps.filter((s) => s.kind.endsWith('pool')).length} pool, ${steps.filter((s) => s.kind === 'rescale').length} rescale), ${out.length} output bytes, all equal to the TypeScript reference`);
+    built = { dir, steps, xs, input };
+  });
+
+  it.skipIf(!EMU)('the same cases through the DSP path (SXTB16/SMLAD) on the emulated m4f and m55: every output byte equal', async () => {
+    expect(built).toBeDefined();
+    const { dir, steps, xs, input } = built!;
+    const [kern, fw] = firmwareSourceDirs();
+    const file = path.join(dir, 'input.bin');
+    fs.writeFileSync(file, input);
+    // the host driver reads stdin; under semihosting the cases come from a host file and go out as hex
+    const driver = `#include <stdio.h>\n#include "offramp_net.h"\nextern const char cases[];\nint main(void) {\n  int32_t j, n, i;\n  const offramp_stage_program_t *st = &offramp_net_stages[0];\n  FILE *f = fopen(cases, "rb");\n  if (!f) return 2;\n  for (j = 0; j < st->count; j++) {\n    if (fread(&n, sizeof n, 1, f) != 1) return 3;\n    if (n > 0 && fread((int8_t *)st->steps[j].x, 1, (size_t)n, f) != (size_t)n) return 4;\n  }\n  for (j = 0; j < st->count; j++) {\n    offramp_stage_program_t one;\n    one.steps = &st->steps[j];\n    one.count = 1;\n    offramp_run_steps(&one);\n    for (i = 0; i < one.steps->bytes; i++) printf("%02x", (unsigned)(uint8_t)one.steps->y[i]);\n  }\n  return 0;\n}\nconst char cases[] = ${cString(file)};\n`;
+    for (const core of ['m4f', 'm55']) {
+      const m = await measureFirmware({ core, sources: [path.join(dir, 'offramp_net.c'), path.join(fw, 'offramp_run.c'), ...fs.readdirSync(kern).filter((f) => f.endsWith('.c')).map((f) => path.join(kern, f))], rowsC: driver, includeDirs: [dir, kern, fw], trace: false });
+      expect(m.exitCode, m.stderr).toBe(0);
+      const out = Int8Array.from(Buffer.from(m.stdout.trim(), 'hex'));
+      expect(compare(steps, xs, out), core).toBe(0);
+      console.log(`C kernels on ${core} (DSP extension): ${steps.length} random cases, ${out.length} output bytes, all equal to the TypeScript reference`);
+    }
+  });
+});
+
+let built: { dir: string; steps: Step[]; xs: Int8Array[]; input: Buffer } | undefined;
+
+/** Cases whose output differs from the reference (printed). */
+function compare(steps: Step[], xs: Int8Array[], out: Int8Array): number {
+    let at = 0, bad = 0;
     steps.forEach((s, j) => {
       const want = reference(s, xs[j]), got = out.subarray(at, at + want.length);
       at += want.length;
       if (!want.every((v, i) => v === got[i])) { bad++; console.log(`step ${j} (${s.kind}) differs: ${JSON.stringify({ ...s.p, weight: undefined, bias: undefined, mul: undefined })}`); }
     });
-    expect(at).toBe(out.length);
-    expect(bad).toBe(0);
-    console.log(`C kernels: ${steps.length} random cases (${steps.filter((s) => s.kind === 'conv').length} conv, ${steps.filter((s) => s.kind === 'dense').length} dense, ${steps.filter((s) => s.kind.endsWith('pool')).length} pool, ${steps.filter((s) => s.kind === 'rescale').length} rescale), ${out.length} output bytes, all equal to the TypeScript reference`);
-  });
-});
+    return at === out.length ? bad : bad + 1;
+}

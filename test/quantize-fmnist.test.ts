@@ -19,10 +19,13 @@ import { chainFor, runFrame, type FramePolicy } from '../lib/policy/policy.js';
 import { offramp } from './helpers/cli.js';
 import { folderProblems } from './helpers/folder-check.js';
 import { loadFmnist, requireFmnist } from './helpers/fmnist.js';
+import { toolchainStatus } from '../lib/measure/toolchain.js';
+import { measureDevice } from '../lib/measure/device.js';
 import { compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
 
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
 const GCC = spawnSync('gcc', ['--version']).status === 0;
+if (!toolchainStatus().ready && process.env.CI) throw new Error(`the emulated Cortex-M checks need the toolchain under CI: ${toolchainStatus().message}`);
 const have = requireFmnist();
 const per = 28 * 28;
 const CUTS = ['/b1/b1.2/MaxPool_output_0', '/b2/b2.2/MaxPool_output_0'];
@@ -170,11 +173,11 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     expect(fs.existsSync(f('fw/offramp_model.h'))).toBe(true);
     compileFirmware(f('fw'), f('fw.exe'));
     const { program, manifest, reach, outputs } = loadProgram(f('q'));
-    const few = test.images.subarray(0, 100 * per);
+    const few = test.images.subarray(0, 50 * per);
     const c = firmwareTensors(f('fw.exe'), few), t = referenceTensors(program, few);
     expect(c.length).toBe(t.length);
     expect(c.equals(t)).toBe(true);
-    const some = test.images.subarray(0, 400 * per);
+    const some = test.images.subarray(0, 200 * per);
     const fa = firmwareAnswers(f('fw.exe'), some), ta = referenceAnswers(program, manifest.policy!.rule, reach, some);
     expect(Array.from(fa.label)).toEqual(Array.from(ta.label));
     expect(Array.from(fa.exit)).toEqual(Array.from(ta.exit));
@@ -182,9 +185,17 @@ describe.skipIf(!have)('quantize the Fashion-MNIST CNN', () => {
     const o = await againstOrt(f('q'), program, outputs, manifest.policy!.rule, reach, test.images, all);
     const agree = 1 - o.differ.length / o.frames;
     const right = all.label.filter((l, i) => l === test.labels[i]).length / o.frames;
-    console.log(`Fashion-MNIST int8 firmware (gcc): ${t.length} int8 values of 100 test images bit for bit equal to the reference, 400 answers equal; vs onnxruntime on ${o.frames} test images: int8 logits ${histogram(o.steps)}; label and exit equal on ${(agree * 100).toFixed(2)} %; firmware top-1 ${(right * 100).toFixed(2)} %`
+    console.log(`Fashion-MNIST int8 firmware (gcc): ${t.length} int8 values of 50 test images bit for bit equal to the reference, 200 answers equal; vs onnxruntime on ${o.frames} test images: int8 logits ${histogram(o.steps)}; label and exit equal on ${(agree * 100).toFixed(2)} %; firmware top-1 ${(right * 100).toFixed(2)} %`
       + (o.differ.length ? `; differ at ${o.differ.slice(0, 5).map((d) => `#${d.frame} (label, exit) ${d.firmware} vs ${d.ort}`).join(', ')} (a logit a step apart near a threshold: the fixed-point requantization against onnxruntime's float one)` : ''));
     expect(agree).toBeGreaterThanOrEqual(0.995);
+  }, 600_000);
+
+  it.skipIf(!toolchainStatus().ready)('on the emulated m4f, m7 and m55 the firmware answers as the TypeScript reference does', { timeout: 600_000 }, async () => {
+    for (const core of ['m4f', 'm7', 'm55']) {
+      const r = await measureDevice({ dir: f('q'), data: f('test.npy'), labels: f('test_y.npy'), core, rows: 24 });
+      expect(r.answers.equalToReference, core).toBe(24);
+      console.log(`Fashion-MNIST int8 firmware on ${core}: ${(r.perFrame.full / r.stages.reduce((a, s) => a + s.macs, 0)).toFixed(2)} instructions per MAC for the whole network, ${r.perFrame.policy} per frame with the policy (${(r.perFrame.savedShare * 100).toFixed(1)} % saved); ${r.answers.equalToOnnxruntime}/24 equal to onnxruntime`);
+    }
   });
 
   it('build --int8: the policy tuned on the int8 chain, its firmware, the int8 files judged as stored', () => {

@@ -6,7 +6,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { spawnSync } from 'node:child_process';
-import { quantizeMultiplier, requantize } from '../lib/kernels/requant.js';
+import { mulInitializer, quantizeMultiplier, requantize } from '../lib/kernels/requant.js';
 import { firmwareSourceDirs } from '../lib/firmware/write.js';
 
 const cases = JSON.parse(fs.readFileSync('test/fixtures/requant/cases.json', 'utf8')) as {
@@ -30,7 +30,7 @@ describe('fixed-point requantization against the NumPy reference', () => {
   it.skipIf(!GCC)('offramp_requant.h gives the same integers', () => {
     const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-requant-'));
     try {
-      const rows = cases.requantize.map((c) => `{ ${c.acc === -2147483648 ? '(-2147483647 - 1)' : c.acc}, { ${c.mult}, ${c.shift} } }`);
+      const rows = cases.requantize.map((c) => `{ ${c.acc === -2147483648 ? '(-2147483647 - 1)' : c.acc}, ${mulInitializer(c)} }`);
       const src = `#include <stdio.h>\n#include "offramp_requant.h"\ntypedef struct { int32_t acc; offramp_mul_t m; } row_t;\nstatic const row_t rows[] = {\n${rows.join(',\n')}\n};\nint main(void) { unsigned i; for (i = 0; i < sizeof rows / sizeof rows[0]; i++) printf("%ld\\n", (long)offramp_requantize(rows[i].acc, rows[i].m)); return 0; }\n`;
       fs.writeFileSync(path.join(tmp, 'main.c'), src);
       const exe = path.join(tmp, 'main');

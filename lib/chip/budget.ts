@@ -12,7 +12,7 @@ import { numel } from '../ops/rule.js';
 import { dtypeByName, dtypeInfo } from '../onnx/dtype.js';
 import { tensorDims, elementCount } from '../onnx/tensor.js';
 import { attrsOf } from '../ops/attrs.js';
-import type { Ratio, Target } from './target.js';
+import type { RateBasis, Ratio, Target } from './target.js';
 
 /** Conventions of the figures, printed with every budget so nobody has to guess them. */
 export const CONVENTIONS = [
@@ -21,6 +21,7 @@ export const CONVENTIONS = [
   `RAM: the stage's arena (an offset for every value of the stage on its own: what it reads from earlier stages, makes and hands on; greedy by size, by breadth, or squeaky-wheel rounds over them, ${ARENA_ALIGN}-byte offsets; at least its peak activation), plus the handover buffers alive while it runs (each value crossing the boundary before or after it, once), which firmware reusing one arena for every stage keeps apart from the arena`,
   'int8 activations: 1 byte per floating-point element; integer tensors stay as stored',
   'latency: cycles = ceil(MACs / macs-per-cycle), time = cycles / clock; other arithmetic, data movement and interpreter overhead are not counted',
+  'latency basis: "projected from the measured rate" where the MAC rate was measured on the emulated core (the built-in m4f, m7, m55: instructions per MAC counted exactly, cycles at an estimated cycles per instruction), "from memory" where it was not (m0plus, or a rate given in an option or profile file); cost --measured adds "measured" latencies, from the firmware\'s own instructions',
   'QDQ files as stored: a Conv/Gemm/MatMul between DequantizeLinear and QuantizeLinear runs int8 MACs (int8 rate) and its float tensors are held as int8; dequantized weights are weights, not activations',
   'flash holds weights only: code, interpreter and constants of the firmware come on top',
 ];
@@ -42,16 +43,20 @@ export interface StageFootprint {
 
 export type Precision = 'stored' | 'int8';
 export interface Fit { need: bigint; limit: bigint; margin: bigint; marginPercent: number; fits: boolean }
+/** What a latency is: counted on the emulated core (cost --measured), MACs over a measured rate, or over a rate not measured. */
+export type LatencyBasis = 'measured' | 'projected from the measured rate' | 'from memory';
 export interface StageCheck {
   weightBytes: bigint; peakBytes: bigint; arenaBytes: bigint; handoverBytes: bigint;
   flash: Fit; ram: Fit;
   cycles: bigint; latencyNs: bigint; cumulativeNs: bigint;
+  /** where latencyNs and cumulativeNs come from */
+  latencyBasis: LatencyBasis;
   fits: boolean;
 }
 export interface StageBudget { index: number; cut: string; macs: bigint; stored: StageCheck; int8: StageCheck; fits: boolean }
 export interface Over { stage: number | 'all'; cut: string; resource: 'flash' | 'ram'; precision: Precision; need: bigint; limit: bigint; margin: bigint; marginPercent: number }
 export interface Budget {
-  target: { name: string; flashBytes: bigint; ramBytes: bigint; clockMhz: number; macsPerCycle: number; int8MacsPerCycle: number; rough: boolean; note?: string };
+  target: { name: string; flashBytes: bigint; ramBytes: bigint; clockMhz: number; macsPerCycle: number; int8MacsPerCycle: number; rough: boolean; note?: string; rateBasis: { float: RateBasis; int8: RateBasis } };
   /** which projection decides the verdict (and the exit code) */
   gate: Precision;
   stages: StageBudget[];
@@ -162,6 +167,8 @@ export const nanosFor = (cycles: bigint, mhz: Ratio): bigint => ceilDiv(cycles *
 const ratioNumber = (r: Ratio) => Number(r.num) / Number(r.den);
 
 export function checkBudget(stages: StageFootprint[], t: Target, gate: Precision = 'stored'): Budget {
+  const rates = t.rateBasis ?? { float: 'from memory', int8: 'from memory' };
+  const projected = (...b: RateBasis[]): LatencyBasis => (b.every((x) => x === 'measured') ? 'projected from the measured rate' : 'from memory');
   const check = (s: StageFootprint, p: Precision, before: bigint): StageCheck => {
     const f = s[p];
     const handoverBytes = f.handoverInBytes + f.handoverOutBytes;
@@ -170,7 +177,8 @@ export function checkBudget(stages: StageFootprint[], t: Target, gate: Precision
     const i8 = s.int8Macs ?? 0n;
     const cycles = p === 'stored' ? cyclesFor(s.macs - i8, t.macsPerCycle) + (i8 ? cyclesFor(i8, t.int8MacsPerCycle) : 0n) : cyclesFor(s.macs, t.int8MacsPerCycle);
     const latencyNs = nanosFor(cycles, t.clockMhz);
-    return { weightBytes: f.weightBytes, peakBytes: f.peakBytes, arenaBytes: f.arenaBytes, handoverBytes, flash, ram, cycles, latencyNs, cumulativeNs: before + latencyNs, fits: flash.fits && ram.fits };
+    const latencyBasis = p === 'int8' || i8 === s.macs ? projected(rates.int8) : i8 ? projected(rates.float, rates.int8) : projected(rates.float);
+    return { weightBytes: f.weightBytes, peakBytes: f.peakBytes, arenaBytes: f.arenaBytes, handoverBytes, flash, ram, cycles, latencyNs, cumulativeNs: before + latencyNs, latencyBasis, fits: flash.fits && ram.fits };
   };
   const out: StageBudget[] = [];
   let sumS = 0n, sum8 = 0n;
@@ -194,7 +202,7 @@ export function checkBudget(stages: StageFootprint[], t: Target, gate: Precision
   return {
     target: {
       name: t.name ?? 'custom', flashBytes: t.flashBytes, ramBytes: t.ramBytes, clockMhz: ratioNumber(t.clockMhz),
-      macsPerCycle: ratioNumber(t.macsPerCycle), int8MacsPerCycle: ratioNumber(t.int8MacsPerCycle), rough: !!t.rough, ...(t.note && { note: t.note }),
+      macsPerCycle: ratioNumber(t.macsPerCycle), int8MacsPerCycle: ratioNumber(t.int8MacsPerCycle), rough: !!t.rough, ...(t.note && { note: t.note }), rateBasis: { ...rates },
     },
     gate, stages: out, all, fits: over.length === 0, over, conventions: CONVENTIONS,
   };

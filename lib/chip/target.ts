@@ -4,6 +4,7 @@ import fs from 'node:fs';
 import { OfframpError } from '../errors.js';
 import { readRegular } from '../util/fsx.js';
 import { parseJsonText } from '../util/json.js';
+import { readMeasuredRates, type RatedCore } from './rates.js';
 
 /** A decimal number held exactly: value = num / den. */
 export interface Ratio { num: bigint; den: bigint }
@@ -17,10 +18,13 @@ export interface Target {
   macsPerCycle: Ratio;
   /** MACs per cycle for the int8 projection (kernels with packed 8-bit arithmetic); defaults to macsPerCycle */
   int8MacsPerCycle: Ratio;
-  /** figures are rough, from memory (the built-in profiles) */
+  /** some figures are typical values, from memory or estimated (the built-in profiles: flash, RAM, clock; the cycles per instruction) */
   rough?: boolean;
   note?: string;
+  /** where each MAC rate comes from: measured on the emulated core (lib/chip/measured-rates.json), or not (from memory, or the user's figure); absent: neither is measured */
+  rateBasis?: { float: RateBasis; int8: RateBasis };
 }
+export type RateBasis = 'measured' | 'from memory';
 
 export interface TargetOptions {
   target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string; int8MacsPerCycle?: string;
@@ -80,27 +84,41 @@ export function ratioText(r: Ratio): string {
 }
 
 /*
- * Built-in profiles by core class. ROUGH FIGURES, FROM MEMORY: a typical part of each class, not any product.
- * Throughput counts whole MACs including operand loads in a plain kernel, not the core's peak issue rate:
- * float32 on a core without FPU goes through software floating point (tens of cycles per MAC); int8 uses the
- * 32-bit multiplier, dual 16-bit MAC instructions (DSP extension) or 128-bit vectors (M-profile vector extension).
+ * Built-in profiles by core class: a typical part of each class, not any product. Flash, RAM and clock are
+ * ROUGH FIGURES, FROM MEMORY. The MAC rates of m4f, m7 and m55 are measured (lib/chip/measured-rates.json,
+ * scripts/measure-rates.ts): instructions per MAC counted exactly on the emulated core, int8 with the
+ * project's own firmware kernels on whole networks, float32 with a plain C convolution (the firmware has no
+ * float kernels), turned into MACs per cycle with an estimated cycles-per-instruction figure. QEMU has no
+ * Cortex-M0+ machine, so m0plus keeps rates from memory (float32 in software: tens of cycles per MAC).
  * Give your part's figures with --flash/--ram/--clock-mhz/--macs-per-cycle or a profile file.
  */
-const P = (name: string, flash: string, ram: string, mhz: string, r: string, r8: string, note: string): Target => ({
-  name, flashBytes: parseBytes(flash), ramBytes: parseBytes(ram), clockMhz: parseRatio(mhz),
-  macsPerCycle: parseRatio(r), int8MacsPerCycle: parseRatio(r8), rough: true, note,
-});
-/** The built-in chip profiles by name: rough figures from memory, marked `rough`. */
-export const BUILTIN_TARGETS: Record<string, Target> = {
-  // Cortex-M0+ class: no FPU, no DSP; float32 in software.
-  m0plus: P('m0plus', '256KiB', '32KiB', '48', '0.02', '0.25', 'M0+ class, no FPU: software float32'),
-  // Cortex-M4 with single-precision FPU: fused MAC plus loads; int8 via dual 16-bit MACs.
-  m4f: P('m4f', '1MiB', '256KiB', '80', '0.5', '1', 'M4 class with FPU and DSP extension'),
-  // Cortex-M7: dual issue, caches/TCM; roughly twice the M4 per cycle.
-  m7: P('m7', '2MiB', '512KiB', '400', '1', '2', 'M7 class, dual issue, FPU'),
-  // Cortex-M55 with the M-profile vector extension: 128-bit beats, 4 float32 or 16 int8 lanes, half-rate in practice.
-  m55: P('m55', '2MiB', '1MiB', '200', '2', '8', 'M55 class with the M-profile vector extension'),
+/** The rates the profiles carried before they were measured (float32, int8 MAC/cycle), from memory; m0plus still uses its own. */
+export const FROM_MEMORY_RATES: Readonly<Record<string, { float: string; int8: string }>> = {
+  m0plus: { float: '0.02', int8: '0.25' }, m4f: { float: '0.5', int8: '1' }, m7: { float: '1', int8: '2' }, m55: { float: '2', int8: '8' },
 };
+const CLASS: Record<string, [flash: string, ram: string, mhz: string, what: string]> = {
+  m0plus: ['256KiB', '32KiB', '48', 'M0+ class, no FPU: software float32'],
+  m4f: ['1MiB', '256KiB', '80', 'M4 class with FPU and DSP extension'],
+  m7: ['2MiB', '512KiB', '400', 'M7 class, dual issue, FPU'],
+  m55: ['2MiB', '1MiB', '200', 'M55 class with the M-profile vector extension'],
+};
+function profile(name: string): Target {
+  const [flash, ram, mhz, what] = CLASS[name];
+  const base = { name, flashBytes: parseBytes(flash), ramBytes: parseBytes(ram), clockMhz: parseRatio(mhz), rough: true };
+  if (name === 'm0plus') {
+    const m = FROM_MEMORY_RATES.m0plus;
+    return { ...base, macsPerCycle: parseRatio(m.float), int8MacsPerCycle: parseRatio(m.int8), rateBasis: { float: 'from memory', int8: 'from memory' },
+      note: `${what}; QEMU has no Cortex-M0+ machine, so every figure is from memory, MAC rates included` };
+  }
+  const r = readMeasuredRates().cores[name as RatedCore];
+  return {
+    ...base, macsPerCycle: parseRatio(r.float32.macsPerCycle), int8MacsPerCycle: parseRatio(r.int8.macsPerCycle), rateBasis: { float: 'measured', int8: 'measured' },
+    note: `${what}; MAC rates measured on the emulated core (int8 ${r.int8.instructionsPerMac} instructions per MAC, the project's firmware on ${r.int8.from}; `
+      + `float32 ${r.float32.instructionsPerMac}, a plain C convolution: the firmware has no float kernels) at an estimated ${r.cyclesPerInstruction} cycles per instruction; flash, RAM and clock a typical part's, from memory`,
+  };
+}
+/** The built-in chip profiles by name, marked `rough`: flash, RAM and clock from memory; rates measured except m0plus's (`rateBasis`). */
+export const BUILTIN_TARGETS: Record<string, Target> = Object.fromEntries(Object.keys(CLASS).map((n) => [n, profile(n)]));
 
 const FIELDS = ['name', 'flashBytes', 'ramBytes', 'clockMhz', 'macsPerCycle', 'int8MacsPerCycle', 'rough', 'note'] as const;
 
@@ -164,6 +182,10 @@ export function resolveTarget(o: TargetOptions): Target | undefined {
   const missing = ([['flashBytes', '--flash'], ['ramBytes', '--ram'], ['clockMhz', '--clock-mhz'], ['macsPerCycle', '--macs-per-cycle']] as const)
     .filter(([k]) => t[k] === undefined).map(([, opt]) => opt);
   if (missing.length) throw bad(`a target needs ${missing.join(', ')} (or --target FILE|${Object.keys(BUILTIN_TARGETS).join('|')})`);
-  // Overriding a figure of a built-in profile leaves the rest rough; the mark stays.
-  return { ...t, int8MacsPerCycle: t.int8MacsPerCycle ?? t.macsPerCycle } as Target;
+  // Overriding a figure of a built-in profile leaves the rest rough; the mark stays. A rate given replaces a measured one.
+  const basis = t.rateBasis && {
+    float: o.macsPerCycle !== undefined ? 'from memory' as const : t.rateBasis.float,
+    int8: o.int8MacsPerCycle !== undefined || (o.macsPerCycle !== undefined && t.int8MacsPerCycle === undefined) ? 'from memory' as const : t.rateBasis.int8,
+  };
+  return { ...t, int8MacsPerCycle: t.int8MacsPerCycle ?? t.macsPerCycle, ...(basis && { rateBasis: basis }) } as Target;
 }

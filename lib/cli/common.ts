@@ -16,7 +16,14 @@ export interface NumberRange {
   above?: boolean;
   /** max itself is not allowed */
   below?: boolean;
+  /** why the range is what it is, said with the refusal */
+  why?: string;
 }
+
+/** --confidence: below even odds a promise says nothing; 1 itself no finite data can certify. */
+export const CONFIDENCE_RANGE: NumberRange = { min: 0.5, max: 1, below: true, why: 'a promise held with less than even odds promises nothing, and no finite data certifies 1' };
+/** --held-out: both parts, the searching and the certifying one, need rows of their own. */
+export const HELD_OUT_RANGE: NumberRange = { min: 0.05, max: 0.95, why: 'the search and the certification each need at least a twentieth of the rows' };
 
 const DECIMAL = /^[+-]?(\d+\.?\d*|\.\d+)(e[+-]?\d+)?$/i;
 
@@ -34,7 +41,7 @@ export function parseNumber(v: string | undefined, option: string, r: NumberRang
   const lo = r.min === undefined ? '' : `${r.above ? 'above' : 'from'} ${r.min}`;
   const hi = r.max === undefined ? '' : `${r.below ? 'below' : 'up to'} ${r.max}`;
   const range = [lo, hi].filter(Boolean).join(' ');
-  throw usageError(`${option} takes ${r.int ? 'a whole number' : 'a number'}${range ? ` ${range}` : ''}, not '${v ?? ''}'`);
+  throw usageError(`${option} takes ${r.int ? 'a whole number' : 'a number'}${range ? ` ${range}` : ''}, not '${v ?? ''}'${r.why ? `: ${r.why}` : ''}`);
 }
 
 /** --batch: the value of a symbolic leading input dim. */

@@ -12,19 +12,22 @@ import { resolveTarget } from '../chip/target.js';
 import { budgetOf, type Budget } from '../chip/budget.js';
 import { usageError } from '../errors.js';
 import { collect, emit, nameList, parseBatch, parseDims, OverBudget, modelAction } from './common.js';
-import { modelReads, refuseInputsAsOutputs } from './guard.js';
+import { modelReads, refuseInputsAsOutputs, splitReads } from './guard.js';
+import { chooseChain, readManifestFile } from '../split/read.js';
 import { targetFile, targetOptions } from './target-options.js';
+import { costChain, isChainArgument } from './cost-chain.js';
+import { costMeasured } from './cost-measured.js';
 
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
   target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string; int8MacsPerCycle?: string; int8?: boolean;
-  reorder?: boolean; saveReordered?: string; verbose?: boolean;
+  reorder?: boolean; saveReordered?: string; float?: boolean; measured?: string; verbose?: boolean;
 }
 
 export function costCommand(program: Command): void {
   targetOptions(program.command('cost'))
     .description('count MACs, weights and peak activation memory, per node and per stage; check them against a target')
-    .argument('<model>', 'ONNX model file')
+    .argument('<model>', 'ONNX model file, or a split folder (its stage files as written; on a build --int8 folder, the int8 chain)')
     .option('--cuts <values>', 'stage boundaries: comma-separated value (or node) names')
     .option('--dim <name=value>', 'bind a symbolic dim (repeatable)', collect, [])
     .option('--batch <n>', 'batch size for a symbolic leading input dim', '1')
@@ -34,8 +37,18 @@ export function costCommand(program: Command): void {
     .option('--verbose', 'with a target: also say how each budget figure is counted')
     .option('-o, --out <file>', 'write the report to a file instead of stdout')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
+    .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
     .option('--save-reordered <file>', 'write the reordered model, after checking in onnxruntime that its outputs equal the original\'s (implies --reorder)')
+    .option('--measured <file>', 'offramp measure --json output for the quantized folder given: latency, flash and RAM as measured, beside the planned figures (the target defaults to the measured core\'s profile)')
     .action(modelAction(async (file: string, o: CostFlags) => {
+      if (o.measured !== undefined) return costMeasured(file, { ...o, measured: o.measured });
+      if (isChainArgument(file)) {
+        const target = resolveTarget(o);
+        const { manifest } = readManifestFile(chooseChain(file, { float: o.float }).file);
+        refuseInputsAsOutputs([...splitReads(chooseChain(file, { float: o.float }).file, manifest), { file: targetFile(o.target), role: 'target profile' }], [o.out]);
+        return costChain(file, o, target);
+      }
+      if (o.float) throw usageError('--float chooses the float chain of a build folder; this is a model file');
       // Target options are checked before the model is read, so a typo fails fast.
       const opts = { cuts: o.cuts === undefined ? [] : nameList(o.cuts, '--cuts'), dims: parseDims(o.dim), batch: parseBatch(o.batch) };
       const target = resolveTarget(o);

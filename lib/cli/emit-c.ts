@@ -6,7 +6,7 @@ import { writeFirmware } from '../firmware/write.js';
 import { handoverBytes } from '../firmware/program.js';
 import { emit } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
-import { readManifestFile } from '../split/read.js';
+import { chooseChain, readManifestFile } from '../split/read.js';
 import { checkOutDir, readRegular } from '../util/fsx.js';
 import { parseJsonText } from '../util/json.js';
 
@@ -26,7 +26,10 @@ export function emitCCommand(program: Command): void {
     .argument('<dir>', 'quantized or split folder (or its manifest.json)')
     .requiredOption('-o, --out <dir>', 'folder for the C files')
     .option('--policy <json|file>', "policy JSON (inline or a file); required while the manifest holds none")
-    .action((dir: string, o: { out: string; policy?: string }) => {
+    .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
+    .action((where: string, o: { out: string; policy?: string; float?: boolean }) => {
+      const choice = chooseChain(where, { float: o.float });
+      const dir = choice.file;
       const { manifest } = readManifestFile(dir);
       const policyFile = o.policy !== undefined && !o.policy.trimStart().startsWith('{') ? o.policy : undefined;
       refuseInputsAsOutputs([...splitReads(dir, manifest), { file: policyFile, role: 'policy' }], [], [{ dir: o.out, names: /^offramp_\w+\.[ch]$/ }]);
@@ -36,14 +39,14 @@ export function emitCCommand(program: Command): void {
         const f = writeFirmware(dir, o.out, given);
         const p = f.program;
         const weights = p.stages.reduce((a, s) => a + s.steps.reduce((b, st) => b + ('p' in st && 'weight' in st.p ? st.p.weight.length : 0), 0), 0);
-        emit(`wrote the int8 network as C99 into ${o.out} (${f.written.length} files): ${p.stages.length} stages, ${f.table.exits} exits, ${p.classes} classes; policy from ${f.policyFrom}\n`
+        emit(`${choice.line}\nwrote the int8 network as C99 into ${o.out} (${f.written.length} files): ${p.stages.length} stages, ${f.table.exits} exits, ${p.classes} classes; policy from ${f.policyFrom}\n`
           + `memory: ${weights} bytes of int8 weights in flash, arena ${p.arenaBytes} bytes + handover ${handoverBytes(p)} bytes + logits ${p.logits.length * p.classes} bytes in RAM\n`
           + `next: compile every .c in ${o.out} with your firmware (C99, no malloc, no libm) and call offramp_classify(frame); see offramp_model.h\n`);
         return;
       }
       const r = writeC(dir, o.out, given);
       const t = r.table;
-      emit(`wrote the decision code only (a float folder): ${r.written.join(', ')}\n${t.stages.length} stages, ${t.exits} exits, ${t.classes} classes; policy from ${r.policyFrom}\n`
+      emit(`${choice.line}\nwrote the decision code only (a float folder): ${r.written.join(', ')}\n${t.stages.length} stages, ${t.exits} exits, ${t.classes} classes; policy from ${r.policyFrom}\n`
         + `for the whole network as int8 C, quantize first (offramp quantize ${dir} --data ROWS.npy -o QDIR) and run emit-c on QDIR\n`);
     });
 }

@@ -3,7 +3,7 @@
 import type { Command } from 'commander';
 import { loadModel, saveModel } from '../graph/io.js';
 import { completeShapes } from '../cost/analyze.js';
-import { planCuts, cutsAtFractions } from '../cuts/scan.js';
+import { planCuts, cutsAtFractions, type CutPlan } from '../cuts/scan.js';
 import { graftExits, classifierIO, type GraftResult } from '../heads/fit-heads.js';
 import { parseHead, parseLayout } from '../heads/spec.js';
 import { dataSource, readLabels } from '../heads/sources.js';
@@ -30,13 +30,31 @@ export function graftText(r: GraftResult, out: string): string {
     return [e.output, e.cut, e.head, si(e.macs), si(e.params), pct(e.fit.accuracy), pct(e.fit.agreement), e.fit.loss.toPrecision(4), `${e.fit.samples}/${e.fit.heldOut}`];
   });
   return `${table(['exit', 'cut', 'head', 'MACs', 'params', 'accuracy', 'agreement', 'loss', 'fit/held'], rows)}\n`
-    + `accuracy and agreement (with the final output) on the held-out rows; wrote ${out}\n`;
+    + `accuracy and agreement (with the final output) on the held-out rows; wrote ${out}\n`
+    + r.warnings.map((w) => `warning: ${w}\n`).join('');
 }
 
 export function graftJson(r: GraftResult, out: string): string {
-  return `${toJson({ schema: GRAFT_SCHEMA, out, exits: r.heads.map((h) => h.record) })}\n`;
+  return `${toJson({ schema: GRAFT_SCHEMA, out, exits: r.heads.map((h) => h.record), ...(r.warnings.length && { warnings: r.warnings }) })}\n`;
 }
 
+
+/**
+ * The cuts `--at` asks for, one exit per share: two shares landing on the same cut, or a cut at the end
+ * of the computation (an exit there runs every MAC, so it can save nothing), are refused by name.
+ */
+function exitCutsAt(plan: CutPlan, fractions: number[], given: string): string[] {
+  const shares = nameList(given, '--at');
+  const at = fractions.map((f) => cutsAtFractions(plan, [f])[0]);
+  const pct = (x: number) => `${(x * 100).toFixed(1)} %`;
+  at.forEach((c, i) => {
+    const j = at.findIndex((d) => d.step === c.step);
+    if (j < i) throw usageError(`--at ${shares[j]} and ${shares[i]} both land on the cut '${c.tensors[0].name}' (at ${pct(c.macFraction)} of the MACs): one exit there, not two; give shares further apart or --cuts`);
+    // Past 99.9 % an exit's head costs about what it skips (a linear head is the size of the classifier it replaces).
+    if (c.macFraction > 0.999) throw usageError(`--at ${shares[i]}: the nearest clean cut, '${c.tensors[0].name}', comes after ${(c.macFraction * 100).toFixed(2)} % of the MACs: an exit there saves nothing; give a smaller share or --cuts`);
+  });
+  return [...at].sort((a, b) => a.step - b.step).map((c) => c.tensors[0].name);
+}
 
 export function graftCommand(program: Command): void {
   program.command('graft')
@@ -65,7 +83,7 @@ export function graftCommand(program: Command): void {
       const model = loadModel(file);
       refuseInputsAsOutputs([...modelReads(model, file), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.out]);
       const shapes = await completeShapes(model, { dims, batch: 1 });
-      const cuts = o.cuts ? named : cutsAtFractions(planCuts(model, shapes), fractions).map((c) => c.tensors[0].name);
+      const cuts = o.cuts ? named : exitCutsAt(planCuts(model, shapes), fractions, o.at!);
       const io = classifierIO(model, shapes);
       const data = dataSource(o.data, io.declared, io.sample);
       const labels = o.labels ? readLabels(o.labels, { rows: data.rows, of: o.data, classes: io.classes }) : undefined;

@@ -84,3 +84,19 @@ export function splitReads(where: string, manifest: Manifest): Read[] {
   const file = manifestPath(where), dir = path.dirname(file);
   return [{ file, role: 'manifest' }, ...manifest.stages.map((s) => ({ file: path.join(dir, s.file), role: 'stage file' }))];
 }
+
+/**
+ * Extra rows that must not be the same rows: `--unlabelled` naming the `--data` file (by any path or
+ * link, or a byte-identical copy) would count each row twice in a bound. A usage error (exit 2).
+ */
+export function refuseSameRows(data: string, extra: string | undefined, option = '--unlabelled'): void {
+  if (!extra) return;
+  let a: fs.Stats, b: fs.Stats;
+  try { a = fs.statSync(data); b = fs.statSync(extra); } catch { return; /* the readers say what is missing */ }
+  const same = (a.dev === b.dev && a.ino === b.ino) || (a.isFile() && b.isFile() && a.size === b.size && sameBytes(data, extra));
+  if (same) throw usageError(`${option} ${extra}: holds the same rows as --data ${data}; counted twice they would make the bound look tighter than the evidence is: give rows --data does not hold`);
+}
+
+function sameBytes(a: string, b: string): boolean {
+  try { return fs.readFileSync(a).equals(fs.readFileSync(b)); } catch { return false; }
+}

@@ -10,6 +10,7 @@ import { buildCommand } from './build.js';
 import { tuneCommand } from './tune.js';
 import { replayCommand } from './replay.js';
 import { quantizeCommand } from './quantize.js';
+import { measureCommand } from './measure.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
@@ -31,6 +32,7 @@ export async function main(argv: string[]): Promise<number> {
   tuneCommand(program);
   replayCommand(program);
   quantizeCommand(program);
+  measureCommand(program);
   for (const c of program.commands) c.exitOverride();
   try {
     await program.parseAsync(argv, { from: 'user' });

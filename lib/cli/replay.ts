@@ -1,5 +1,6 @@
 // `offramp replay DIR --data X.npy`: the chain frame by frame under the tuned
 // (or a given) policy, with per-frame exits, MACs, results and scenes.
+import path from 'node:path';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
@@ -12,6 +13,7 @@ import { OfframpError } from '../errors.js';
 import { emit } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
 import { readDataHeader } from '../data/npy.js';
+import { chooseChain } from '../split/read.js';
 import { readRegular } from '../util/fsx.js';
 import { parseJsonText } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
@@ -59,7 +61,10 @@ export function replayCommand(program: Command): void {
     .option('--policy <json|file>', 'policy as JSON (default: the one tune wrote into the manifest)')
     .option('--csv <file>', 'write one CSV row per frame')
     .option('--json', 'machine-readable result (schema offramp-replay/1)')
-    .action(async (dir: string, o: { data: string; labels?: string; recordings?: string; policy?: string; csv?: string; json?: boolean }) => {
+    .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
+    .action(async (where: string, o: { data: string; labels?: string; recordings?: string; policy?: string; csv?: string; json?: boolean; float?: boolean }) => {
+      const choice = chooseChain(where, { float: o.float });
+      const dir = choice.file;
       const chain = await loadChain(dir);
       try {
         const policyFile = o.policy !== undefined && !o.policy.trim().startsWith('{') ? o.policy : undefined;
@@ -71,7 +76,11 @@ export function replayCommand(program: Command): void {
         const recordings = o.recordings ? readLabels(o.recordings, { rows, of: o.data, what: 'recording id' }) : undefined;
         const raw = o.policy ? readPolicy(o.policy) : chain.manifest.policy?.rule;
         if (!raw) throw new OfframpError('usage', 'no policy in the manifest: run offramp tune first, or give --policy', chain.dir);
-        const policy: Policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'manifest policy');
+        let policy: Policy;
+        // A policy error names where the policy came from: the manifest file, or --policy.
+        try { policy = checkPolicy(raw, layout.exits.length, o.policy ? '--policy' : 'policy'); } catch (e) {
+          throw e instanceof OfframpError && !o.policy ? new OfframpError(e.kind, e.message, path.join(chain.dir, 'manifest.json'), e.where) : e;
+        }
         let r = await replay(chain, layout, policy, o.data, { labels, recordings });
         if (labels) {
           // the full model's answers on the same frames, batched: the drop the promise is about
@@ -83,7 +92,7 @@ export function replayCommand(program: Command): void {
         }
         if (o.csv) writeAtomic(o.csv, replayCsv(r));
         // per-frame rows go to --csv: a JSON of every frame would dwarf the summary scripts read
-        emit(o.json ? toJson({ schema: 'offramp-replay/1', data: o.data, policy: r.policy, exits: r.exits, summary: r.summary }) + '\n' : replayText(r));
+        emit(o.json ? toJson({ schema: 'offramp-replay/1', chain: { manifest: choice.file, precision: choice.precision }, data: o.data, policy: r.policy, exits: r.exits, summary: r.summary }) + '\n' : `${choice.line}\n${replayText(r)}`);
       } finally { await chain.release(); }
     });
 }

@@ -5,7 +5,7 @@ import { BUILTIN_TARGETS } from '../chip/target.js';
 
 export function targetOptions(c: Command): Command {
   return c
-    .option('--target <file|name>', `target profile: a JSON file or a built-in core class (${Object.keys(BUILTIN_TARGETS).join(', ')}; rough figures)`)
+    .option('--target <file|name>', `target profile: a JSON file or a built-in core class (${Object.keys(BUILTIN_TARGETS).join(', ')}; flash, RAM and clock from memory; MAC rates measured on the emulated core, m0plus's from memory)`)
     .option('--flash <bytes>', 'flash for weights (K/KiB = 1024, M/MiB = 1024²; 0x hex)')
     .option('--ram <bytes>', 'RAM for activations and handover buffers')
     .option('--clock-mhz <f>', 'core clock in MHz')

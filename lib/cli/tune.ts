@@ -7,7 +7,7 @@ import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
 import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
 import { readDataHeader } from '../data/npy.js';
-import { refuseInputsAsOutputs, splitReads } from './guard.js';
+import { refuseInputsAsOutputs, refuseSameRows, splitReads } from './guard.js';
 import { progressBar } from './progress.js';
 import { tune, TUNE_KINDS, type FrameKind } from '../tune/search.js';
 import { tuneStream } from '../tune/stream.js';
@@ -15,7 +15,7 @@ import { STREAM_KINDS, type FramePolicy, type Policy, type StreamPolicy } from '
 import { tuneHtml, tuneJson, tuneText, type TuneReport } from '../report/tune.js';
 import type { TuneResult } from '../tune/search.js';
 import { OfframpError, usageError } from '../errors.js';
-import { emit, inFile, nameList, parseNumber } from './common.js';
+import { CONFIDENCE_RANGE, emit, HELD_OUT_RANGE, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
 
@@ -43,10 +43,11 @@ export function tuneCommand(program: Command): void {
     .option('--json', 'machine-readable result (schema offramp-tune/2)')
     .option('--verbose', 'also print the split, the method, the exit histogram and the fronts')
     .option('--no-write', 'leave the manifest as it is')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; verbose?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string }) => {
+    .option('--replace', 'write the tuned policy even over a certified one when this tuning certified nothing')
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean; verbose?: boolean }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
-      const confidence = parseNumber(o.confidence, '--confidence', { min: 0, max: 1, above: true, below: true });
-      const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, above: true, below: true });
+      const confidence = parseNumber(o.confidence, '--confidence', CONFIDENCE_RANGE);
+      const heldOut = parseNumber(o.heldOut, '--held-out', HELD_OUT_RANGE);
       const grid = parseNumber(o.grid, '--grid', { int: true, min: 2, max: MAX_GRID });
       const kinds = o.policy === undefined ? [] : nameList(o.policy, '--policy');
       for (const k of kinds) if (![...TUNE_KINDS, ...STREAM_KINDS].includes(k as never)) throw usageError(`unknown policy kind '${k}' (one of ${[...TUNE_KINDS, ...STREAM_KINDS].join(', ')})`);
@@ -56,9 +57,11 @@ export function tuneCommand(program: Command): void {
       if (o.segments && !o.stream) throw usageError('--segments marks the scenes of a stream: add --stream');
       // A stream's evidence is its scenes; rows without order or labels add none to the scene bound.
       if (o.unlabelled && o.stream) throw usageError('--unlabelled tightens per-frame bounds; a stream is certified on its scenes: give a longer recording (without --labels, the full model\'s answers serve as labels)');
+      refuseSameRows(o.data, o.unlabelled);
       const chain = await loadChain(dir);
       try {
-        refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' }], [o.report]);
+        refuseInputsAsOutputs([...splitReads(dir, chain.manifest), { file: o.data, role: 'data' }, { file: o.labels, role: 'labels' },
+          { file: o.unlabelled, role: 'unlabelled data' }, { file: o.segments, role: 'segments' }], [o.report]);
         const layout0 = chainLayout(chain.manifest, chain.dir);
         const total = readDataHeader(o.data).rows;
         const labels = o.labels ? readLabels(o.labels, { rows: total, of: o.data, classes: layout0.classes }) : undefined;
@@ -75,8 +78,15 @@ export function tuneCommand(program: Command): void {
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
           return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments });
         });
-        let written: string | undefined;
-        if (o.write) {
+        let written: string | undefined, manifestNote: string | undefined;
+        // A certified policy is never replaced by one that certifies nothing (the full model, or an
+        // uncertified setting) unless asked: firmware emitted from it would lose the promise.
+        const before = chain.manifest.policy;
+        const demotes = before?.guarantee?.certified === true && result.guarantee?.certified !== true;
+        if (o.write && demotes && !o.replace) {
+          manifestNote = `manifest not changed: ${chain.dir}/manifest.json keeps its certified ${before!.rule && typeof before!.rule === 'object' ? `${(before!.rule as { kind?: string }).kind} ` : ''}policy ` +
+            `(drop ≤ ${before!.guarantee!.maxDrop} pp at ${+(before!.guarantee!.confidence * 100).toFixed(4)} % confidence), since this tuning certified nothing; add --replace to write this one over it`;
+        } else if (o.write) {
           const c = result.chosen, f = result.full;
           // As a writer of the folder: a split or build writing it now is waited out by refusal, never interleaved.
           withFolder(chain.dir, () => writeManifestPolicy(chain.dir, {
@@ -85,11 +95,14 @@ export function tuneCommand(program: Command): void {
             ...(result.guarantee ? { guarantee: result.guarantee } : {}),
           }, chain.manifest.stages));
           written = `${chain.dir}/manifest.json`;
+          const full = c.policy.kind === 'confidence' && c.policy.thresholds.every((t) => t === null);
+          if (demotes) manifestNote = `replaced the certified ${(before!.rule as { kind?: string }).kind} policy that was there (--replace)${full ? '; the manifest\'s policy is now the full model: firmware emitted from it never exits early' : ''}`;
+          else if (full) manifestNote = 'the manifest\'s policy is now the full model (nothing cheaper was certified): firmware emitted from it never exits early';
         }
         // A build's reports and firmware keep describing the manifest they were made for: say so, with the fix.
         const stale = written ? DESCRIBING.map((f) => path.join(chain.dir, f)).filter((f) => fs.existsSync(f)) : [];
         const report: TuneReport = {
-          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, stale,
+          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, manifestNote, stale,
           stages: chain.manifest.stages.map((s) => ({ index: s.index, macs: s.macs, exits: s.exits })),
         };
         if (o.report) writeAtomic(o.report, tuneHtml(report));

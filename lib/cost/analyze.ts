@@ -4,6 +4,7 @@ import type { Model } from '../graph/ir.js';
 import { inferShapes, type InferOptions, type ShapeResult } from '../shapes/infer.js';
 import { measureShapes } from '../runtime/ort.js';
 import { OfframpError } from '../errors.js';
+import { loadModel } from '../graph/io.js';
 import { costModel, type CostOptions, type CostReport } from './report.js';
 
 export async function completeShapes(model: Model & { file?: string }, opts: InferOptions = {}): Promise<ShapeResult> {
@@ -30,7 +31,25 @@ export async function completeShapes(model: Model & { file?: string }, opts: Inf
   return shapes;
 }
 
-export async function analyzeModel(model: Model & { file?: string }, opts: CostOptions = {}): Promise<CostReport> {
+/** The options as the CLI's cost checks them; a wrong one is an error naming it, not a TypeError deep inside. */
+function checkCostOptions(opts: unknown): CostOptions {
+  const bad = (opt: string, what: string, v: unknown) => new OfframpError('usage', `analyzeModel: option '${opt}' takes ${what}, not ${JSON.stringify(v) ?? String(v)}`);
+  if (opts === undefined) return {};
+  if (!opts || typeof opts !== 'object' || Array.isArray(opts)) throw new OfframpError('usage', `analyzeModel: options must be an object, not ${JSON.stringify(opts)}`);
+  const o = opts as CostOptions;
+  if (o.cuts !== undefined && !(Array.isArray(o.cuts) && o.cuts.every((c) => typeof c === 'string' && c))) throw bad('cuts', 'a list of value or node names', o.cuts);
+  if (o.stageEnds !== undefined && !(Array.isArray(o.stageEnds) && o.stageEnds.every((x) => Number.isSafeInteger(x) && x >= 0))) throw bad('stageEnds', 'a list of node positions', o.stageEnds);
+  if (o.batch !== undefined && !(Number.isSafeInteger(o.batch) && o.batch >= 1)) throw bad('batch', 'a whole number from 1', o.batch);
+  if (o.dims !== undefined && !(o.dims && typeof o.dims === 'object' && Object.values(o.dims).every((d) => Number.isSafeInteger(d) && d >= 1))) throw bad('dims', '{ name: whole number from 1, … }', o.dims);
+  return o;
+}
+
+/** Cost a model (a loaded one, or a file path, loaded here). */
+export async function analyzeModel(model: (Model & { file?: string }) | string, options: CostOptions = {}): Promise<CostReport> {
+  const opts = checkCostOptions(options);
+  if (typeof model === 'string') model = loadModel(model);
+  else if (!model || typeof model !== 'object' || !(model as Model).graph || !Array.isArray((model as Model).graph.nodes))
+    throw new OfframpError('usage', `analyzeModel takes a model (loadModel(file)) or a file path, not ${JSON.stringify(model)?.slice(0, 40) ?? typeof model}`);
   const shapes = opts.shapes ?? (await completeShapes(model, opts));
   return costModel(model, { ...opts, shapes });
 }

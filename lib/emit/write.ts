@@ -9,6 +9,7 @@ import { readManifestFile } from '../split/read.js';
 import { writeAllAtomic } from '../util/atomic.js';
 import { verifyStageFiles } from '../split/commit.js';
 import { emitC, type EmitCOutput } from './c.js';
+import { checkQuantizedChain } from './quant-check.js';
 
 export interface WriteCOptions {
   /** overrides the manifest's policy; `from` says where it came from (banner), `file` names it in errors */
@@ -23,6 +24,7 @@ export function writeC(where: string, outDir: string, o: WriteCOptions = {}): Em
 
   // The C describes these stage files: they must be the ones the manifest records (as check and replay insist).
   verifyStageFiles(manifest, file);
+  checkQuantizedChain(manifest, file);
   const manifestName = path.relative(path.resolve(outDir), path.resolve(file)).split(path.sep).join('/');
   const out = emitC({
     manifest, manifestName, manifestSha256: crypto.createHash('sha256').update(bytes).digest('hex'),

@@ -207,7 +207,8 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     let c = r.only(v);
     const act: Node[] = [];
     while (c && !c.domain && (c.op === 'Relu' || c.op === 'Clip') && !graphOut.has(v)) { act.push(c); v = c.outputs[0]; c = r.only(v); }
-    if (!c || c.domain || c.op !== 'QuantizeLinear' || graphOut.has(v)) r.fail('output is not quantized to int8 right after the op (a float tensor between int8 kernels)', n);
+    if (c && (c.domain || c.op !== 'QuantizeLinear')) r.fail(`op ${c.domain ? `${c.domain}.` : ''}${c.op} has no int8 kernel in offramp's firmware (it reads the float output of '${n.name || n.outputs[0]}')`, c);
+    if (!c || graphOut.has(v)) r.fail('output is not quantized to int8 right after the op (a float tensor between int8 kernels)', n);
     const q = r.qparams(c);
     for (const a of act) {
       if (a.op === 'Relu') lo = Math.max(lo, q.zeroPoint);

@@ -6,7 +6,7 @@
 import { OfframpError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { hexDouble } from '../emit/c.js';
-import type { Multiplier } from '../kernels/requant.js';
+import { mulInitializer, type Multiplier } from '../kernels/requant.js';
 import type { ConvParams, DenseParams, PoolParams, RescaleParams } from '../kernels/types.js';
 import type { Program, Step, Tensor8 } from './program.js';
 
@@ -22,9 +22,29 @@ function array(type: string, name: string, values: ArrayLike<number | string>, p
   for (let i = 0; i < values.length; i += perLine) rows.push('  ' + Array.from({ length: Math.min(perLine, values.length - i) }, (_, j) => String(values[i + j])).join(', '));
   return `static const ${type} ${name}[${values.length}] = {\n${rows.join(',\n')}\n};\n`;
 }
+const DOT_ORDER = [0, 2, 1, 3];
+/**
+ * int8 weights as rows of kRow values (zeros after the `per` real ones), word aligned for 32-bit loads,
+ * each group of four in dot order 0, 2, 1, 3 (offramp_dot.h says why).
+ */
+function weightRows(name: string, w: Int8Array, rows: number, per: number, kRow: number): string {
+  const v = new Int8Array(rows * kRow);
+  for (let r = 0; r < rows; r++) for (let j = 0; j < per; j++) v[r * kRow + (j & ~3) + DOT_ORDER[j & 3]] = w[r * per + j];
+  const lines: string[] = [];
+  for (let i = 0; i < v.length; i += 24) lines.push('  ' + Array.from(v.subarray(i, i + 24)).join(', '));
+  return `static const union { int32_t align; int8_t v[${Math.max(1, v.length)}]; } ${name} = { .v = {
+${lines.join(',\n') || '  0'}
+} };
+`;
+}
+export const kRowOf = (n: number) => Math.max(4, Math.ceil(n / 4) * 4);
+/** int16 values of scratch the kernels need: two columns for a conv, one for a dense. */
+export const scratchOf = (p: Program) => Math.max(4, ...p.stages.flatMap((s) => s.steps.map((st) =>
+  st.kind === 'conv' ? 2 * kRowOf((st.p.inC / st.p.groups) * st.p.kH * st.p.kW) : st.kind === 'dense' ? kRowOf(st.p.in) : 0)));
+
 const int32 = (v: number) => (v === -2147483648 ? '(-2147483647 - 1)' : String(v));
 const muls = (name: string, m: Multiplier[]) =>
-  `static const offramp_mul_t ${name}[${Math.max(1, m.length)}] = {\n${m.length ? m.map((x) => `  { ${int32(x.mult)}, ${x.shift} }`).join(',\n') : '  { 0, 0 }'}\n};\n`;
+  `static const offramp_mul_t ${name}[${Math.max(1, m.length)}] = {\n${m.length ? m.map((x) => `  ${mulInitializer(x)}`).join(',\n') : '  { 0, 0, 0u, 0u }'}\n};\n`;
 
 export interface NetInput { program: Program; manifestName: string; manifestSha256: string }
 
@@ -71,6 +91,9 @@ static union { int32_t align; int8_t bytes[${Math.max(1, p.arenaBytes)}]; } aren
 ${p.handovers.map((t, k) => `static int8_t handover_${k}[${t.size}];   /* ${comment(t.name)} */`).join('\n')}
 int8_t offramp_logits_q8[OFFRAMP_EXITS + 1][OFFRAMP_CLASSES];
 int8_t *const offramp_input_q8 = ${where(p.input.tensor)};
+/* The kernels' columns (${scratchOf(p)} int16 values), word aligned. */
+static union { int32_t align; int16_t v[${scratchOf(p)}]; } scratch;
+int16_t *const offramp_conv_scratch = scratch.v;
 const offramp_q8_t offramp_input_q8_params = { ${hexDouble(p.input.tensor.scale)}f /* ${p.input.tensor.scale} */, ${p.input.tensor.zeroPoint} };
 `);
   for (const st of p.stages) {
@@ -93,14 +116,16 @@ function stepParams(s: Step, id: string, out: string[]): string {
   switch (s.kind) {
     case 'conv': {
       const p: ConvParams = s.p;
-      out.push(array('int8_t', `${id}_w`, p.weight), array('int32_t', `${id}_b`, Array.from(p.bias, int32), 8), muls(`${id}_m`, p.mul));
-      out.push(`static const offramp_conv_t ${id} = {\n  ${[p.inC, p.inH, p.inW, p.outC, p.outH, p.outW].join(', ')},\n  ${[p.kH, p.kW, p.strideH, p.strideW, p.dilH, p.dilW, p.padTop, p.padLeft].join(', ')},\n  ${p.groups},\n  ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')},\n  ${id}_w, ${id}_b, ${id}_m\n};\n`);
+      const per = (p.inC / p.groups) * p.kH * p.kW, kRow = kRowOf(per);
+      out.push(weightRows(`${id}_w`, p.weight, p.outC, per, kRow), array('int32_t', `${id}_b`, Array.from(p.bias, int32), 8), muls(`${id}_m`, p.mul));
+      out.push(`static const offramp_conv_t ${id} = {\n  ${[p.inC, p.inH, p.inW, p.outC, p.outH, p.outW].join(', ')},\n  ${[p.kH, p.kW, p.strideH, p.strideW, p.dilH, p.dilW, p.padTop, p.padLeft].join(', ')},\n  ${p.groups},\n  ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')},\n  ${kRow}, ${id}_w.v, ${id}_b, ${id}_m\n};\n`);
       return `&${id}`;
     }
     case 'dense': {
       const p: DenseParams = s.p;
-      out.push(array('int8_t', `${id}_w`, p.weight), array('int32_t', `${id}_b`, Array.from(p.bias, int32), 8), muls(`${id}_m`, p.mul));
-      out.push(`static const offramp_dense_t ${id} = { ${p.in}, ${p.out}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, ${id}_w, ${id}_b, ${id}_m };\n`);
+      const kRow = kRowOf(p.in);
+      out.push(weightRows(`${id}_w`, p.weight, p.out, p.in, kRow), array('int32_t', `${id}_b`, Array.from(p.bias, int32), 8), muls(`${id}_m`, p.mul));
+      out.push(`static const offramp_dense_t ${id} = { ${p.in}, ${p.out}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, ${kRow}, ${id}_w.v, ${id}_b, ${id}_m };\n`);
       return `&${id}`;
     }
     case 'maxpool': case 'avgpool': {
@@ -111,7 +136,7 @@ function stepParams(s: Step, id: string, out: string[]): string {
     }
     case 'rescale': {
       const p: RescaleParams = s.p;
-      out.push(`static const offramp_rescale_t ${id} = { ${p.n}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, { ${int32(p.mul.mult)}, ${p.mul.shift} } };\n`);
+      out.push(`static const offramp_rescale_t ${id} = { ${p.n}, ${[p.inZero, p.outZero, p.lo, p.hi].join(', ')}, ${mulInitializer(p.mul)} };\n`);
       return `&${id}`;
     }
     case 'copy': return '0';

@@ -11,6 +11,7 @@ import { readManifestFile } from '../split/read.js';
 import { verifyStageFiles } from '../split/commit.js';
 import { writeAllAtomic } from '../util/atomic.js';
 import { emitC } from '../emit/c.js';
+import { checkQuantizedChain } from '../emit/quant-check.js';
 import type { ChainTable } from '../emit/table.js';
 import { lowerChain } from './lower.js';
 import { netTables } from './tables.js';
@@ -45,6 +46,8 @@ export function firmwareFiles(where: string, outDir: string, o: FirmwareOptions 
   const chosen = o.policy ?? (manifest.policy?.rule !== undefined ? { value: manifest.policy.rule, from: 'the manifest' } : undefined);
   if (!chosen) throw new OfframpError('usage', 'the manifest holds no policy yet (run offramp tune, or give --policy)', file);
   verifyStageFiles(manifest, file);
+  // the decision code reads each exit's scale from the manifest, the network from the stage files: they must agree
+  checkQuantizedChain(manifest, file);
   const program = lowerChain(manifest, path.dirname(path.resolve(file)), file);
   const manifestName = path.relative(path.resolve(outDir), path.resolve(file)).split(path.sep).join('/');
   const manifestSha256 = crypto.createHash('sha256').update(bytes).digest('hex');

@@ -11,6 +11,7 @@ import { fitSoftmax, linearLogits } from '../fit/softmax.js';
 import { fitMlp, mlpLogits } from '../fit/mlp.js';
 import { argmaxRows, labelTargets, matchRate, softTargets, type Features, type Targets } from '../fit/targets.js';
 import { axesFor, headName, type HeadKind, type Layout } from './spec.js';
+import { inferLayout } from './layout.js';
 import { captureFeatures, type Batch } from './capture.js';
 import { graftHeads, type FittedHead, type HeadInput } from './graft.js';
 import type { Dense } from './nodes.js';
@@ -37,7 +38,11 @@ export interface GraftOptions {
   progress?: (phase: 'capture' | 'fit', done: number, total: number) => void;
 }
 
-export interface GraftResult { model: Model; heads: FittedHead[] }
+export interface GraftResult {
+  model: Model; heads: FittedHead[];
+  /** heads that learnt nothing (agreement at the level of always answering the most common class), in words */
+  warnings: string[];
+}
 
 const f32 = (a: ArrayLike<number>) => Float32Array.from(a);
 const concreteDims = (s: Dim[] | undefined): s is number[] => !!s && s.every((d) => typeof d === 'number');
@@ -55,6 +60,9 @@ export function classifierIO(model: Model & { file?: string }, shapes: ShapeResu
   const ft = shapes.values.get(final.name)?.type;
   if (!ft?.shape || ft.shape.length !== 2 || typeof ft.shape[1] !== 'number' || ft.dtype !== FLOAT)
     throw new OfframpError('graph', `the first output '${final.name}' must be float32 logits [batch, classes]`, file);
+  // Rows of data are fed along the input's first axis: it must be the batch the logits come out with.
+  if (typeof ft.shape[0] === 'number' && ft.shape[0] !== bound.shape[0])
+    throw new OfframpError('shape', `input '${ins[0].name}' is [${bound.shape.join(', ')}] but the logits '${final.name}' [${ft.shape.join(', ')}]: the input's first axis is not the batch (a time-first sequence, [T, N, …], feeding a recurrent layer looks like this); export the model batch-first`, file);
   return {
     input: ins[0].name, declared: declared ?? bound.shape, sample: bound.shape.slice(1), final: final.name, classes: ft.shape[1],
     fixedBatch: typeof declared?.[0] === 'number' ? declared[0] : undefined, batch: (final.type?.shape?.[0] ?? 'N') as Dim,
@@ -79,6 +87,22 @@ function randomProjection(cin: number, cout: number, seed: number): Dense {
   return { out: cout, in: cin, W: Float32Array.from({ length: cout * cin }, () => (2 * rnd() - 1) * lim), b: new Float32Array(cout) };
 }
 
+/** The recurrent node (LSTM, GRU, RNN) a value comes from, through any ops, if one does. */
+function recurrentBefore(model: Model, value: string): string | undefined {
+  const made = new Map(model.graph.nodes.flatMap((n) => n.outputs.map((o) => [o, n] as const)));
+  const seen = new Set<string>(), todo = [value];
+  while (todo.length) {
+    const v = todo.pop()!;
+    if (seen.has(v)) continue;
+    seen.add(v);
+    const n = made.get(v);
+    if (!n) continue;
+    if (n.op === 'LSTM' || n.op === 'GRU' || n.op === 'RNN') return n.op;
+    todo.push(...n.inputs.filter(Boolean));
+  }
+  return undefined;
+}
+
 export async function graftExits(model: Model & { file?: string }, data: DataSource, o: GraftOptions): Promise<GraftResult> {
   const file = model.file, seed = o.seed ?? 1;
   if (!o.cuts.length) throw new OfframpError('usage', 'no cuts given', file);
@@ -89,7 +113,13 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
     const t = shapes.values.get(cut)?.type;
     if (!t?.shape || !concreteDims(t.shape)) throw new OfframpError('shape', `cut '${cut}' has no concrete shape`, file);
     if (t.dtype !== FLOAT) throw new OfframpError('graph', `cut '${cut}' is ${dtypeName(t.dtype)}; heads read float32 tensors`, file);
-    const axes = axesFor(t.shape, o.layout, cut);
+    // A head answers once per row of the cut's first axis: that axis must be the batch, or the exit declared
+    // [batch, classes] would compute one answer per time step (a recurrent layer's time-first output, [T, N, H]).
+    const batch = shapes.values.get(io.final)?.type.shape?.[0];
+    if (typeof batch === 'number' && t.shape[0] !== batch)
+      throw new OfframpError('shape', `cut '${cut}' is [${t.shape.join(', ')}]: its first axis is not the batch (${batch} here)${recurrentBefore(model, cut) ? `, as a time-first ${recurrentBefore(model, cut)} output is` : ''}; a head there would answer once per step along that axis: cut where the tensor is batch-first, or after the sequence is reduced`, file);
+    // rank 3: the layout the graph shows (heads/layout.ts), unless given
+    const axes = axesFor(t.shape, o.layout ?? (t.shape.length === 3 ? inferLayout(model, cut) : undefined), cut);
     const cin = t.shape[axes.channel], spatial = axes.pool.reduce((a, i) => a * (t.shape![i] as number), 1);
     const proj = o.head.kind === 'conv' ? randomProjection(cin, o.head.channels, (seed * 0x9e3779b1 + k) >>> 0) : undefined;
     if (o.head.kind === 'grid' && axes.pool.length) {
@@ -119,6 +149,7 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
   const teacher = argmaxRows(cap.final, n, k);
   const fitOpts = { l2: o.l2, seed, heldOut: o.heldOut };
 
+  const warnings: string[] = [];
   const heads: FittedHead[] = inputs.map((h, e) => {
     o.progress?.('fit', e, inputs.length);
     const F: Features = cap.features[e];
@@ -149,8 +180,18 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
         agreement: matchRate(pred, teacher, rows), samples: split.train.length, heldOut: split.held.length,
       },
     };
+    // Chance level: the share of the most common answer among the scored rows; a head at or below it reads nothing.
+    const counts = new Map<number, number>();
+    for (const i of rows) counts.set(teacher[i], (counts.get(teacher[i]) ?? 0) + 1);
+    const chance = rows.length ? Math.max(...counts.values()) / rows.length : 0;
+    if (rows.length && counts.size > 1 && record.fit.agreement <= chance + 0.01) {
+      const shape = shapes.values.get(h.cut)?.type.shape ?? [];
+      const pc = (x: number) => `${(x * 100).toFixed(1)} %`;
+      warnings.push(`exit-${e} at '${h.cut}' agrees with the final output on ${pc(record.fit.agreement)} of held-out rows, no more than always answering its most common class (${pc(chance)}): the head reads nothing useful there` +
+        (h.rank === 3 ? `; the cut [${shape.join(', ')}] was pooled as ${h.axes.layout}${h.axes.layout === 'NCL' ? ': if its last axis holds the features (tokens × features), give --layout NTD' : h.axes.layout === 'NTD' ? ': if its second axis holds the channels, give --layout NCL' : ''}` : ''));
+    }
     return { cut: h.cut, rank: h.rank, axes: h.axes, proj: h.proj, ...(h.grid ? { grid: h.grid } : {}), layers, record };
   });
   o.progress?.('fit', inputs.length, inputs.length);
-  return { model: graftHeads(model, heads, io.batch), heads };
+  return { model: graftHeads(model, heads, io.batch), heads, warnings };
 }

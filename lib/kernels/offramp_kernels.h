@@ -17,7 +17,8 @@ typedef struct {
   int32_t k_h, k_w, stride_h, stride_w, dil_h, dil_w, pad_top, pad_left;
   int32_t groups;
   int32_t in_zero, out_zero, lo, hi;
-  const int8_t *weight;        /* [out_c][in_c / groups][k_h][k_w] */
+  int32_t k_row;               /* weights per output channel, (in_c / groups) * k_h * k_w rounded up to a multiple of 4 */
+  const int8_t *weight;        /* [out_c][k_row]: [in_c / groups][k_h][k_w], then zeros */
   const int32_t *bias;         /* [out_c], input zero point folded in */
   const offramp_mul_t *mul;    /* [out_c]: in_scale * w_scale[o] / out_scale */
 } offramp_conv_t;
@@ -27,7 +28,8 @@ void offramp_conv(const offramp_conv_t *p, const int8_t *x, int8_t *y);
 typedef struct {
   int32_t in, out;
   int32_t in_zero, out_zero, lo, hi;
-  const int8_t *weight;        /* [out][in] */
+  int32_t k_row;               /* in, rounded up to a multiple of 4 */
+  const int8_t *weight;        /* [out][k_row]: in values, then zeros */
   const int32_t *bias;         /* [out], input zero point folded in */
   const offramp_mul_t *mul;    /* [out] */
 } offramp_dense_t;

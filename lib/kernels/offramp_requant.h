@@ -16,22 +16,33 @@
 #endif
 
 typedef struct {
-  int32_t mult;   /* Q31, 0 for a multiplier that rounds every accumulator to 0 */
-  int32_t shift;  /* M = mult * 2^(-31 - shift); -15 ... 31 */
+  int32_t mult;        /* Q31, 0 for a multiplier that rounds every accumulator to 0 */
+  int32_t shift;       /* M = mult * 2^(-31 - shift); -15 ... 31 */
+  uint32_t nudge_lo;   /* for shift >= 1: 2^(30 + shift) - 1, the rounding's addend, as two words */
+  uint32_t nudge_hi;   /* (the tables hold it, so no output pays for the 64-bit shift that makes it) */
 } offramp_mul_t;
 
 /* round(acc * mult / 2^(31 + shift)) with ties to even, saturated to int32: the exact product, rounded
- * once. shift is -15 ... 31, so the right shift is 16 ... 62 bits of a 64-bit product. */
+ * once. shift is -15 ... 31, so the right shift e is 16 ... 62 bits of a 64-bit product. With the floor
+ * quotient's lowest bit b, floor((p + 2^(e-1) - 1 + b) / 2^e) rounds to nearest and a tie to the even
+ * neighbour (below half: the sum stays under the next multiple; above: it reaches it; at half: it
+ * reaches it exactly when b is 1). */
 static inline int32_t offramp_requantize(int32_t acc, offramp_mul_t m) {
-  int64_t p, q, r, half;
+  int64_t p, q;
   int32_t e;
+  if (m.shift >= 1) {
+    /* e = 32 + s: the quotient is the high word of p + nudge, shifted by s; it fits int32 as it is
+     * (a 32-bit add pair and shift, where the general form needs 64-bit shifts by a variable) */
+    const int32_t s = m.shift - 1;
+    const int64_t prod = (int64_t)acc * (int64_t)m.mult;
+    const uint32_t b = (uint32_t)(((int32_t)(prod >> 32) >> s) & 1);
+    const uint64_t u = (uint64_t)prod + ((uint64_t)m.nudge_hi << 32 | m.nudge_lo) + b;
+    return (int32_t)(uint32_t)(u >> 32) >> s;
+  }
   if (m.mult == 0) return 0;
   e = 31 + m.shift;
   p = (int64_t)acc * (int64_t)m.mult;
-  q = p >> e;                                  /* floor */
-  r = p - q * ((int64_t)1 << e);               /* in [0, 2^e) */
-  half = (int64_t)1 << (e - 1);
-  if (r > half || (r == half && (q & 1))) q++;
+  q = (p + ((INT64_C(1) << (e - 1)) - 1) + ((p >> e) & 1)) >> e;
   return q > INT32_MAX ? INT32_MAX : q < INT32_MIN ? INT32_MIN : (int32_t)q;
 }
 

@@ -74,3 +74,16 @@ export function quantizeValue(x: number, scale: number, zeroPoint: number): numb
   const v = roundEven(Math.fround(Math.fround(x) / Math.fround(scale))) + zeroPoint;
   return v < -128 ? -128 : v > 127 ? 127 : v;
 }
+
+/** 2^(30 + shift) − 1 as [low word, high word]: offramp_mul_t's rounding addend for shift ≥ 1 (0 otherwise). */
+export function nudgeWords(m: Multiplier): [number, number] {
+  if (m.shift < 1) return [0, 0];
+  const e = 30 + m.shift;   // 31 … 61
+  return e < 32 ? [2 ** e - 1, 0] : [0xffffffff, 2 ** (e - 32) - 1];
+}
+
+/** The C initializer of an offramp_mul_t. */
+export function mulInitializer(m: Multiplier): string {
+  const [lo, hi] = nudgeWords(m);
+  return `{ ${m.mult}, ${m.shift}, ${lo}u, ${hi}u }`;
+}

@@ -24,7 +24,8 @@ import { CERTIFY_SHARE, tune, type TuneResult } from '../tune/search.js';
 import { rowsOf, splitParts } from '../tune/cache.js';
 import { budgetOf, type Budget } from '../chip/budget.js';
 import { writeC } from '../emit/write.js';
-import type { Target } from '../chip/target.js';
+import { writeFirmware } from '../firmware/write.js';
+import { resolveTarget, targetFromJson, type Ratio, type Target } from '../chip/target.js';
 import { OfframpError } from '../errors.js';
 import { writeAtomic } from '../util/atomic.js';
 import { scratchOf, withFolder } from '../util/folder.js';
@@ -32,13 +33,15 @@ import { commitFolder, hashedName, sha256 } from '../split/commit.js';
 import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
 import { labelsOfParity, rowsOfParity } from './rows.js';
 import { buildInt8, type Int8Build } from './int8.js';
+import { measureDevice, type DeviceReport } from '../measure/device.js';
 
 export interface BuildOptions {
   /** calibration inputs (.npy or a TensorProto folder); even rows fit heads, odd rows tune */
   data: string;
   labels?: string;
   out: string;
-  target?: Target;
+  /** a target profile, or what the CLI's --target takes: a built-in name (m4f, …) or a profile file */
+  target?: Target | string;
   /** quantize the split to int8 (DIR/int8), tune on the int8 chain, write its firmware and judge its stored files */
   int8?: boolean;
   /** accuracy (percentage points) the policy may lose against the full model (default 1) */
@@ -58,6 +61,8 @@ export interface BuildOptions {
   reorder?: boolean;
   /** samples the staged chain is checked on against the model (default 16) */
   checkSamples?: number;
+  /** with int8: measure the int8 firmware on an emulated core, on the first `rows` rows of `data` in file order */
+  measure?: { core: string; rows: number };
   progress?: (step: string, detail: string) => void;
   /** files that describe the build (the reports), committed with it */
   describe?: (r: BuildResult) => DescribingFile[];
@@ -83,6 +88,10 @@ export interface BuildResult {
   manifestSha256: string;
   /** with --int8: the quantized split, its policy and figures (budget is then the int8 files' as stored) */
   int8?: Int8Build;
+  /** with measure: the int8 firmware measured on the emulated core */
+  device?: DeviceReport;
+  /** candidate heads that learnt nothing (agreement at the most common class's share), in words (heads/fit-heads.ts) */
+  headWarnings?: string[];
 }
 
 /** the grafted model in DIR is model.<hash>.onnx (named by its content, as stage files are) */
@@ -121,12 +130,62 @@ export interface DescribingFile { name: string; data: string | Uint8Array }
  * manifest as the commit point (split/commit.ts): a failed or stopped build leaves DIR as it
  * was, and DIR is whole at every instant. Files in DIR that a build does not write are left alone.
  */
-export async function buildExits(file: string, o: BuildOptions): Promise<BuildResult> {
+/** Relative tolerance of the build's chain check (as `offramp check`'s default --rtol). */
+const CHECK_RTOL = 1e-5;
+
+/** The options as the CLI checks them, so a script gets the same refusals, each naming the option. */
+function checkBuildOptions(file: unknown, o: BuildOptions): BuildOptions & { target?: Target } {
+  const bad = (opt: string, what: string, v: unknown) => new OfframpError('usage', `buildExits: option '${opt}' takes ${what}, not ${typeof v === 'bigint' ? `${v}n` : JSON.stringify(v) ?? String(v)}`);
+  if (typeof file !== 'string' || !file) throw new OfframpError('usage', `buildExits: the model is a file path, not ${JSON.stringify(file) ?? String(file)}`);
+  if (!o || typeof o !== 'object') throw new OfframpError('usage', 'buildExits needs options { data, out, … }');
+  for (const k of ['data', 'out'] as const) if (typeof o[k] !== 'string' || !o[k]) throw bad(k, k === 'data' ? 'the calibration data file' : 'the output folder', o[k]);
+  for (const k of ['labels', 'unlabelled'] as const) if (o[k] !== undefined && (typeof o[k] !== 'string' || !o[k])) throw bad(k, 'a file path', o[k]);
+  const num = (k: keyof BuildOptions, lo: number, hi: number, int = false, open = false) => {
+    const v = o[k];
+    if (v === undefined) return;
+    if (!(typeof v === 'number' && Number.isFinite(v) && (!int || Number.isSafeInteger(v)) && v >= lo && (open ? v < hi : v <= hi)))
+      throw bad(k, `${int ? 'a whole number' : 'a number'} from ${lo} ${open ? 'below' : 'up to'} ${hi}`, v);
+  };
+  num('maxDrop', 0, 100); num('confidence', 0.5, 1, false, true); num('maxExits', 1, 16, true); num('candidates', 1, 64, true);
+  num('seed', 0, 2 ** 32 - 1, true); num('checkSamples', 1, 1_000_000, true); num('l2', 0, Number.MAX_VALUE);
+  if (o.head !== undefined && !(o.head && typeof o.head === 'object' && ['linear', 'mlp', 'conv', 'grid'].includes((o.head as { kind?: string }).kind ?? '')))
+    throw bad('head', "{ kind: 'linear' | 'mlp' | 'conv' | 'grid', … }", o.head);
+  // The same rows as unlabelled extras would count twice in the bound (same file by any link, or a copy).
+  if (o.unlabelled) {
+    const a = fs.statSync(o.data, { throwIfNoEntry: false }), b = fs.statSync(o.unlabelled, { throwIfNoEntry: false });
+    if (a?.isFile() && b?.isFile() && ((a.dev === b.dev && a.ino === b.ino) || (a.size === b.size && fs.readFileSync(o.data).equals(fs.readFileSync(o.unlabelled)))))
+      throw new OfframpError('usage', `buildExits: option 'unlabelled' (${o.unlabelled}) holds the same rows as 'data' (${o.data}): counted twice they would make the bound look tighter than the evidence is`);
+  }
+  let target: Target | undefined;
+  if (typeof o.target === 'string') target = resolveTarget({ target: o.target });
+  else if (o.target !== undefined) {
+    const t = o.target as unknown as Record<string, unknown>;
+    const ratio = (r: unknown) => !!r && typeof r === 'object' && typeof (r as Ratio).num === 'bigint' && typeof (r as Ratio).den === 'bigint' && (r as Ratio).den > 0n;
+    const whole = t && typeof t === 'object' && typeof t.flashBytes === 'bigint' && typeof t.ramBytes === 'bigint' && ratio(t.clockMhz) && ratio(t.macsPerCycle);
+    // Anything else is read as a profile file's JSON would be (numbers or byte strings), or refused naming the field.
+    try { target = whole ? { ...(o.target as Target), int8MacsPerCycle: (o.target as Target).int8MacsPerCycle ?? (o.target as Target).macsPerCycle } : targetFromJson(o.target); } catch (e) {
+      throw e instanceof OfframpError ? new OfframpError('usage', `buildExits: option 'target': ${e.message}`) : e;
+    }
+  }
+  if (o.int8 && !target) throw new OfframpError('usage', "buildExits: option 'int8' judges a target's budget: give 'target' too");
+  return { ...o, target };
+}
+
+export async function buildExits(file: string, options: BuildOptions): Promise<BuildResult> {
+  const o = checkBuildOptions(file, options);
   const final = path.resolve(o.out);
   const work = scratchOf(final);
   return withFolder(final, async () => {
     fs.rmSync(work, { recursive: true, force: true });
-    const r = await buildInto(file, { ...o, out: work });
+    let r: BuildResult;
+    try { r = await buildInto(file, { ...o, out: work }); } catch (e) {
+      // The scratch folder goes when the build stops: an error naming a file in it would name a file that no longer exists.
+      if (e instanceof OfframpError && e.file && path.resolve(e.file).startsWith(work + path.sep)) {
+        const inside = path.relative(work, path.resolve(e.file)).split(path.sep).join('/');
+        throw new OfframpError(e.kind, e.message, file, [`the build's ${inside}`, e.where].filter(Boolean).join(', '));
+      }
+      throw e;
+    }
     const rel = (f: string) => path.relative(work, f).split(path.sep).join('/');
     const at = (f: string) => path.join(o.out, rel(f));
     const done: BuildResult = {
@@ -140,7 +199,7 @@ export async function buildExits(file: string, o: BuildOptions): Promise<BuildRe
   }, () => fs.rmSync(work, { recursive: true, force: true }));
 }
 
-async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
+async function buildInto(file: string, o: BuildOptions & { target?: Target }): Promise<BuildResult> {
   const say = (step: string, detail: string) => o.progress?.(step, detail);
   const maxDrop = o.maxDrop ?? 1, confidence = o.confidence ?? 0.95, head: HeadKind = o.head ?? { kind: 'linear' }, seed = o.seed ?? 1;
   if (!(confidence > 0 && confidence < 1)) throw new OfframpError('usage', `--confidence must lie strictly between 0 and 1, not ${confidence}`);
@@ -208,22 +267,35 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const c = writeC(o.out, path.join(o.out, FIRMWARE_DIR));
 
   say('check', 'staged chain against the grafted model');
-  const chain = await loadChain(o.out);
+  // Fusion off on both sides: the same kernel per node, so what differs is the split, not onnxruntime's rounding.
+  const chain = await loadChain(o.out, { optimization: 'disabled' });
   let check: CheckResult;
   try {
     // TensorProto folders: seeded random inputs of the right shape, as `offramp check` uses without data.
     const n = o.checkSamples ?? 16;
     const samples = fs.statSync(o.data).isDirectory() ? randomSamples(manifest.inputs, n, seed) : npySamples(manifest.inputs, { [manifest.inputs[0].name]: o.data }, n);
-    check = await checkChain(chain, modelFile, samples);
+    check = await checkChain(chain, modelFile, samples, { rtol: CHECK_RTOL });
   } finally { await chain.release(); }
-  if (!check.ok) throw new OfframpError('runtime', `the staged chain does not reproduce the model: ${check.diffs.filter((d) => !d.ok).map((d) => d.name).join(', ')}`, modelFile);
+  if (!check.ok) {
+    const bad = check.diffs.filter((d) => !d.ok);
+    const size = (d: CheckResult['diffs'][number]) => d.note ?? `differs by up to ${d.maxAbs.toExponential(2)} (relative ${d.maxRel.toExponential(2)}, over the tolerance ${CHECK_RTOL.toExponential(0)}) in ${d.mismatched} of ${d.elements} values`;
+    throw new OfframpError('runtime', `the staged chain does not reproduce the grafted model on ${check.samples} samples: ${bad.map((d) => `${d.name} ${size(d)}`).join('; ')}`, file);
+  }
 
   let int8: Int8Build | undefined;
+  let firmware = c.written;
   if (o.int8) {
     say('quantize', `int8 stage files calibrated on ${fitData.rows} rows, policy tuned on the int8 chain`);
     int8 = await buildInt8({ out: o.out, modelFile, data: o.data, tuneData, tuneLabels, unlabelled: freeData, sample: io.sample, maxDrop, confidence, target: o.target, checkSamples: o.checkSamples });
-    // The firmware decides on the chain that runs: the int8 one.
-    writeC(int8.dir, path.join(o.out, FIRMWARE_DIR));
+    // The firmware is the chain that runs: the whole int8 network, its exits and policy.
+    firmware = writeFirmware(int8.dir, path.join(o.out, FIRMWARE_DIR)).written;
+  }
+  let device: DeviceReport | undefined;
+  if (o.measure) {
+    if (!int8) throw new OfframpError('usage', 'measuring runs the int8 firmware: give --int8 with --measure');
+    say('measure', `the int8 firmware on an emulated ${o.measure.core}, ${o.measure.rows} rows`);
+    const clock = o.target ? Number(o.target.clockMhz.num) / Number(o.target.clockMhz.den) : undefined;
+    device = await measureDevice({ dir: int8.dir, data: o.data, labels: o.labels, core: o.measure.core, rows: o.measure.rows, clockMhz: clock });
   }
 
   say('budget', o.target ? o.target.name ?? 'target' : 'no target given');
@@ -232,8 +304,9 @@ async function buildInto(file: string, o: BuildOptions): Promise<BuildResult> {
   const budget = int8 ? int8.budget : o.target && budgetOf(staged.model, cost, o.target, 'stored');
 
   return {
-    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...c.written, ...(int8?.files ?? [])],
+    dir: o.out, source: file, model: modelFile, files: [modelFile, ...split.files, ...new Set([...c.written, ...firmware]), ...(int8?.files ?? [])],
     candidates: cands.map((c, k) => ({ cut: c.tensors[0].name, macFraction: c.macFraction, head: trialExits[k] })),
-    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }),
+    placement, exits: exitRecords(g), manifest, tuned, policy, check, cost, budget, manifestSha256: '', ...(int8 && { int8 }), ...(device && { device }),
+    ...(trial.warnings.length && { headWarnings: trial.warnings.map((w) => w.replace(/^exit-\d+ at/, 'the candidate head at')) }),
   };
 }

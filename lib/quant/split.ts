@@ -21,12 +21,13 @@ import { fileArena, MANIFEST_FILE, type Manifest, type ManifestStage, type Manif
 import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
-import { hashedName, removeDescribing, sha256, sweepAll } from '../split/commit.js';
+import { hashedName, NESTED, ownedBefore, removeDescribing, sha256, sweepAll } from '../split/commit.js';
 import { OfframpError } from '../errors.js';
 import { foldBatchNorm } from './fold-bn.js';
 import { activationPlan, QDQ_OPS, toQdq, type ActivationPlan, type ActParams } from './qdq.js';
-import { chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type CalibrationMethod } from './calibrate.js';
+import { CALIBRATION_METHODS, chooseRange, DEFAULT_PERCENTILE, Histogram, RangeObserver, type CalibrationMethod } from './calibrate.js';
 import { activationParams } from './linear.js';
+import { raiseOpset } from './opset.js';
 
 /**
  * Default calibration: `minmax`. Clipping methods (`percentile`, `mse`) lower the reconstruction error
@@ -71,7 +72,8 @@ const dataPath = (from: string, file: string) => {
 interface Stage { entry: ManifestStage; file: string; model: Model; plan: ActivationPlan }
 
 /** The stages of a float split, BatchNormalization folded; refuses a folder that is already quantized. */
-function readStages(dir: string, manifest: Manifest, manifestFile: string): { stages: Stage[]; folded: number } {
+function readStages(dir: string, manifest: Manifest, manifestFile: string): { stages: Stage[]; folded: number; opset?: { from: number; to: number } } {
+  let opset: { from: number; to: number } | undefined;
   if (manifest.quantization) throw new OfframpError('data', `already quantized (from ${manifest.quantization.from.file}): quantize the float split instead`, manifestFile);
   let folded = 0;
   const stages = manifest.stages.map((entry) => {
@@ -83,12 +85,16 @@ function readStages(dir: string, manifest: Manifest, manifestFile: string): { st
     const q = loaded.graph.nodes.find((n) => QDQ_OPS.has(n.op));
     if (q || [...entry.inputs, ...entry.outputs].some((t) => t.dtype === 'int8' || t.dtype === 'uint8'))
       throw new OfframpError('data', `already quantized (${q ? `it holds ${q.op}` : 'int8 handover tensors'}): quantize the float split instead`, file);
-    const f = foldBatchNorm(loaded);
+    // Opset 11/12 raised to 13 where every operator means the same there (quant/opset.ts), else refused by operator.
+    const before = inferShapes(loaded, { batch: 1 });
+    const raised = raiseOpset(loaded, (v) => before.values.get(v)?.type.shape?.length, file);
+    if (raised.from !== raised.to) opset = { from: raised.from, to: raised.to };
+    const f = foldBatchNorm(raised.model);
     folded += f.folded;
     const shapes = inferShapes(f.model, { batch: 1 });
     return { entry, file, model: f.model, plan: activationPlan(f.model, shapes) };
   });
-  return { stages, folded };
+  return { stages, folded, opset };
 }
 
 /** Calibration rows as batch-1 float32 tensors, checked against the chain input. */
@@ -148,10 +154,37 @@ async function pass(sessions: Session[], stages: Stage[], data: string, input: M
  * (the commit point, split/commit.ts), then stage files it does not name are removed.
  */
 export async function quantizeSplit(dir: string, o: QuantizeOptions): Promise<QuantizeResult> {
+  checkQuantizeOptions(o);
   const { manifest: src, file: srcFile } = readManifest(dir);
   const final = path.resolve(o.out);
-  if (final === path.resolve(path.dirname(srcFile))) throw new OfframpError('usage', 'the output folder is the input split: give another -o');
+  refuseOverInput(path.dirname(srcFile), final);
   return o.inScratch ? quantizeInto(src, srcFile, o) : withFolder(final, () => quantizeInto(src, srcFile, o));
+}
+
+/** The options, checked as the CLI checks them: a wrong one is an error naming it, never a manifest recording it. */
+function checkQuantizeOptions(o: QuantizeOptions): void {
+  const bad = (opt: string, what: string, v: unknown) => new OfframpError('usage', `${opt} takes ${what}, not ${JSON.stringify(v) ?? String(v)}`);
+  if (!o || typeof o !== 'object') throw new OfframpError('usage', 'quantizeSplit needs options { data, out, … }');
+  if (typeof o.data !== 'string' || !o.data) throw bad('data', 'the .npy calibration file', o.data);
+  if (typeof o.out !== 'string' || !o.out) throw bad('out', 'the output folder', o.out);
+  if (o.calibration !== undefined && !CALIBRATION_METHODS.includes(o.calibration)) throw bad('calibration', CALIBRATION_METHODS.join(', '), o.calibration);
+  if (o.percentile !== undefined && !(typeof o.percentile === 'number' && o.percentile > 50 && o.percentile <= 100)) throw bad('percentile', 'a number above 50 and at most 100', o.percentile);
+  if (o.samples !== undefined && !(Number.isSafeInteger(o.samples) && o.samples > 0)) throw bad('samples', 'a positive whole number', o.samples);
+  if (o.parity !== undefined && o.parity !== 0 && o.parity !== 1) throw bad('parity', '0 or 1', o.parity);
+}
+
+const sameDir = (a: string, b: string) => {
+  try { const x = fs.statSync(a), y = fs.statSync(b); return x.dev === y.dev && x.ino === y.ino; } catch { return false; }
+};
+
+/**
+ * The output folder's commit removes what describes its manifest (its nested int8/manifest.json among
+ * them) and sweeps the content files of it and its nested folders: the input split must be none of
+ * them, under whatever path or link names it (compared by device and inode).
+ */
+function refuseOverInput(srcDir: string, out: string): void {
+  if (sameDir(srcDir, out)) throw new OfframpError('usage', `${out}: refusing to write over an input (the split being quantized)`);
+  for (const n of NESTED) if (sameDir(srcDir, path.join(out, n))) throw new OfframpError('usage', `${out}: refusing to write over an input (the split being quantized is its ${n}/ folder, which the commit replaces)`);
 }
 
 async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions): Promise<QuantizeResult> {
@@ -160,7 +193,7 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
   const method = o.calibration ?? DEFAULT_CALIBRATION, pct = o.percentile ?? DEFAULT_PERCENTILE;
   if (src.inputs.length !== 1 || src.inputs[0].dtype !== 'float32') throw new OfframpError('data', 'quantize calibrates a chain with one float32 input', srcFile);
   const input = src.inputs[0];
-  const { stages, folded } = readStages(srcDir, src, srcFile);
+  const { stages, folded, opset } = readStages(srcDir, src, srcFile);
   const limit = o.samples ?? Infinity;
   const h = readNpyHeader(o.data);
   const total = Math.min(o.parity === undefined ? h.rows : Math.floor((h.rows + 1 - o.parity) / 2), limit);
@@ -257,15 +290,17 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
         calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, ...(o.parity !== undefined && { rows: o.parity ? 'odd' as const : 'even' as const }), data: { file: dataPath(final, o.data), sha256: sha256(dataBytes) } },
         weights: 'int8 symmetric per output channel (Conv, Gemm, MatMul)', biases: 'int32, scale s_x·s_w', activations: 'int8 asymmetric per tensor',
         foldedBatchNorms: folded,
+        ...(opset && { opset }),
       },
     };
     delete manifest.policy;
     // The commit, as a split makes it: what described the old manifest goes, the manifest comes in,
     // stage files it does not name go last.
+    const owned = ownedBefore(final, MANIFEST_FILE);
     removeDescribing(final);
     writeAtomic(path.join(final, MANIFEST_FILE), toJson(manifest) + '\n');
     added.length = 0;
-    sweepAll(final, manifest, MANIFEST_FILE, [sourceFile]);
+    sweepAll(final, manifest, MANIFEST_FILE, [sourceFile, o.data], owned);
     const files = [...entries.map((e) => e.file), MANIFEST_FILE];
     return { dir: o.out, manifest, files: files.map((f) => path.join(o.out, f)), folded, weights, biases, samples };
   } finally {

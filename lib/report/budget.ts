@@ -2,7 +2,7 @@
 // objects as they are (fields "budget" and "reorder" of the cost report).
 import type { CostReport } from '../cost/report.js';
 import type { MemoryOrder } from '../cost/reorder.js';
-import type { Budget, Fit, Over, Precision, StageCheck } from '../chip/budget.js';
+import type { Budget, Fit, LatencyBasis, Over, Precision, StageCheck } from '../chip/budget.js';
 import { bytes, mdTable, scaled, si, table } from './units.js';
 import { FINAL } from './words.js';
 
@@ -26,7 +26,9 @@ const verdict = (c: { flash: Fit; ram: Fit }) => {
   return over.length ? `OVER ${over.join('+')}` : 'fits';
 };
 
-const HEAD = ['stage', 'ends at', 'as', 'MACs', 'weights', 'flash margin', 'peak act.', 'arena', 'handover', 'RAM need', 'RAM margin', 'latency', 'to exit', 'verdict'];
+const HEAD = ['stage', 'ends at', 'as', 'MACs', 'weights', 'flash margin', 'peak act.', 'arena', 'handover', 'RAM need', 'RAM margin', 'latency', 'to exit', 'latency is', 'verdict'];
+/** The basis of a latency in a table cell: the long form goes under the table (basisLines). */
+export const basisWord = (b: LatencyBasis) => (b === 'projected from the measured rate' ? 'projected' : b);
 /** The int8 projection of files already int8 (QDQ as stored) is the stored figures again: one row, not two. */
 const sameCheck = (a: StageCheck | { flash: Fit; ram: Fit }, c: StageCheck | { flash: Fit; ram: Fit }) =>
   a.flash.need === c.flash.need && a.ram.need === c.ram.need && ('latencyNs' in a && 'latencyNs' in c ? a.latencyNs === c.latencyNs : true);
@@ -44,13 +46,13 @@ function rows(b: Budget, label: string): string[][] {
     out.push([
       firstRow ? String(s.index) : '', firstRow ? s.cut || FINAL : '', name(p), firstRow ? si(s.macs) : '',
       bytes(c.weightBytes), margin(c.flash), bytes(c.peakBytes), bytes(c.arenaBytes), bytes(c.handoverBytes), bytes(c.ram.need), margin(c.ram),
-      duration(c.latencyNs), duration(c.cumulativeNs), verdict(c),
+      duration(c.latencyNs), duration(c.cumulativeNs), basisWord(c.latencyBasis), verdict(c),
     ]);
   }
   if (b.stages.length > 1) for (const p of precisions) {
     const a = b.all[p];
     out.push([p === 'stored' ? 'all' : '', '', name(p), '', bytes(a.flash.need), margin(a.flash), '', '', '', bytes(a.ram.need), margin(a.ram),
-      duration(b.stages[b.stages.length - 1][p].cumulativeNs), '', verdict(a)]);
+      duration(b.stages[b.stages.length - 1][p].cumulativeNs), '', basisWord(b.stages[b.stages.length - 1][p].latencyBasis), verdict(a)]);
   }
   return out;
 }
@@ -60,7 +62,19 @@ function targetLine(b: Budget): string {
   const t = b.target;
   return `${t.name}: flash ${bytes(t.flashBytes)}, RAM ${bytes(t.ramBytes)}, ${t.clockMhz} MHz, ${rate(t.macsPerCycle)}`
     + (t.int8MacsPerCycle !== t.macsPerCycle ? ` (int8 ${rate(t.int8MacsPerCycle)})` : '')
-    + (t.rough ? ' — ROUGH FIGURES, FROM MEMORY: give your part\'s own' : '');
+    + (!t.rough ? '' : t.rateBasis.float === 'measured' || t.rateBasis.int8 === 'measured'
+      ? ` — MAC rates ${t.rateBasis.float === t.rateBasis.int8 ? '' : `(${t.rateBasis.float === 'measured' ? 'float32' : 'int8'}) `}measured on the emulated core, cycles per instruction estimated; flash, RAM and clock ROUGH FIGURES, FROM MEMORY: give your part's own`
+      : ' — ROUGH FIGURES, FROM MEMORY: give your part\'s own');
+}
+
+/** What the latencies are, in words, one line per basis the table shows. */
+export function basisLines(b: Budget): string[] {
+  const seen = new Set(b.stages.flatMap((s) => [s.stored.latencyBasis, s.int8.latencyBasis]));
+  const out: string[] = [];
+  if (seen.has('projected from the measured rate')) out.push('projected: MACs / the MAC rate measured on the emulated core (instructions exact, cycles at an estimated cycles per instruction), not this model run');
+  if (seen.has('from memory')) out.push('from memory: MACs / a MAC rate nobody measured here (a from-memory profile figure, or one given in an option or profile file)');
+  if (seen.has('measured')) out.push('measured: this firmware\'s instructions counted on the emulated core, cycles at an estimated cycles per instruction');
+  return out;
 }
 
 /** Exact bytes beside the rounded figure, for the lines a CI log shows. */
@@ -82,7 +96,7 @@ function verdictLines(b: Budget, label: string): string[] {
 export function budgetText(b: Budget, label = 'as stored', o: { verbose?: boolean } = {}): string {
   return [
     `target     ${targetLine(b)}`,
-    table(HEAD, rows(b, label)),
+    table(HEAD, rows(b, label)) + '\n' + basisLines(b).map((l, i) => `${i ? '          ' : 'latency   '} ${l}`).join('\n'),
     verdictLines(b, label).join('\n'),
     o.verbose ? b.conventions.map((c, i) => `${i ? '          ' : 'figures   '} ${c}`).join('\n') : 'figures    how each is counted: --verbose',
   ].join('\n\n') + '\n';
@@ -91,7 +105,7 @@ export function budgetText(b: Budget, label = 'as stored', o: { verbose?: boolea
 /** Markdown is a report to keep: the conventions always go with it. */
 export function budgetMarkdown(b: Budget, label = 'as stored'): string {
   return [
-    '### Budget', `- **target** ${targetLine(b)}`, mdTable(HEAD, rows(b, label)),
+    '### Budget', `- **target** ${targetLine(b)}`, mdTable(HEAD, rows(b, label)), basisLines(b).map((l) => `- **latency** ${l}`).join('\n'),
     verdictLines(b, label).map((l) => `- ${l.trim().replace(/^(verdict|over)\s+/, '**$1** ')}`).join('\n'),
     b.conventions.map((c) => `- ${c}`).join('\n'),
   ].join('\n\n') + '\n';

@@ -5,12 +5,13 @@ import type { Policy } from '../policy/policy.js';
 import path from 'node:path';
 import { bytes, si, table, toJson } from './units.js';
 import { esc, lineChart, barChart, type Series } from './svg.js';
-import { budgetText, duration, overLine, storedLabel } from './budget.js';
+import { basisWord, budgetText, duration, overLine, storedLabel } from './budget.js';
 import { count, dropWords, FINAL, promiseSentence } from './words.js';
 import { roundNoise } from '../util/json.js';
 import { MANIFEST_FILE, type ManifestPolicy } from '../split/manifest.js';
 import { frontSeries, guaranteeLines } from './tune.js';
 import type { Guarantee } from '../certify/guarantee.js';
+import type { DeviceReport } from '../measure/device.js';
 
 /** /3: as /2 plus `int8.againstFloat`, the deployed int8 chain set against the float model. */
 export const BUILD_SCHEMA = 'offramp-build/3';
@@ -55,7 +56,17 @@ export function buildSummary(r: BuildResult) {
     fronts: r.tuned.kinds.map((k) => ({ kind: k.kind, points: k.front.map((p) => ({ meanMacs: p.held.meanMacs, accuracy: p.held.accuracy, bound: p.cert?.bound ?? null, passed: p.cert?.passed ?? false })) })),
     budget: r.budget ?? null,
     ...(r.int8 && { int8: int8Summary(r) }),
+    ...(r.device && { device: r.device }),
   };
+}
+
+/** The device headline: what the exits save on the (emulated) microcontroller, in instructions and estimated time. */
+export function deviceLines(d: DeviceReport): string[] {
+  const f = d.perFrame, ms = (us: number) => (us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us} µs`);
+  return [
+    `on device  emulated ${d.core}, int8 firmware on ${d.frames} rows: ${si(f.policy)} instructions per frame with the policy vs ${si(f.full)} for the whole network — ${(f.savedShare * 100).toFixed(1)} % saved`,
+    `           ≈ ${ms(f.policyMicroseconds)} vs ${ms(f.fullMicroseconds)} per frame at ${d.basis.clockMhz} MHz (estimate: ${d.basis.cyclesPerInstruction} cycles per instruction; the instruction counts are exact); flash ${bytes(d.flash.libraryBytes)}, RAM ${bytes(d.ram.libraryBytes)} + stack ${bytes(d.ram.stackPeakBytes)}; answers ${d.answers.equalToReference === d.frames ? 'equal to' : 'DIFFERENT from'} the integer reference`,
+  ];
 }
 
 /** A tuned policy's figures on the certification part, for report.json. */
@@ -109,6 +120,7 @@ function buildDetail(r: BuildResult): string[] {
     `float32    ${policyText(s.policy)}: ${pct(h.saving)} saved, accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model on ${h.samples} held-out samples`,
     ...promiseText(s.guarantee),
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
+    ...(r.headWarnings ?? []).map((w) => `note       ${w}`),
     '',
     table(['float32 stage', 'MACs', 'weights', 'peak act.', 'arena', 'hands over', 'exit', 'leaves here'], rows),
   ];
@@ -139,6 +151,8 @@ export function buildText(r: BuildResult, o: { verbose?: boolean } = {}): string
   const s = buildSummary(r), q = r.int8 && int8Summary(r);
   const h = s.heldOut, d = q ? q.heldOut : h, policy = q ? q.policy : s.policy, g = q ? q.guarantee : s.guarantee;
   const full = q ? 'the full int8 chain' : 'the full model';
+  // the number an engineer takes to a design review goes first
+  const head = r.device ? [...deviceLines(r.device), ''] : [];
   const lines = [
     `built      ${r.dir}: ${count(s.exits.length, 'exits')} (${[...new Set(s.exits.map((e) => e.head))].join(', ')} heads), ${s.stages.length} stages; ` +
       (s.check.ok ? `the stages compute what the grafted model does (${s.check.samples} samples)` : `MISMATCH: the stages differ from the grafted model (max abs diff ${s.check.maxAbs})`),
@@ -155,7 +169,7 @@ export function buildText(r: BuildResult, o: { verbose?: boolean } = {}): string
   const b = r.budget;
   if (b) {
     const gate = b.gate === 'stored' ? (q ? 'the int8 files as stored' : storedLabel(r.cost)) : 'an int8 projection';
-    lines.push(`target     ${b.target.name}${b.target.rough ? ' (rough figures, from memory: give your part\'s own)' : ''}: ${b.fits ? 'every stage fits' : `OVER BUDGET: ${overLine(b.over[0], q ? 'int8 as stored' : storedLabel(r.cost))}`}, judged on ${gate}`);
+    lines.push(`target     ${b.target.name}${!b.target.rough ? '' : b.target.rateBasis.float === 'measured' || b.target.rateBasis.int8 === 'measured' ? ' (MAC rates measured on the emulated core; flash, RAM and clock from memory: give your part\'s own)' : ' (rough figures, from memory: give your part\'s own)'}: ${b.fits ? 'every stage fits' : `OVER BUDGET: ${overLine(b.over[0], q ? 'int8 as stored' : storedLabel(r.cost))}`}, judged on ${gate}`);
   }
   lines.push('', table(['stage', 'MACs', 'weights', 'RAM', 'latency', 'exit', 'leaves here', ...(b ? ['verdict'] : [])], s.stages.map((st, k) => {
     const c = b?.stages[k]?.[b.gate];
@@ -163,18 +177,30 @@ export function buildText(r: BuildResult, o: { verbose?: boolean } = {}): string
     return [String(k), si(st.macs), bytes(c ? c.weightBytes : weights), c ? bytes(c.ram.need) : bytes(st.arenaBytes ?? st.peakActivationBytes), c ? duration(c.cumulativeNs) : '-',
       st.exits.join(',') || FINAL, pct(d.exitShare[k] ?? 0), ...(c ? [c.flash.fits && c.ram.fits ? 'fits' : 'OVER'] : [])];
   })));
-  lines.push(`(weights in flash; RAM: the stage's arena plus the buffers it hands over; latency: MACs at the target's rate, to the end of the stage)`);
+  const bases = b ? [...new Set(b.stages.map((x) => basisWord(x[b.gate].latencyBasis)))].join(', ') : '';
+  lines.push(`(weights in flash; RAM: the stage's arena plus the buffers it hands over; latency: to the end of the stage${b ? `, ${bases}` : ''})`);
   if (!o.verbose) {
     lines.push('',
       `read       ${path.join(r.dir, 'report.html')} (report.json for scripts; firmware C in ${path.join(r.dir, 'firmware')})`,
       `next       offramp replay ${r.dir}${q ? `/${q.dir}` : ''} --data NEW.npy --labels NEW-y.npy    (the policy on data the build never saw)`,
       `more       --verbose (cuts, stage files, the budget per precision and how each figure is counted), --json`);
-    return lines.join('\n') + '\n';
+    return [...head, ...lines].join('\n') + '\n';
   }
-  return [...lines, '', ...buildDetail(r), '', `grafted    ${r.model} (stage files and model are named by their content)`, `report     ${path.join(r.dir, 'report.html')} (and report.json)`].join('\n') + '\n';
+  return [...head, ...lines, '', ...buildDetail(r), '', `grafted    ${r.model} (stage files and model are named by their content)`, `report     ${path.join(r.dir, 'report.html')} (and report.json)`].join('\n') + '\n';
 }
 
 // ── HTML ────────────────────────────────────────────────────────────────────
+
+function deviceHtml(d: DeviceReport): string {
+  const f = d.perFrame;
+  const rows = d.stages.map((st) => `<tr><td>${st.index}</td><td>${si(st.macs)}</td><td>${si(st.instructions)}</td><td>${st.instructionsPerMac.toFixed(2)}</td></tr>`).join('');
+  const paths = d.paths.map((p) => `<tr><td>${p.exit === d.exits ? 'final output' : `exit ${p.exit}`}</td><td>${p.frames}</td><td>${si(p.meanInstructions)}</td></tr>`).join('');
+  return `<h2>On the device (emulated ${esc(d.core)})</h2>
+<p class="verdict">${si(f.policy)} instructions per frame with the policy against ${si(f.full)} for the whole network: ${(f.savedShare * 100).toFixed(1)} % saved.</p>
+<p>The int8 firmware emit-c writes, compiled with arm-none-eabi-gcc for ${esc(d.core)} and run under QEMU (${esc(d.machine)}) on ${d.frames} rows; instructions counted exactly. Estimated ${f.policyMicroseconds} µs against ${f.fullMicroseconds} µs per frame at ${d.basis.clockMhz} MHz (${d.basis.cyclesPerInstruction} cycles per instruction, an estimate; no wait states). Flash ${bytes(d.flash.libraryBytes)}, RAM ${bytes(d.ram.libraryBytes)} + stack peak ${bytes(d.ram.stackPeakBytes)}. Answers equal to the TypeScript integer reference on ${d.answers.equalToReference} of ${d.frames} rows, to onnxruntime's on ${d.answers.equalToOnnxruntime}.</p>
+<table><tr><th>stage</th><th>MACs</th><th>instructions</th><th>per MAC</th></tr>${rows}</table>
+<table><tr><th>answer from</th><th>frames</th><th>instructions per frame</th></tr>${paths}</table>`;
+}
 
 /** The self-contained report page: summary, charts (inline SVG), stages against the chip, exit placement. */
 export function buildHtml(r: BuildResult): string {
@@ -188,7 +214,7 @@ export function buildHtml(r: BuildResult): string {
   const stageRows = s.stages.map((st, k) => {
     const sb = b?.stages[k], c = sb?.[b!.gate];
     const fit = sb ? (sb.fits ? 'fits' : '<b>over</b>') : '-';
-    const lat = c ? duration(c.latencyNs) : '-';
+    const lat = c ? `${duration(c.latencyNs)} <small>(${esc(c.latencyBasis)})</small>` : '-';
     const file = q ? q.stages[k].file : st.file;
     const w = q ? BigInt(q.stages[k].weightBytes) : st.weightBytes;
     const peak = q ? BigInt(q.stages[k].peakActivationBytes) : st.peakActivationBytes;
@@ -198,7 +224,7 @@ export function buildHtml(r: BuildResult): string {
     return `<tr><td>${k}</td><td><code>${esc(file)}</code></td><td>${si(st.macs)}</td><td>${bytes(w)}</td><td>${bytes(peak)}</td><td>${arena === null || arena === undefined ? '-' : bytes(BigInt(arena))}</td><td>${hand ? bytes(BigInt(hand)) : '-'}</td>${float}<td>${esc(st.exits.join(', ') || FINAL)}</td><td>${pct(d.exitShare[k] ?? 0)}</td><td>${lat}</td><td>${fit}</td></tr>`;
   }).join('');
   const candRows = s.placement.candidates.map((c) => `<tr><td><code>${esc(c.cut)}</code></td><td>${pct(c.macFraction)}</td><td>${c.accuracy === null ? '-' : pct(c.accuracy)}</td><td>${pct(c.agreement)}</td><td>${s.exits.some((e) => e.cut === c.cut) ? 'yes' : ''}</td></tr>`).join('');
-  const target = b ? `${esc(b.target.name)}: flash ${bytes(b.target.flashBytes)}, RAM ${bytes(b.target.ramBytes)}, ${b.target.clockMhz} MHz, ${b.target.macsPerCycle} MAC/cycle${b.target.int8MacsPerCycle !== b.target.macsPerCycle ? ` (int8 ${b.target.int8MacsPerCycle})` : ''}${b.target.rough ? ' (rough figures, from memory)' : ''}` : 'none given';
+  const target = b ? `${esc(b.target.name)}: flash ${bytes(b.target.flashBytes)}, RAM ${bytes(b.target.ramBytes)}, ${b.target.clockMhz} MHz, ${b.target.macsPerCycle} MAC/cycle float32 (${esc(b.target.rateBasis.float)}), ${b.target.int8MacsPerCycle} int8 (${esc(b.target.rateBasis.int8)})${b.target.rough ? '; flash, RAM and clock of a typical part, from memory' : ''}` : 'none given';
   const chain = q ? 'int8' : 'float32';
   const full = q ? 'the full int8 chain' : 'the full model';
   const g = q ? q.guarantee : s.guarantee;
@@ -221,6 +247,7 @@ ${q ? `<li>The float32 chain: policy <code>${esc(policyText(s.policy))}</code>, 
 <li>Target: ${target}.</li>
 <li>Describes <code>${MANIFEST_FILE}</code> with SHA-256 <code class="manifest-sha256">${esc(s.manifest.sha256)}</code>.</li>
 </ul>
+${r.device ? deviceHtml(r.device) : ''}
 <h2>Stages${q ? ' of the int8 chain' : ''}</h2>
 <table class="stages"><tr><th>stage</th><th>file</th><th>MACs</th><th>weights</th><th>peak act.</th><th>arena</th><th>hands over</th>${q ? '<th>float32 weights</th><th>float32 peak act.</th>' : ''}<th>exit</th><th>leaves here</th><th>latency</th><th>verdict</th></tr>${stageRows}</table>
 ${lineChart(`Accuracy vs mean MACs per policy on the ${chain} chain (certification part; grey: full accuracy − certified bound)`, 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}

@@ -148,7 +148,7 @@ export function tuneJson(t: TuneReport): string {
   return toJson({
     schema: TUNE_SCHEMA, data: t.data, stream: t.stream, labelled: r.labelled, maxDrop: r.maxDrop, split: r.split,
     exits: t.exitNames, reach: r.reach, stages: t.stages, settings: r.settings,
-    guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null,
+    guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null, ...(t.manifestNote && { manifestNote: t.manifestNote }),
     ...('scenes' in r && { scenes: (r as { scenes: unknown }).scenes }),
   }) + '\n';
 }

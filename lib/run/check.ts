@@ -99,7 +99,8 @@ async function runBoth(chain: Chain, modelFile: string, samples: Sample[], see: 
   readRegular(modelFile, 'model');
   // Loaded by offramp, external data included (confined to the model's folder), then given inline;
   // the runner's own session kind: same options and kernels as the awaited API, without its per-call hop.
-  const session = openSyncSession(modelBytes(loadModel(modelFile)), modelFile);
+  // At the chain's own optimisation level: judged with fusion off, both sides run the same kernel per node.
+  const session = openSyncSession(modelBytes(loadModel(modelFile)), modelFile, chain.optimization ?? 'all');
   try {
     for (const s of samples) {
       const want = session.run(s);

@@ -46,10 +46,19 @@ export interface SyncSession {
   release(): void;
 }
 
-export function openSyncSession(bytes: Uint8Array, file?: string): SyncSession {
+/**
+ * Graph optimisation: 'all' for running (the blocked conv layout), 'disabled' for judging two graphs of
+ * the same nodes against each other: at 'all' onnxruntime fuses a whole model and its stage files
+ * differently (a residual Add into a Conv on one side only), one rounding step apart; with no fusion each
+ * node runs the same kernel on both sides.
+ */
+export type Optimization = 'all' | 'disabled';
+
+export function openSyncSession(bytes: Uint8Array, file?: string, optimization: Optimization = 'all'): SyncSession {
   initOrt();
   const s = new binding.InferenceSession();
-  try { s.loadModel(bytes.buffer as ArrayBuffer, bytes.byteOffset, bytes.byteLength, OPTIONS); } catch (e) {
+  const options = optimization === 'all' ? OPTIONS : { ...OPTIONS, graphOptimizationLevel: optimization };
+  try { s.loadModel(bytes.buffer as ArrayBuffer, bytes.byteOffset, bytes.byteLength, options); } catch (e) {
     throw new OfframpError('runtime', `onnxruntime cannot load the model: ${firstLine(e)}`, file);
   }
   const inputNames = s.inputMetadata.map((m) => m.name), outputNames = s.outputMetadata.map((m) => m.name);

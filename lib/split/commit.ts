@@ -27,7 +27,7 @@ export const INT8_DIR = 'int8';
  * Files that describe one manifest (each names its SHA-256): a split removes them, a build writes
  * them anew. The firmware code holds the stage table: stale, it would be wrong, not just old.
  */
-export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', `${INT8_DIR}/manifest.json`];
+export const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'firmware/offramp_net.h', 'firmware/offramp_net.c', `${INT8_DIR}/manifest.json`];
 
 /**
  * Split folders a build nests in its own (`build --int8` writes the quantized split into DIR/int8).
@@ -44,43 +44,80 @@ interface Named { stages: { file: string }[]; source: { file: string } }
 
 const real = (f: string) => { try { return fs.realpathSync(f); } catch { return path.resolve(f); } };
 
+/** What offramp wrote into a folder and its nested folders, as their manifests named it before a commit. */
+export type Owned = Map<string, Set<string>>;
+
+const namesOf = (file: string): Set<string> => {
+  try {
+    const m = JSON.parse(fs.readFileSync(file, 'utf8')) as Named;
+    return new Set([...(Array.isArray(m.stages) ? m.stages.map((s) => String(s?.file)) : []), ...(m.source?.file ? [String(m.source.file)] : [])]);
+  } catch { return new Set(); }
+};
+
+/** Call before step 2: the files the folder's current manifests name (the sweep may remove those). */
+export function ownedBefore(dir: string, manifestName: string): Owned {
+  const owned: Owned = new Map([['', namesOf(path.join(dir, manifestName))]]);
+  for (const n of NESTED) owned.set(n, namesOf(path.join(dir, n, manifestName)));
+  return owned;
+}
+
 /**
- * Step 5: remove content files `manifest` does not name; never one of `keep` (the source model, say).
- * In a nested split folder, the same against its own manifest, or all its content files if it has
- * none (a build without --int8 over one with it); the folder goes once empty.
+ * Did offramp write this content file? A hashed name holds the first 16 hex of the file's own SHA-256
+ * (a user's file that merely looks like one does not); any other name only if the folder's previous
+ * manifest named it.
  */
-export function sweep(dir: string, manifest: Named | undefined, keep: string[] = []): void {
+function written(p: string, name: string, before: Set<string> | undefined): boolean {
+  if (before?.has(name)) return true;
+  const m = /\.([0-9a-f]{16})\.onnx$/.exec(name);
+  if (!m) return false;
+  try { return sha256(fs.readFileSync(p)).startsWith(m[1]); } catch { return false; }
+}
+
+/**
+ * Step 5: remove content files `manifest` does not name that offramp wrote (see `written`); never one
+ * of `keep` (the source model, the data, say). In a nested split folder, the same against its own
+ * manifest, or all such files if it has none (a build without --int8 over one with it); the folder
+ * goes once empty.
+ */
+export function sweep(dir: string, manifest: Named | undefined, keep: string[] = [], before?: Set<string>): void {
   const named = new Set(manifest ? [...manifest.stages.map((s) => s.file), manifest.source.file] : []);
   const kept = new Set(keep.map(real));
   let files: string[];
   try { files = fs.readdirSync(dir); } catch { return; }
   for (const f of files) {
     const p = path.join(dir, f);
-    if (isContentFile(f) && !named.has(f) && !kept.has(real(p))) fs.rmSync(p, { force: true });
+    if (isContentFile(f) && !named.has(f) && !kept.has(real(p)) && written(p, f, before)) fs.rmSync(p, { force: true });
   }
   if (!manifest) { try { fs.rmdirSync(dir); } catch { /* not empty: files it does not own stay */ } }
 }
 
 /** Step 5 for the nested folders of `dir`. */
-function sweepNested(dir: string, manifestName: string, keep: string[]): void {
+function sweepNested(dir: string, manifestName: string, keep: string[], owned?: Owned): void {
   for (const n of NESTED) {
     const sub = path.join(dir, n);
     if (!fs.existsSync(sub)) continue;
     let m: Named | undefined;
     try { m = JSON.parse(fs.readFileSync(path.join(sub, manifestName), 'utf8')) as Named; } catch { m = undefined; }
-    sweep(sub, m, keep);
+    sweep(sub, m, keep, owned?.get(n));
   }
 }
 
-/** Step 5 for a folder and its nested folders. */
-export function sweepAll(dir: string, manifest: Named, manifestName: string, keep: string[] = []): void {
-  sweep(dir, manifest, keep);
-  sweepNested(dir, manifestName, keep);
+/** Step 5 for a folder and its nested folders; `owned` from `ownedBefore`, taken before step 2. */
+export function sweepAll(dir: string, manifest: Named, manifestName: string, keep: string[] = [], owned?: Owned): void {
+  sweep(dir, manifest, keep, owned?.get(''));
+  sweepNested(dir, manifestName, keep, owned);
 }
 
-/** Step 2. */
+/** The firmware folder of a build and the C files offramp writes there (the int8 library: tables, kernels, entry points). */
+export const FIRMWARE_FILES = { dir: 'firmware', names: /^offramp_\w+\.[ch]$/ };
+
+/** Step 2. The firmware goes whole: a kernel file of an earlier int8 build must not outlive its tables. */
 export function removeDescribing(dir: string, more: string[] = []): void {
   for (const f of new Set([...DESCRIBING, ...more])) fs.rmSync(path.join(dir, f), { force: true });
+  const fw = path.join(dir, FIRMWARE_FILES.dir);
+  let names: string[] = [];
+  try { names = fs.readdirSync(fw); } catch { /* no firmware folder */ }
+  for (const n of names) if (FIRMWARE_FILES.names.test(n)) fs.rmSync(path.join(fw, n), { force: true });
 }
 
 /**
@@ -90,6 +127,7 @@ export function removeDescribing(dir: string, more: string[] = []): void {
  */
 export function commitFolder(from: string, dir: string, files: string[], manifestName: string, keep: string[] = []): void {
   fs.mkdirSync(dir, { recursive: true });
+  const owned = ownedBefore(dir, manifestName);
   const move = (f: string) => {
     fs.mkdirSync(path.dirname(path.join(dir, f)), { recursive: true });
     fs.renameSync(path.join(from, f), path.join(dir, f));
@@ -103,7 +141,7 @@ export function commitFolder(from: string, dir: string, files: string[], manifes
   removeDescribing(dir, describing);
   move(manifestName);
   describing.forEach(move);
-  sweepAll(dir, JSON.parse(fs.readFileSync(path.join(dir, manifestName), 'utf8')) as Named, manifestName, keep);
+  sweepAll(dir, JSON.parse(fs.readFileSync(path.join(dir, manifestName), 'utf8')) as Named, manifestName, keep, owned);
 }
 
 /**

@@ -20,7 +20,7 @@ import { toJson } from '../util/json.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
 import { placeTensors } from '../onnx/external.js';
-import { hashedName, removeDescribing, sha256, sweepAll } from './commit.js';
+import { hashedName, ownedBefore, removeDescribing, sha256, sweepAll } from './commit.js';
 import { OfframpError } from '../errors.js';
 import type { Cut, CutPlan } from '../cuts/scan.js';
 import { planStages, stageGraph, stageModel, type StagePlan } from './stages.js';
@@ -134,6 +134,8 @@ export interface ManifestQuantization {
   weights: string; biases: string; activations: string;
   /** BatchNormalization nodes folded into the Conv before them */
   foldedBatchNorms: number;
+  /** the float stages' opset, raised for per-channel QuantizeLinear (quant/opset.ts), where it was below 13 */
+  opset?: { from: number; to: number };
 }
 
 /** A tuned exit policy as the manifest keeps it: the rule, and the evidence it was chosen on. */
@@ -324,10 +326,11 @@ function writeSplitFiles(plan: CutPlan, cuts: Cut[], dir: string, source: string
     },
   };
   // The reports of an earlier build describe the manifest about to be replaced.
+  const owned = ownedBefore(dir, MANIFEST_FILE);
   removeDescribing(dir);
   writeAtomic(path.join(dir, MANIFEST_FILE), toJson(manifest) + '\n');
   files.push(path.join(dir, MANIFEST_FILE));
   // Stage files of earlier splits would outlive the manifest that named them.
-  sweepAll(dir, manifest, MANIFEST_FILE, [source]);
+  sweepAll(dir, manifest, MANIFEST_FILE, [source], owned);
   return { manifest, dir, files, stages: written };
 }

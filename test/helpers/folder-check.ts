@@ -8,7 +8,7 @@ import fs from 'node:fs';
 import path from 'node:path';
 
 const hash = (b: Buffer) => crypto.createHash('sha256').update(b).digest('hex');
-const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'int8/manifest.json'];
+const DESCRIBING = ['report.json', 'report.html', 'firmware/offramp_policy.h', 'firmware/offramp_policy.c', 'firmware/offramp_net.h', 'firmware/offramp_net.c', 'int8/manifest.json'];
 
 type Named = { stages: { file: string; sha256: string }[]; source: { file: string; sha256: string }; quantization?: { from: { file: string; sha256: string } } };
 

@@ -119,3 +119,17 @@ offramp_answer_t offramp_classify_q8(const int8_t *input) {
   frames++;
   return a;
 }
+
+offramp_answer_t offramp_classify_full(const float *input) {
+  offramp_answer_t a;
+  int32_t i;
+  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
+  for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = offramp_quantize_value(input[i], offramp_input_q8_params.scale, offramp_input_q8_params.zero_point);
+  stages_done = 0;
+  a.exit = OFFRAMP_EXITS;
+  a.label = offramp_argmax_q8(logits_of(OFFRAMP_EXITS));
+  a.reused = 0;
+  TRACE(OFFRAMP_TRACE_FRAME_END, frames);
+  frames++;
+  return a;
+}

@@ -28,6 +28,10 @@ offramp_answer_t offramp_classify(const float *input);
 /* The same for a sensor that delivers int8 data already quantized with offramp_input_q8_params. */
 offramp_answer_t offramp_classify_q8(const int8_t *input);
 
+/* The whole network without the policy: every stage, the final output's label (exit OFFRAMP_EXITS).
+ * The figure the exits are measured against; the stream state is left alone. */
+offramp_answer_t offramp_classify_full(const float *input);
+
 /* Exit k's int8 logits for the last frame (OFFRAMP_CLASSES values, offramp_exit_q8[k] gives their scale
  * and zero point), or 0 when that frame did not run far enough to make them. */
 const int8_t *offramp_exit_logits_q8(int32_t k);

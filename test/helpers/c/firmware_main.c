@@ -1,7 +1,8 @@
 /* A host test driver for the int8 firmware library: frames of OFFRAMP_INPUT_SIZE float32 values on
  * stdin. Mode "answers": offramp_classify on each frame, three int32 (label, exit, reused) out per
  * frame. Mode "tensors": every stage of every frame, step by step, each step's output bytes out in
- * order (the TypeScript reference writes the same stream). */
+ * order (the TypeScript reference writes the same stream). Mode "full": offramp_classify_full on each
+ * frame, only a checksum of the labels out (for timing the whole network). */
 #include <stdio.h>
 #include <string.h>
 #include "offramp_model.h"
@@ -9,10 +10,13 @@
 static float frame[OFFRAMP_INPUT_SIZE];
 
 int main(int argc, char **argv) {
-  int tensors = argc > 1 && strcmp(argv[1], "tensors") == 0;
+  int tensors = argc > 1 && strcmp(argv[1], "tensors") == 0, full = argc > 1 && strcmp(argv[1], "full") == 0;
+  long sum = 0;
   offramp_reset();
   while (fread(frame, sizeof frame, 1, stdin) == 1) {
-    if (tensors) {
+    if (full) {
+      sum += offramp_classify_full(frame).label;
+    } else if (tensors) {
       int32_t i, k, j;
       for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = offramp_quantize_value(frame[i], offramp_input_q8_params.scale, offramp_input_q8_params.zero_point);
       fwrite(offramp_input_q8, 1, OFFRAMP_INPUT_SIZE, stdout);
@@ -31,5 +35,6 @@ int main(int argc, char **argv) {
       fwrite(out, sizeof out, 1, stdout);
     }
   }
+  if (full) printf("%ld\n", sum);
   return 0;
 }
