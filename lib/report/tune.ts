@@ -101,8 +101,8 @@ export function tuneText(t: TuneReport, o: { verbose?: boolean; frontRows?: numb
   out.push(`leaves at  ${leavesLine(t.exitNames, c.exitShare)}`);
   if (t.written) {
     out.push(`written    ${t.written}${t.stale?.length ? `; ${t.stale.join(', ')} still describe${t.stale.length === 1 ? 's' : ''} the manifest before this tuning` : ''}`);
-  } else out.push('written    nothing (--no-write): the manifest keeps its policy');
-  if (t.manifestNote) out.push(`           ${t.manifestNote}`);
+  } else if (!t.manifestNote) out.push('written    nothing (--no-write): the manifest keeps its policy');
+  if (t.manifestNote) out.push(`${t.written ? '           ' : 'manifest   '}${t.manifestNote}`);
   if (!early) out.push(`next       more ${t.stream ? 'recording' : 'rows'}, a larger --max-drop, or exit heads that agree more with the full model (graft/build --head grid:4)`);
   else if (t.written) {
     const dir = folderOf(t.written);
