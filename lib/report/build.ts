@@ -120,7 +120,6 @@ function buildDetail(r: BuildResult): string[] {
     `float32    ${policyText(s.policy)}: ${pct(h.saving)} saved, accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model on ${h.samples} held-out samples`,
     ...promiseText(s.guarantee),
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
-    ...(r.headWarnings ?? []).map((w) => `note       ${w}`),
     '',
     table(['float32 stage', 'MACs', 'weights', 'peak act.', 'arena', 'hands over', 'exit', 'leaves here'], rows),
   ];
@@ -166,6 +165,8 @@ export function buildText(r: BuildResult, o: { verbose?: boolean } = {}): string
     (q?.againstFloat ? `, vs ${pct(q.againstFloat.floatAccuracy, 2)} for the float model (${dropWords(q.againstFloat.dropPoints)}, quantization included)` : '') +
     ` on ${d.samples} held-out samples${d.labelled ? '' : ' (agreement with its own answers: no labels)'}`);
   if (g) lines.push(`promise    ${promiseSentence(g, full)}`);
+  // a candidate head that learnt nothing is worth a line by default: the placement had less to choose from
+  lines.push(...(r.headWarnings ?? []).map((w) => `note       ${w}`));
   const b = r.budget;
   if (b) {
     const gate = b.gate === 'stored' ? (q ? 'the int8 files as stored' : storedLabel(r.cost)) : 'an int8 projection';
