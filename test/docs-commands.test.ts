@@ -9,16 +9,7 @@ import { Command } from 'commander';
 import { offramp } from './helpers/cli.js';
 import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
-import { costCommand } from '../lib/cli/cost.js';
-import { graftCommand } from '../lib/cli/graft.js';
-import { scanCommand } from '../lib/cli/scan.js';
-import { splitCommand } from '../lib/cli/split.js';
-import { checkCommand } from '../lib/cli/check.js';
-import { emitCCommand } from '../lib/cli/emit-c.js';
-import { buildCommand } from '../lib/cli/build.js';
-import { tuneCommand } from '../lib/cli/tune.js';
-import { replayCommand } from '../lib/cli/replay.js';
-import { quantizeCommand } from '../lib/cli/quantize.js';
+import { COMMANDS } from '../lib/cli/main.js';
 
 const ROOT = path.resolve(import.meta.dirname, '..');
 const PAGES = ['README.md', ...fs.readdirSync(path.join(ROOT, 'docs')).filter((f) => f.endsWith('.md')).map((f) => `docs/${f}`)];
@@ -26,7 +17,7 @@ const PAGES = ['README.md', ...fs.readdirSync(path.join(ROOT, 'docs')).filter((f
 /** Each command's long and short option names, as commander parses them. */
 function optionTable(): Map<string, Set<string>> {
   const program = new Command('offramp');
-  for (const add of [costCommand, graftCommand, scanCommand, splitCommand, checkCommand, emitCCommand, buildCommand, tuneCommand, replayCommand, quantizeCommand]) add(program);
+  for (const add of COMMANDS) add(program);
   return new Map(program.commands.map((c) => [c.name(), new Set(['--debug', '--help', '-h', ...c.options.flatMap((o) => [o.long, o.short].filter((x): x is string => !!x))])]));
 }
 
