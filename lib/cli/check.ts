@@ -9,6 +9,7 @@ import { checkAgreement, checkChain, npySamples, randomSamples } from '../run/ch
 import { table, toJson } from '../report/units.js';
 import { OfframpError, usageError } from '../errors.js';
 import { collect, emit, parseNumber } from './common.js';
+import { FINAL } from '../report/words.js';
 import { chooseChain } from '../split/read.js';
 
 /** The model a manifest names as its source, when its bytes are still the ones recorded; else a usage error asking for --against. */
@@ -46,6 +47,10 @@ export function checkCommand(program: Command): void {
       const chain = await loadChain(dir, { optimization: choice.precision === 'float' ? 'disabled' : 'all' });
       try {
         const against = o.against ?? sourceModel(chain.dir, chain.manifest);
+        // the model's own output is 'final' in every table (docs/glossary.md); exits and other outputs keep their names
+        const exitNames = new Set(chain.manifest.stages.flatMap((st) => st.exits));
+        const finals = chain.manifest.outputs.filter((t) => !exitNames.has(t.name));
+        const label = (name: string) => (finals.length === 1 && exitNames.size && name === finals[0].name ? `${FINAL} (${name})` : name);
         const inputs = chain.manifest.inputs;
         let samples;
         if (o.data.length) {
@@ -65,7 +70,7 @@ export function checkCommand(program: Command): void {
           const q = await checkAgreement(chain, against, samples, minAgreement);
           if (o.json) emit(toJson({ schema: 'offramp-check/1', chain: chainJson, quantized: true, ...q, source }) + '\n');
           else {
-            const rows = q.outputs.map((a) => [a.name, `${a.agree}/${a.samples}`, `${(a.agreement * 100).toFixed(2)} %`, num(a.maxAbs), a.maxSteps === undefined ? '-' : a.maxSteps.toFixed(1), a.ok ? 'ok' : `FAIL${a.note ? ` (${a.note})` : ''}`]);
+            const rows = q.outputs.map((a) => [label(a.name), `${a.agree}/${a.samples}`, `${(a.agreement * 100).toFixed(2)} %`, num(a.maxAbs), a.maxSteps === undefined ? '-' : a.maxSteps.toFixed(1), a.ok ? 'ok' : `FAIL${a.note ? ` (${a.note})` : ''}`]);
             emit(`${choice.line}\n${q.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), int8 chain: top-1 agreement with the model${minAgreement ? `, at least ${(minAgreement * 100).toFixed(2)} %` : ''}\n\n` +
               `${table(['output', 'same top-1', 'agreement', 'max abs', 'int8 steps', 'result'], rows)}\n`);
           }
@@ -75,7 +80,7 @@ export function checkCommand(program: Command): void {
         const r = await checkChain(chain, against, samples, { rtol });
         if (o.json) emit(toJson({ schema: 'offramp-check/1', chain: chainJson, ...r, rtol, source }) + '\n');
         else {
-          const rows = r.diffs.map((d) => [d.name, d.dtype, String(d.elements), num(d.maxAbs), num(d.maxRel), String(d.mismatched), d.ok ? 'ok' : `FAIL${d.note ? ` (${d.note})` : ''}`]);
+          const rows = r.diffs.map((d) => [label(d.name), d.dtype, String(d.elements), num(d.maxAbs), num(d.maxRel), String(d.mismatched), d.ok ? 'ok' : `FAIL${d.note ? ` (${d.note})` : ''}`]);
           emit(`${choice.line}\n${r.samples} samples (${o.data.length ? 'from data' : `random, seed ${seed}`}), float rtol ${o.rtol}, integers exact, graph optimisation off on both sides\n\n` +
             `${table(['output', 'dtype', 'elements', 'max abs', 'max rel', 'over', 'result'], rows)}\n`);
         }
