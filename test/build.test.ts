@@ -66,6 +66,11 @@ describe('offramp build', () => {
     const v = offramp(['build', MODEL, '--data', x, '--labels', y, '--max-drop', '5', '--target', 'm4f', '-o', path.join(dir, 'tv'), '--verbose']);
     expect(v.stdout).toMatch(/^figures    weights: bytes as stored/m);
     expect(v.stdout).toMatch(/fixed-sequence testing over \d+ front settings/);
+    // a tuning of the folder says which of its files still describe the manifest before it, and what to run
+    const t = offramp(['tune', out, '--data', x, '--labels', y, '--max-drop', '5']);
+    expect(t.code, t.stderr).toBe(0);
+    const esc = (p: string) => p.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
+    expect(t.stdout).toMatch(new RegExp(`^written    ${esc(path.join(out, 'manifest.json'))}; ${esc(path.join(out, 'report.html'))}, ${esc(path.join(out, 'report.json'))}, ${esc(path.join(out, 'firmware'))} still describe the manifest before this tuning$`, 'm'));
   });
   it('gives byte-identical files for the same inputs', () => {
     const a = path.join(dir, 'a'), b = path.join(dir, 'b');

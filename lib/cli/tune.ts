@@ -22,6 +22,17 @@ import { withFolder } from '../util/folder.js';
 /** Files of a build folder that describe its manifest (split/commit.ts): a tuning leaves them as they were. */
 const DESCRIBING = ['report.html', 'report.json', 'firmware'];
 
+/**
+ * What a tuning of `dir` leaves describing an earlier manifest. In a build --int8 folder the firmware
+ * describes DIR/int8's manifest: tuning DIR leaves it current, tuning DIR/int8 leaves DIR/firmware behind.
+ */
+function staleAfterTuning(dir: string): string[] {
+  const nested = path.basename(dir) === 'int8' && fs.existsSync(path.join(dir, '..', 'manifest.json'));
+  if (nested) return [path.join(dir, '..', 'firmware')].filter((f) => fs.existsSync(f));
+  const int8 = fs.existsSync(path.join(dir, 'int8', 'manifest.json'));
+  return DESCRIBING.filter((f) => !(int8 && f === 'firmware')).map((f) => path.join(dir, f)).filter((f) => fs.existsSync(f));
+}
+
 /** Threshold candidates per exit: the search grows with its square on two exits, so it is bounded. */
 export const MAX_GRID = 1024;
 
@@ -100,7 +111,7 @@ export function tuneCommand(program: Command): void {
           else if (full) manifestNote = 'the manifest\'s policy is now the full model (nothing cheaper was certified): firmware emitted from it never exits early';
         }
         // A build's reports and firmware keep describing the manifest they were made for: say so, with the fix.
-        const stale = written ? DESCRIBING.map((f) => path.join(chain.dir, f)).filter((f) => fs.existsSync(f)) : [];
+        const stale = written ? staleAfterTuning(chain.dir) : [];
         const report: TuneReport = {
           result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, manifestNote, stale,
           stages: chain.manifest.stages.map((s) => ({ index: s.index, macs: s.macs, exits: s.exits })),
