@@ -63,6 +63,14 @@ describe('report.html in a real browser', () => {
     expect(page.weights).toEqual(q.stages.map((st) => bytes(st.weightBytes)));
     expect(page.overlaps).toHaveLength(3);
     for (const o of page.overlaps) expect(o).toEqual([]);
+    // the tuning page of the same int8 chain: its charts' labels do not overlap either, and it says the promise in words
+    const html = path.join(dir, 'tune.html');
+    const t = offramp(['tune', path.join(out, 'int8'), '--data', path.join(dir, 'x.npy'), '--labels', path.join(dir, 'y.npy'), '--max-drop', '20', '--no-write', '--report', html]);
+    expect(t.code, t.stderr).toBe(0);
+    const tp = probePage(dir, html, `{ promise: document.querySelector('p.promise')?.textContent, overlaps: [...document.querySelectorAll('svg')].map(${OVERLAPS}) }`, 'pt') as { promise: string; overlaps: unknown[][] };
+    expect(tp.promise).toMatch(/^(on new data like this, accuracy drops by at most 20 points against the full model|no promise: )/);
+    expect(tp.overlaps).toHaveLength(3);
+    for (const o of tp.overlaps) expect(o).toEqual([]);
   });
 
   it('renders three sized SVG charts and a screenshot', () => {
