@@ -223,7 +223,7 @@ describe('arena plan on random graphs (property)', () => {
     console.log(`arena vs exhaustive optimum: ${equal}/${n} equal, worst ratio ${worst.toFixed(3)}`);
     expect(n).toBeGreaterThan(100);
     expect(equal / n).toBeGreaterThan(0.9);
-    expect(worst).toBeLessThanOrEqual(1.06); // the README's claim for these cases (1.0505 at seed 5)
+    expect(worst).toBeLessThanOrEqual(1.06); // docs/limits.md's claim for these cases (1.0505 at seed 5)
   });
 });
 

@@ -57,6 +57,10 @@ describe('build --int8', () => {
     expect(b.int8.heldOut.exitShare.at(-1)).toBe(1);
     // the float build's promise is made on the same terms
     expect(b.guarantee).toMatchObject({ confidence: 0.9, unlabelled: 20, certified: false });
+    // the deployed int8 chain against the float model, on the same labelled certifying rows (observed)
+    expect(b.schema).toBe('offramp-build/3');
+    expect(b.int8.againstFloat).toEqual({ samples: b.int8.heldOut.samples, accuracy: b.int8.heldOut.accuracy, floatAccuracy: b.heldOut.fullAccuracy,
+      dropPoints: expect.closeTo((b.heldOut.fullAccuracy - b.int8.heldOut.accuracy) * 100, 9) });
     // DIR/int8 is whole and its stage files are named by their own bytes, not the float stages' (the checker recomputes each SHA-256)
     expect(folderProblems(out)).toEqual([]);
     expect(m.stages.map((s) => s.file)).toEqual(m.stages.map((s) => `stage-${s.index}.${sha(path.join(out, 'int8', s.file)).slice(0, 16)}.onnx`));
@@ -68,15 +72,25 @@ describe('build --int8', () => {
     const out = path.join(tmp, 'b');
     const r = build(out, ['--max-drop', '100']);
     expect(r.code, r.stderr).toBe(0);
+    // by default the deployed (int8) chain's promise, in words; a drop of 100 points is always within the bound
     const promises = r.stdout.split('\n').filter((l) => l.startsWith('promise    '));
-    // one under the float policy, one under the int8 policy; a drop of 100 points is always within the bound
-    expect(promises).toHaveLength(2);
-    for (const l of promises) expect(l).toMatch(/^promise    drop ≤ 100 pp on new data with 95 % confidence — certified bound /);
+    expect(promises).toEqual([expect.stringMatching(/^promise    on new data like this, accuracy drops by at most 100 points against the full int8 chain, with 95 % confidence \(certified on \d+ samples: bound /)]);
     expect(r.stdout).not.toMatch(/^held out /m);
+    // --verbose adds the method form of both: under the float policy and under the int8 policy
+    const v = build(path.join(tmp, 'bv'), ['--max-drop', '100', '--verbose']);
+    const both = v.stdout.split('\n').filter((l) => / drop ≤ 100 pp on new data with 95 % confidence — certified bound /.test(l));
+    expect(both).toHaveLength(2);
     const m = JSON.parse(fs.readFileSync(path.join(out, 'int8/manifest.json'), 'utf8')) as Manifest;
     expect(m.policy!.guarantee).toMatchObject({ certified: true, maxDrop: 100, confidence: 0.95 });
     const html = fs.readFileSync(path.join(out, 'report.html'), 'utf8');
-    expect(html.match(/<b>promise: drop ≤ 100 pp/g)).toHaveLength(2);
+    // the page describes the int8 chain: its promise in words, its method, and the float chain's beside it
+    expect(html).toContain('data-chain="int8"');
+    // without labels there is no accuracy to set against the float model's
+    expect(JSON.parse(fs.readFileSync(path.join(out, 'report.json'), 'utf8')).int8.againstFloat).toBeNull();
+    expect(html.match(/How it is certified: drop ≤ 100 pp/g)).toHaveLength(1);
+    expect(html).toContain('accuracy drops by at most 100 points against the full int8 chain');
+    expect(html).toContain('accuracy drops by at most 100 points against the full model');
+    for (const st of m.stages) expect(html).toContain(st.file);
   });
 });
 

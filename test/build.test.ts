@@ -32,7 +32,7 @@ describe('offramp build', () => {
     expect(r.stderr).toBe('');
     expect(r.code).toBe(0);
     const j = JSON.parse(r.stdout);
-    expect(j.schema).toBe('offramp-build/2');
+    expect(j.schema).toBe('offramp-build/3');
     expect(j.exits.length).toBeGreaterThan(0);
     expect(j.guarantee.certified).toBe(true);
     expect(j.guarantee.bound).toBeLessThanOrEqual(5);
@@ -52,6 +52,28 @@ describe('offramp build', () => {
     // The exit shares add up to every held-out sample.
     expect(j.heldOut.exitShare.reduce((a: number, b: number) => a + b, 0)).toBeCloseTo(1, 9);
     expect(JSON.parse(fs.readFileSync(path.join(out, 'report.json'), 'utf8'))).toEqual(j);
+  });
+  it('prints what a person reads first: the result, the promise in one sentence, the next command, on one screen', () => {
+    const out = path.join(dir, 't');
+    const r = offramp(['build', MODEL, '--data', x, '--labels', y, '--max-drop', '5', '--target', 'm4f', '-o', out]);
+    expect(r.code, r.stderr).toBe(0);
+    const lines = r.stdout.trimEnd().split('\n');
+    expect(lines.length).toBeLessThanOrEqual(25);
+    expect(lines[0]).toMatch(/^built      .*: \d+ exits? .*\d+ stages; the stages compute what the grafted model does/);
+    expect(lines[1]).toMatch(/^chosen     .*MACs per sample on average instead of .*, \d+\.\d % saved$/);
+    expect(r.stdout).toMatch(/^promise    on new data like this, accuracy drops by at most 5 points against the full model, with 95 % confidence \(certified on \d+ samples: bound \d+\.\d\d points\)$/m);
+    expect(r.stdout).toMatch(new RegExp(`^next       offramp replay ${out.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')} --data `, 'm'));
+    // one name for the final output, and no conventions block by default
+    expect(r.stdout).toMatch(/ final /);
+    expect(r.stdout).not.toMatch(/\(final\)|figures    weights/);
+    const v = offramp(['build', MODEL, '--data', x, '--labels', y, '--max-drop', '5', '--target', 'm4f', '-o', path.join(dir, 'tv'), '--verbose']);
+    expect(v.stdout).toMatch(/^figures    weights: bytes as stored/m);
+    expect(v.stdout).toMatch(/fixed-sequence testing over \d+ front settings/);
+    // a tuning of the folder says which of its files still describe the manifest before it, and what to run
+    const t = offramp(['tune', out, '--data', x, '--labels', y, '--max-drop', '5']);
+    expect(t.code, t.stderr).toBe(0);
+    const esc = (p: string) => p.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
+    expect(t.stdout).toMatch(new RegExp(`^written    ${esc(path.join(out, 'manifest.json'))}; ${esc(path.join(out, 'report.html'))}, ${esc(path.join(out, 'report.json'))}, ${esc(path.join(out, 'firmware'))} still describe the manifest before this tuning$`, 'm'));
   });
   it('gives byte-identical files for the same inputs', () => {
     const a = path.join(dir, 'a'), b = path.join(dir, 'b');
@@ -89,8 +111,8 @@ describe('offramp build', () => {
     const r = offramp(['build', MODEL, '--data', tiny, '--labels', tinyY, '-o', path.join(dir, 'tiny')]);
     expect(r.code).toBe(0);
     const lines = r.stdout.split('\n');
-    expect(lines.filter((l) => l.includes('not certified'))).toHaveLength(1);
-    expect(r.stdout).toMatch(/MACs .* 0\.0% saved/);
+    expect(lines.filter((l) => l.startsWith('promise    no promise: '))).toHaveLength(1);
+    expect(r.stdout).toMatch(/^chosen     the full model on every sample .*no early exit could be certified$/m);
     const j = JSON.parse(fs.readFileSync(path.join(dir, 'tiny', 'report.json'), 'utf8'));
     expect(j.guarantee.certified).toBe(false);
     expect(j.heldOut.meanMacs).toBe(j.heldOut.fullMacs);

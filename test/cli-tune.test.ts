@@ -51,12 +51,33 @@ describe('offramp tune and replay', () => {
     expect(j.summary.drop).toBeCloseTo((fullAcc - j.summary.accuracy) * 100, 9);
     expect(j.summary.promise).toEqual({ maxDrop: 5, confidence: 0.95, bound: t.guarantee.bound, kept: j.summary.drop <= 5 });
   });
+  it('the text output: result first, the promise in one sentence, on one screen; --verbose adds the fronts', () => {
+    const t = offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '5', '--no-write']);
+    expect(t.code, t.stderr).toBe(0);
+    const lines = t.stdout.trimEnd().split('\n');
+    expect(lines.length).toBeLessThanOrEqual(25);
+    expect(lines[0]).toMatch(/^chosen     /);
+    expect(t.stdout).toMatch(/^promise    on new data like this, accuracy drops by at most 5 points against the full model, with 95 % confidence \(certified on 200 samples: bound /m);
+    expect(t.stdout).toMatch(/^leaves at  exit-0 \d+\.\d %, exit-1 \d+\.\d %, final \d+\.\d %$/m);
+    expect(t.stdout).not.toMatch(/^front: /m);
+    const v = offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '5', '--no-write', '--verbose']);
+    expect(v.stdout.match(/^front: /gm)).toHaveLength(5);
+    // replay of a per-frame policy: no scene columns, the final output named final
+    // (the manifest's policy: the first test tuned it per frame at 5 points)
+    const r = offramp(['replay', split, '--data', x, '--labels', y]);
+    expect(r.code, r.stderr).toBe(0);
+    expect(r.stdout.trimEnd().split('\n').length).toBeLessThanOrEqual(25);
+    expect(r.stdout).not.toMatch(/scenes|reused/);
+    expect(r.stdout).toMatch(/^leaves at  exit-0 .*, final \d+\.\d\d %$/m);
+    expect(r.stdout).toMatch(/^promise    (kept|BROKEN): the tuned policy promises a drop of at most 5 points at 95 % confidence/m);
+  });
   it('too few samples for the promise: the full model is kept, said in one line with the samples the next setting would need', () => {
     const r = offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '1', '--confidence', '0.99', '--no-write']);
     expect(r.code).toBe(0);
-    const line = r.stdout.split('\n').filter((l) => l.startsWith('not certified'));
+    const line = r.stdout.split('\n').filter((l) => l.startsWith('promise    '));
     expect(line).toHaveLength(1);
-    expect(line[0]).toMatch(/full model is kept; .* would need about \d+ samples|full model is kept; .* would not certify it|no setting cheaper/);
+    expect(line[0]).toMatch(/^promise    no promise: .* so the full model is kept(; about \d+ samples would certify the next setting|; more data would not help .*)?$/);
+    expect(r.stdout).toMatch(/^chosen     the full model on every sample .*no early exit could be certified$/m);
     const j = JSON.parse(offramp(['tune', split, '--data', x, '--labels', y, '--max-drop', '1', '--confidence', '0.99', '--no-write', '--json']).stdout);
     expect(j.guarantee.certified).toBe(false);
     expect(j.guarantee.confidence).toBe(0.99);

@@ -2,6 +2,8 @@
 // The search part picks candidates; a disjoint certification part tests them
 // in a fixed order (lib/certify), so the printed bound survives the winner's curse.
 
+import { roundNoise } from '../util/json.js';
+
 export interface Guarantee {
   /** C: the bound holds with probability ≥ C over the draw of the tuning data */
   confidence: number;
@@ -34,4 +36,14 @@ export interface Guarantee {
   nudged?: number;
   /** what the bound assumes, in words, for the reports */
   assumes: string[];
+}
+
+/** The guarantee as recorded: observed drops (differences of measured shares) lose their floating-point noise; bounds stay as computed. */
+export function recordedGuarantee(g: Guarantee): Guarantee {
+  const r = (x: number) => roundNoise(x);
+  return {
+    ...g, estimate: r(g.estimate),
+    ...(g.nudged !== undefined && { nudged: r(g.nudged) }),
+    ...(g.next && { next: { ...g.next, estimate: r(g.next.estimate) } }),
+  };
 }

@@ -18,7 +18,7 @@ import { coreOf } from '../measure/cores.js';
 interface BuildFlags {
   data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head: string;
   seed: string; json?: boolean; target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string;
-  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean; confidence: string; unlabelled?: string;
+  int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean; verbose?: boolean; confidence: string; unlabelled?: string;
   measure?: boolean; core: string; measureRows: string;
 }
 
@@ -52,7 +52,8 @@ export function buildCommand(program: Command): void {
     .option('--measure', 'with --int8: measure the int8 firmware on an emulated Cortex-M (QEMU), rows of --data in file order; the report leads with what the exits save there')
     .option('--core <core>', 'core --measure emulates: m4f, m7 or m55', 'm4f')
     .option('--measure-rows <n>', 'rows --measure runs (the first ones of --data)', '200')
-    .option('--json', 'print the report as JSON (schema offramp-build/2)')
+    .option('--json', 'print the report as JSON (schema offramp-build/3)')
+    .option('--verbose', 'also print the cuts, the method, the stage files and the budget per precision with how each figure is counted')
     .action(modelAction(async (file: string, o: BuildFlags) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', CONFIDENCE_RANGE);
@@ -86,7 +87,7 @@ export function buildCommand(program: Command): void {
         describe: (b) => [{ name: 'report.json', data: buildJson(b) }, { name: 'report.html', data: buildHtml(b) }],
       });
       const json = buildJson(r);
-      emit(o.json ? json : buildText(r) + `\ngrafted    ${r.model} (stage files and model are named by their content)\nreport     ${path.join(o.out, 'report.html')} (and report.json)\n`);
+      emit(o.json ? json : buildText(r, { verbose: o.verbose }));
       if (r.budget && !r.budget.fits) throw new OverBudget(`over budget: ${overLine(r.budget.over[0], storedLabel(r.cost))}`);
     }));
 }

@@ -23,7 +23,7 @@ export function isChainArgument(where: string): boolean {
   return !!st?.isFile() && where.endsWith('.json');
 }
 
-export interface ChainCostFlags { json?: boolean; md?: boolean; out?: string; float?: boolean; int8?: boolean; cuts?: string; reorder?: boolean; saveReordered?: string; dim: string[] }
+export interface ChainCostFlags { verbose?: boolean; json?: boolean; md?: boolean; out?: string; float?: boolean; int8?: boolean; cuts?: string; reorder?: boolean; saveReordered?: string; dim: string[] }
 
 export async function costChain(where: string, o: ChainCostFlags, target: Target | undefined): Promise<void> {
   // A split's stages are its cuts, and its files are what gets deployed: options that change either belong to a model file.
@@ -57,7 +57,7 @@ export async function costChain(where: string, o: ChainCostFlags, target: Target
     ? toJson({ schema: 'offramp-cost-chain/1', chain: { manifest: choice.file, precision: choice.precision }, stages: rows, ...(budget && { budget }) }) + '\n'
     : o.md
       ? [choice.line, '', mdTable(head, cells), '', totals + '\n', ...(budget ? [budgetMarkdown(budget, label)] : [])].join('\n')
-      : [choice.line, '', table(head, cells), '', totals + '\n', ...(budget ? [budgetText(budget, label)] : [])].join('\n');
+      : [choice.line, '', table(head, cells), '', totals + '\n', ...(budget ? [budgetText(budget, label, { verbose: o.verbose })] : [])].join('\n');
   emit(text, o.out);
   if (budget && !budget.fits) throw new OverBudget(`over budget: ${overLine(budget.over[0], label)}${budget.over.length > 1 ? ` (and ${budget.over.length - 1} more)` : ''}`);
 }

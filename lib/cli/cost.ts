@@ -21,7 +21,7 @@ import { costMeasured } from './cost-measured.js';
 interface CostFlags {
   cuts?: string; dim: string[]; batch: string; json?: boolean; md?: boolean; nodes: boolean; out?: string;
   target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string; int8MacsPerCycle?: string; int8?: boolean;
-  reorder?: boolean; saveReordered?: string; float?: boolean; measured?: string;
+  reorder?: boolean; saveReordered?: string; float?: boolean; measured?: string; verbose?: boolean;
 }
 
 export function costCommand(program: Command): void {
@@ -34,6 +34,7 @@ export function costCommand(program: Command): void {
     .option('--json', 'machine-readable report (schema offramp-cost/1)')
     .option('--md', 'Markdown report')
     .option('--no-nodes', 'leave out the per-node table')
+    .option('--verbose', 'with a target: also say how each budget figure is counted')
     .option('-o, --out <file>', 'write the report to a file instead of stdout')
     .option('--reorder', 'reorder nodes within each stage to lower peak activation memory; report before and after')
     .option('--float', 'on a build --int8 folder: the float chain, not the int8 one it deploys')
@@ -74,7 +75,7 @@ export function costCommand(program: Command): void {
       const extra = { ...(budget && { budget }), ...(reorder && { reorder }) };
       const text = o.json ? costJson(report, extra)
         : o.md ? [costMarkdown(report, { nodes: o.nodes }), reorder && reorderMarkdown(reorder), budget && budgetMarkdown(budget, label)].filter(Boolean).join('\n')
-        : [costText(report, { nodes: o.nodes }), reorder && reorderText(reorder), budget && budgetText(budget, label)].filter(Boolean).join('\n');
+        : [costText(report, { nodes: o.nodes }), reorder && reorderText(reorder), budget && budgetText(budget, label, { verbose: o.verbose })].filter(Boolean).join('\n');
       emit(text, o.out);
       if (budget && !budget.fits) {
         const more = budget.over.length > 1 ? ` (and ${budget.over.length - 1} more)` : '';

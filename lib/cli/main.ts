@@ -14,6 +14,9 @@ import { measureCommand } from './measure.js';
 import { EXIT, fail } from './common.js';
 import { VERSION } from '../version.js';
 
+/** Every command, in the order --help lists them (test/docs-commands.test.ts reads their options from here). */
+export const COMMANDS: ((program: Command) => void)[] = [costCommand, graftCommand, scanCommand, splitCommand, checkCommand, emitCCommand, buildCommand, tuneCommand, replayCommand, quantizeCommand, measureCommand];
+
 export async function main(argv: string[]): Promise<number> {
   const debug = argv.includes('--debug');
   const program = new Command('offramp')
@@ -22,17 +25,7 @@ export async function main(argv: string[]): Promise<number> {
     .option('--debug', 'show stack traces on errors')
     .exitOverride()
     .configureOutput({ writeErr: (s) => process.stderr.write(s) });
-  costCommand(program);
-  graftCommand(program);
-  scanCommand(program);
-  splitCommand(program);
-  checkCommand(program);
-  emitCCommand(program);
-  buildCommand(program);
-  tuneCommand(program);
-  replayCommand(program);
-  quantizeCommand(program);
-  measureCommand(program);
+  for (const add of COMMANDS) add(program);
   for (const c of program.commands) c.exitOverride();
   try {
     await program.parseAsync(argv, { from: 'user' });

@@ -6,8 +6,9 @@ import { loadChain } from '../run/chain.js';
 import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
 import { replay, withDrop, type ReplayResult } from '../tune/replay.js';
 import { argmax } from '../policy/index.js';
-import { checkPolicy, type Policy } from '../policy/policy.js';
-import { si, table, toJson } from '../report/units.js';
+import { checkPolicy, isStream, type Policy } from '../policy/policy.js';
+import { count, dropWords, exitLabel, FINAL, points } from '../report/words.js';
+import { si, toJson } from '../report/units.js';
 import { OfframpError } from '../errors.js';
 import { emit } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
@@ -29,20 +30,24 @@ function readPolicy(v: string): unknown {
 export const replayCsv = (r: ReplayResult): string => {
   const withTruth = r.frames.some((f) => f.truth !== undefined);
   const head = ['frame', 'exit', 'exit_index', 'macs', 'label', 'scene', 'reused', ...(withTruth ? ['truth', 'correct'] : [])];
-  return [head.join(','), ...r.frames.map((f) => [f.frame, f.exitName, f.exit, f.macs, f.label, f.scene, f.reused ? 1 : 0, ...(withTruth ? [f.truth, f.truth === f.label ? 1 : 0] : [])].join(','))].join('\n') + '\n';
+  return [head.join(','), ...r.frames.map((f) => [f.frame, f.exit === r.exits.length - 1 ? FINAL : f.exitName, f.exit, f.macs, f.label, f.scene, f.reused ? 1 : 0, ...(withTruth ? [f.truth, f.truth === f.label ? 1 : 0] : [])].join(','))].join('\n') + '\n';
 };
 
+/** What a person reads after a replay: the saving, the accuracy against the full model and the promise, where frames left. */
 function replayText(r: ReplayResult): string {
   const s = r.summary;
   const pct = (x: number) => `${(x * 100).toFixed(2)} %`;
+  const stream = isStream(r.policy);
+  const g = s.promise;
   return [
-    `policy: ${JSON.stringify(r.policy)}`,
-    '',
-    table(['frames', 'accuracy', 'mean MACs', 'full MACs', 'saving', 'scenes', 'reused'], [[String(s.frames), s.accuracy === undefined ? '-' : pct(s.accuracy), si(s.meanMacs), si(s.fullMacs), pct(s.saving), String(s.scenes), pct(s.reusedShare)]]),
-    '',
-    table(['exit', 'share'], s.exitShare.map((x, k) => [r.exits[k], pct(x)])),
-    ...(s.drop === undefined ? [] : ['', `observed drop ${s.drop.toFixed(2)} pp against the full model (${pct(s.fullAccuracy!)}) on these frames` +
-      (s.promise ? `; promised ≤ ${s.promise.maxDrop} pp at ${+(s.promise.confidence * 100).toFixed(4)} % confidence: ${s.promise.kept ? 'kept' : 'BROKEN'}` : '')]),
+    `replayed   ${count(s.frames, 'frames')}: ${si(s.meanMacs)} MACs per frame on average instead of ${si(s.fullMacs)}, ${pct(s.saving)} saved`,
+    ...(s.drop === undefined ? [`accuracy   ${s.accuracy === undefined ? 'not measured (no --labels)' : pct(s.accuracy)}`]
+      : [`accuracy   ${pct(s.accuracy!)} vs ${pct(s.fullAccuracy!)} for the full model on these frames (${dropWords(s.drop)})`]),
+    ...(g && s.drop !== undefined ? [`promise    ${g.kept ? 'kept' : 'BROKEN'}: the tuned policy promises a drop of at most ${points(g.maxDrop)} at ${+(g.confidence * 100).toFixed(4)} % confidence on new data like its tuning data (observed here: ${dropWords(s.drop)})`] : []),
+    `leaves at  ${s.exitShare.map((x, k) => `${exitLabel(r.exits, k)} ${pct(x)}`).join(', ')}`,
+    // scenes and reuse belong to stream policies; a per-frame policy starts a scene on every frame
+    ...(stream ? [`scenes     ${count(s.scenes, 'scenes')} seen; ${pct(s.reusedShare)} of frames reused their scene's result`] : []),
+    `policy     ${JSON.stringify(r.policy)}`,
   ].join('\n') + '\n';
 }
 

@@ -1,4 +1,5 @@
 // `offramp split MODEL --cuts A,B -o DIR`: stage files and their manifest.
+import { FINAL } from '../report/words.js';
 import type { Command } from 'commander';
 import { loadModel } from '../graph/io.js';
 import { cutsAtFractions, resolveCut, scanModel } from '../cuts/scan.js';
@@ -37,7 +38,7 @@ export function splitCommand(program: Command): void {
       if (o.json) { emit(JSON.stringify(manifest, null, 2) + '\n'); return; }
       const rows = manifest.stages.map((s) => [
         s.file, String(s.nodes), si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`, bytes(s.weightBytes), bytes(s.peakActivationBytes), s.arenaBytes === undefined ? '-' : bytes(s.arenaBytes),
-        s.cut.join('+') || '(model outputs)', s.cut.length ? bytes(s.handoverBytes) : '-', s.exits.join(',') || '-',
+        s.cut.join('+') || FINAL, s.cut.length ? bytes(s.handoverBytes) : '-', s.exits.join(',') || FINAL,
       ]);
       const lines = [
         `split ${file} into ${manifest.stages.length} stages in ${o.out} (${manifest.order === 'block' ? 'block-keeping' : 'file'} order)`, '',

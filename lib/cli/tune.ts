@@ -1,5 +1,7 @@
 // `offramp tune DIR --data X.npy [--labels y.npy]`: capture every exit once,
 // search policies and thresholds on the cache, write the chosen one into the manifest.
+import fs from 'node:fs';
+import path from 'node:path';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
@@ -16,6 +18,20 @@ import { OfframpError, usageError } from '../errors.js';
 import { CONFIDENCE_RANGE, emit, HELD_OUT_RANGE, inFile, nameList, parseNumber } from './common.js';
 import { writeAtomic } from '../util/atomic.js';
 import { withFolder } from '../util/folder.js';
+
+/** Files of a build folder that describe its manifest (split/commit.ts): a tuning leaves them as they were. */
+const DESCRIBING = ['report.html', 'report.json', 'firmware'];
+
+/**
+ * What a tuning of `dir` leaves describing an earlier manifest. In a build --int8 folder the firmware
+ * describes DIR/int8's manifest: tuning DIR leaves it current, tuning DIR/int8 leaves DIR/firmware behind.
+ */
+function staleAfterTuning(dir: string): string[] {
+  const nested = path.basename(dir) === 'int8' && fs.existsSync(path.join(dir, '..', 'manifest.json'));
+  if (nested) return [path.join(dir, '..', 'firmware')].filter((f) => fs.existsSync(f));
+  const int8 = fs.existsSync(path.join(dir, 'int8', 'manifest.json'));
+  return DESCRIBING.filter((f) => !(int8 && f === 'firmware')).map((f) => path.join(dir, f)).filter((f) => fs.existsSync(f));
+}
 
 /** Threshold candidates per exit: the search grows with its square on two exits, so it is bounded. */
 export const MAX_GRID = 1024;
@@ -36,9 +52,10 @@ export function tuneCommand(program: Command): void {
     .option('--grid <n>', 'threshold candidates per exit', '32')
     .option('--report <file>', 'write a self-contained HTML report')
     .option('--json', 'machine-readable result (schema offramp-tune/2)')
+    .option('--verbose', 'also print the split, the method, the exit histogram and the fronts')
     .option('--no-write', 'leave the manifest as it is')
     .option('--replace', 'write the tuned policy even over a certified one when this tuning certified nothing')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean }) => {
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean; verbose?: boolean }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', CONFIDENCE_RANGE);
       const heldOut = parseNumber(o.heldOut, '--held-out', HELD_OUT_RANGE);
@@ -93,12 +110,14 @@ export function tuneCommand(program: Command): void {
           if (demotes) manifestNote = `replaced the certified ${(before!.rule as { kind?: string }).kind} policy that was there (--replace)${full ? '; the manifest\'s policy is now the full model: firmware emitted from it never exits early' : ''}`;
           else if (full) manifestNote = 'the manifest\'s policy is now the full model (nothing cheaper was certified): firmware emitted from it never exits early';
         }
+        // A build's reports and firmware keep describing the manifest they were made for: say so, with the fix.
+        const stale = written ? staleAfterTuning(chain.dir) : [];
         const report: TuneReport = {
-          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, manifestNote,
+          result, exitNames: [...layout.exits, layout.final], data: o.data, stream: !!o.stream, written, manifestNote, stale,
           stages: chain.manifest.stages.map((s) => ({ index: s.index, macs: s.macs, exits: s.exits })),
         };
         if (o.report) writeAtomic(o.report, tuneHtml(report));
-        emit(o.json ? tuneJson(report) : tuneText(report));
+        emit(o.json ? tuneJson(report) : tuneText(report, { verbose: o.verbose }));
       } finally { await chain.release(); }
     });
 }

@@ -59,6 +59,15 @@ export interface QuantizeOptions {
 export interface QuantizeResult { dir: string; manifest: Manifest; files: string[]; folded: number; weights: number; biases: number; samples: number }
 
 const rel = (from: string, to: string) => path.relative(path.resolve(from), path.resolve(to)).split(path.sep).join('/');
+/**
+ * Where the calibration file is, as the manifest records it: relative while it lies near the folder
+ * (at most two levels up: beside a build folder, or in its project), so the two move together;
+ * absolute when the relative path would climb through unrelated folders.
+ */
+const dataPath = (from: string, file: string) => {
+  const r = rel(from, file);
+  return r.split('/').filter((x) => x === '..').length > 2 ? path.resolve(file).split(path.sep).join('/') : r;
+};
 
 interface Stage { entry: ManifestStage; file: string; model: Model; plan: ActivationPlan }
 
@@ -278,7 +287,7 @@ async function quantizeInto(src: Manifest, srcFile: string, o: QuantizeOptions):
       quantization: {
         scheme: 'qdq-int8',
         from: { file: rel(final, srcFile), sha256: sha256(srcBytes) },
-        calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, ...(o.parity !== undefined && { rows: o.parity ? 'odd' as const : 'even' as const }), data: { file: rel(final, o.data), sha256: sha256(dataBytes) } },
+        calibration: { method, ...(method === 'percentile' && { percentile: pct }), samples, ...(o.parity !== undefined && { rows: o.parity ? 'odd' as const : 'even' as const }), data: { file: dataPath(final, o.data), sha256: sha256(dataBytes) } },
         weights: 'int8 symmetric per output channel (Conv, Gemm, MatMul)', biases: 'int32, scale s_x·s_w', activations: 'int8 asymmetric per tensor',
         foldedBatchNorms: folded,
         ...(opset && { opset }),

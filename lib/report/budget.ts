@@ -4,6 +4,7 @@ import type { CostReport } from '../cost/report.js';
 import type { MemoryOrder } from '../cost/reorder.js';
 import type { Budget, Fit, LatencyBasis, Over, Precision, StageCheck } from '../chip/budget.js';
 import { bytes, mdTable, scaled, si, table } from './units.js';
+import { FINAL } from './words.js';
 
 /** What the stored figures are: "float32" when every weight is, else "as stored". */
 export function storedLabel(r: CostReport): string {
@@ -28,19 +29,27 @@ const verdict = (c: { flash: Fit; ram: Fit }) => {
 const HEAD = ['stage', 'ends at', 'as', 'MACs', 'weights', 'flash margin', 'peak act.', 'arena', 'handover', 'RAM need', 'RAM margin', 'latency', 'to exit', 'latency is', 'verdict'];
 /** The basis of a latency in a table cell: the long form goes under the table (basisLines). */
 export const basisWord = (b: LatencyBasis) => (b === 'projected from the measured rate' ? 'projected' : b);
+/** The int8 projection of files already int8 (QDQ as stored) is the stored figures again: one row, not two. */
+const sameCheck = (a: StageCheck | { flash: Fit; ram: Fit }, c: StageCheck | { flash: Fit; ram: Fit }) =>
+  a.flash.need === c.flash.need && a.ram.need === c.ram.need && ('latencyNs' in a && 'latencyNs' in c ? a.latencyNs === c.latencyNs : true);
+export const projectionShown = (b: Budget) =>
+  b.gate === 'int8' || b.stages.some((s) => !sameCheck(s.stored, s.int8)) || !sameCheck(b.all.stored, b.all.int8);
+
 function rows(b: Budget, label: string): string[][] {
-  const name = (p: Precision) => (p === 'stored' ? label : 'int8') + (p === b.gate ? ' *' : '');
+  const both = projectionShown(b);
+  const precisions = both ? (['stored', 'int8'] as const) : (['stored'] as const);
+  const name = (p: Precision) => (p === 'stored' ? label : 'int8') + (both && p === b.gate ? ' *' : '');
   const out: string[][] = [];
-  for (const s of b.stages) for (const p of ['stored', 'int8'] as const) {
+  for (const s of b.stages) for (const p of precisions) {
     const c: StageCheck = s[p];
     const firstRow = p === 'stored';
     out.push([
-      firstRow ? String(s.index) : '', firstRow ? s.cut || '(model outputs)' : '', name(p), firstRow ? si(s.macs) : '',
+      firstRow ? String(s.index) : '', firstRow ? s.cut || FINAL : '', name(p), firstRow ? si(s.macs) : '',
       bytes(c.weightBytes), margin(c.flash), bytes(c.peakBytes), bytes(c.arenaBytes), bytes(c.handoverBytes), bytes(c.ram.need), margin(c.ram),
       duration(c.latencyNs), duration(c.cumulativeNs), basisWord(c.latencyBasis), verdict(c),
     ]);
   }
-  if (b.stages.length > 1) for (const p of ['stored', 'int8'] as const) {
+  if (b.stages.length > 1) for (const p of precisions) {
     const a = b.all[p];
     out.push([p === 'stored' ? 'all' : '', '', name(p), '', bytes(a.flash.need), margin(a.flash), '', '', '', bytes(a.ram.need), margin(a.ram),
       duration(b.stages[b.stages.length - 1][p].cumulativeNs), '', basisWord(b.stages[b.stages.length - 1][p].latencyBasis), verdict(a)]);
@@ -78,19 +87,22 @@ export function overLine(o: Over, label: string): string {
 
 function verdictLines(b: Budget, label: string): string[] {
   const gate = b.gate === 'stored' ? label : 'int8';
-  if (b.fits) return [`verdict    every stage fits (judged on ${gate}, marked *)`];
-  return [`verdict    OVER BUDGET (judged on ${gate}, marked *)`, ...b.over.map((o) => `  over     ${overLine(o, label)}`)];
+  const marked = projectionShown(b) ? ', marked *' : '';
+  if (b.fits) return [`verdict    every stage fits (judged on ${gate}${marked})`];
+  return [`verdict    OVER BUDGET (judged on ${gate}${marked})`, ...b.over.map((o) => `  over     ${overLine(o, label)}`)];
 }
 
-export function budgetText(b: Budget, label = 'as stored'): string {
+/** The budget for people; how each figure is counted (the conventions) only with `verbose`. */
+export function budgetText(b: Budget, label = 'as stored', o: { verbose?: boolean } = {}): string {
   return [
     `target     ${targetLine(b)}`,
     table(HEAD, rows(b, label)) + '\n' + basisLines(b).map((l, i) => `${i ? '          ' : 'latency   '} ${l}`).join('\n'),
     verdictLines(b, label).join('\n'),
-    b.conventions.map((c, i) => `${i ? '          ' : 'figures   '} ${c}`).join('\n'),
+    o.verbose ? b.conventions.map((c, i) => `${i ? '          ' : 'figures   '} ${c}`).join('\n') : 'figures    how each is counted: --verbose',
   ].join('\n\n') + '\n';
 }
 
+/** Markdown is a report to keep: the conventions always go with it. */
 export function budgetMarkdown(b: Budget, label = 'as stored'): string {
   return [
     '### Budget', `- **target** ${targetLine(b)}`, mdTable(HEAD, rows(b, label)), basisLines(b).map((l) => `- **latency** ${l}`).join('\n'),

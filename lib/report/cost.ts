@@ -1,4 +1,5 @@
 // The cost report for people (text, Markdown) and for scripts (JSON, schema offramp-cost/1).
+import { FINAL } from './words.js';
 import type { CostReport } from '../cost/report.js';
 import { si, bytes, table, mdTable, toJson } from './units.js';
 import { ARENA_ALIGN } from '../cost/arena.js';
@@ -22,7 +23,7 @@ const NODE_HEAD = ['#', 'node', 'op', 'output', 'MACs', 'params', 'out bytes'];
 const STAGE_HEAD = ['stage', 'nodes', 'ends at', 'MACs', 'share', 'weights', 'peak act.', 'arena', 'in', 'out'];
 function stageRows(r: CostReport): string[][] {
   return r.stages.map((s) => [
-    String(s.index), `${s.first}–${s.last}`, s.cut || '(model outputs)', si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`,
+    String(s.index), `${s.first}–${s.last}`, s.cut || FINAL, si(s.macs), `${(s.macFraction * 100).toFixed(1)}%`,
     bytes(s.paramBytes), bytes(s.peakActivationBytes), bytes(s.arenaBytes),
     bytes(s.inputs.reduce((a, x) => a + x.bytes, 0n)), bytes(s.outputs.reduce((a, x) => a + x.bytes, 0n)),
   ]);

@@ -7,6 +7,7 @@ import type { Eval, Point, PointBound, TuneResult } from '../tune/search.js';
 import type { Guarantee } from '../tune/guarantee.js';
 import type { Policy } from '../policy/policy.js';
 import { si, table, toJson } from './units.js';
+import { count, dropWords, exitLabel, promiseSentence } from './words.js';
 
 export const TUNE_SCHEMA = 'offramp-tune/2';
 
@@ -18,8 +19,10 @@ export interface TuneReport {
   data: string;
   stream: boolean;
   written?: string;
-  /** what happened to the manifest beyond `written`, in words (kept as it was and why; what was replaced) */
+  /** what happened to the manifest beyond `written`, in words */
   manifestNote?: string;
+  /** files in the folder that describe the manifest as it was before this tuning (a build's reports, firmware) */
+  stale?: string[];
 }
 
 const pct = (x: number, d = 2) => `${(x * 100).toFixed(d)} %`;
@@ -34,15 +37,15 @@ function splitText(r: TuneResult<Policy>): string {
 }
 
 /**
- * The promise in words: two lines when a setting is certified, one when the full model was kept.
- * `setting` names a policy (the next, bolder setting the sequence stopped at).
+ * The promise with its method, for --verbose and the reports: two lines when a setting is certified,
+ * one when the full model was kept. `setting` names a policy (the next, bolder setting the sequence stopped at).
  */
 export function guaranteeLines(g: Guarantee, setting: (p: Policy) => string): string[] {
   const conf = `${+(g.confidence * 100).toFixed(4)} %`;
-  const on = `${g.evidence} ${g.unit}${g.unlabelled ? ` and ${g.unlabelled} unlabelled rows` : ''}`;
+  const on = `${count(g.evidence, g.unit)}${g.unlabelled ? ` and ${g.unlabelled} unlabelled rows` : ''}`;
   const next = g.next;
   const nextText = !next ? 'no setting cheaper than the full model was found'
-    : next.needed !== undefined ? `the next setting (${setting(next.policy as Policy)}: observed ${pp(next.estimate)}, bound ${pp(next.bound)}) would need about ${next.needed} ${g.unit}`
+    : next.needed !== undefined ? `the next setting (${setting(next.policy as Policy)}: observed ${pp(next.estimate)}, bound ${pp(next.bound)}) would need about ${count(next.needed, g.unit)}`
       : `the next setting (${setting(next.policy as Policy)}) already loses ${pp(next.estimate)} observed, so more ${g.unit} would not certify it`;
   if (!g.certified) {
     return [`not certified: nothing cheaper than the full model keeps the drop within ${g.maxDrop} pp at ${conf} confidence on ${on}, so the full model is kept; ${nextText}`];
@@ -65,22 +68,63 @@ function thin<T>(xs: T[], n: number, keep: (x: T) => boolean = () => false): T[]
   return [...pick].sort((a, b) => a - b).map((i) => xs[i]);
 }
 
-export function tuneText(t: TuneReport, frontRows = 12): string {
-  const r = t.result, full = r.full.held;
-  const out: string[] = [splitText(r), `full model: accuracy ${pct(full.accuracy)}, ${si(full.meanMacs)} MACs per sample`, ''];
-  out.push(table(['policy', 'settings', 'front', 'accuracy', 'drop pp', 'bound pp', 'mean MACs', 'saving'], r.kinds.map((k) => [
-    k.kind, String(k.evaluated), String(k.front.length), pct(k.chosen.held.accuracy), drop(full, k.chosen.held), certCell(k.chosen.cert), si(k.chosen.held.meanMacs), saving(full, k.chosen.held),
-  ])));
-  out.push('', `chosen: ${ruleText(r.chosen.policy)}`);
-  out.push(`  accuracy ${pct(r.chosen.held.accuracy)} (drop ${drop(full, r.chosen.held)} pp), ${si(r.chosen.held.meanMacs)} MACs per sample, saving ${saving(full, r.chosen.held)}`);
-  if (r.guarantee) out.push(...guaranteeLines(r.guarantee, settingText));
-  if (t.written) out.push(`  written into ${t.written}`);
-  if (t.manifestNote) out.push(`  ${t.manifestNote}`);
+/** The chosen setting in words: its kind once, then its thresholds. */
+const chosenName = (p: Policy, stream: boolean) => {
+  const st = settingText(p);
+  return stream ? `${p.kind} stream policy (${st})` : st.startsWith(p.kind) ? st : `${p.kind} (${st})`;
+};
+
+/** A setting that never leaves early: every threshold null on a score policy. */
+export const isFull = (p: Policy) => ['confidence', 'entropy', 'margin'].includes(p.kind) && p.thresholds.every((x) => x === null);
+
+
+/** "exit-0 47.4 %, exit-1 15.2 %, final 30.7 %": where the frames leave the chain, on one line. */
+export const leavesLine = (names: string[], share: number[]) => share.map((s, k) => `${exitLabel(names, k)} ${pct(s, 1)}`).join(', ');
+
+/** The chain folder a manifest path names, for the next commands. */
+const folderOf = (written: string) => written.replace(/[\\/]manifest\.json$/, '');
+
+/**
+ * What a person reads after `tune`: the result in words (chosen, saving, accuracy, the promise), what
+ * changed on disk, the next commands, one row per policy kind. `verbose` adds the split, the method,
+ * the histogram and the fronts (the old long form).
+ */
+export function tuneText(t: TuneReport, o: { verbose?: boolean; frontRows?: number } = {}): string {
+  const r = t.result, full = r.full.held, c = r.chosen.held, unit = t.stream ? 'frame' : 'sample';
+  const early = !isFull(r.chosen.policy);
+  const out: string[] = [
+    early ? `chosen     ${chosenName(r.chosen.policy, t.stream)}: ${si(c.meanMacs)} MACs per ${unit} instead of ${si(full.meanMacs)}, ${saving(full, c)} saved`
+      : `chosen     the full model on every ${unit} (${si(full.meanMacs)} MACs): no early exit could be certified`,
+    `accuracy   ${pct(c.accuracy)} vs ${pct(full.accuracy)} for the full model (${dropWords(+drop(full, c))}) on the ${count(r.split.held, t.stream ? 'frames' : 'samples')} that certify${r.labelled ? '' : ' (agreement with the full model: no labels)'}`,
+  ];
+  if (r.guarantee) out.push(`promise    ${promiseSentence(r.guarantee)}`);
+  out.push(`leaves at  ${leavesLine(t.exitNames, c.exitShare)}`);
+  if (t.written) {
+    out.push(`written    ${t.written}${t.stale?.length ? `; ${t.stale.join(', ')} still describe${t.stale.length === 1 ? 's' : ''} the manifest before this tuning` : ''}`);
+  } else if (!t.manifestNote) out.push('written    nothing (--no-write): the manifest keeps its policy');
+  if (t.manifestNote) out.push(`${t.written ? '           ' : 'manifest   '}${t.manifestNote}`);
+  if (!early) out.push(`next       more ${t.stream ? 'recording' : 'rows'}, a larger --max-drop, or exit heads that agree more with the full model (graft/build --head grid:4)`);
+  else if (t.written) {
+    const dir = folderOf(t.written);
+    out.push(`next       offramp emit-c ${dir} -o ${dir}/firmware    (the decision code for this policy)`,
+      `           offramp replay ${dir} --data NEW.npy --labels NEW-y.npy    (frame by frame on data the tuning never saw)`);
+  }
+  out.push('', table(['policy', 'mean MACs', 'saving', 'drop', 'bound', 'best certified setting'], r.kinds.map((k) => [
+    k.kind, si(k.chosen.held.meanMacs), saving(full, k.chosen.held), drop(full, k.chosen.held), k.chosen.cert ? k.chosen.cert.bound.toFixed(2) : '-',
+    isFull(k.chosen.policy) ? 'none: the full model' : settingText(k.chosen.policy),
+  ])), '(drop and bound in points of accuracy against the full model, on the certification part)');
+  if (!o.verbose) {
+    out.push('', `more       --verbose (the method, the fronts), --report FILE.html, --json`);
+    return out.join('\n') + '\n';
+  }
+  out.push('', splitText(r), `full model: accuracy ${pct(full.accuracy)}, ${si(full.meanMacs)} MACs per sample; ${r.settings} settings evaluated`);
+  if (r.guarantee) out.push(...guaranteeLines(r.guarantee, settingText), ...r.guarantee.assumes.map((a) => `  assumes: ${a}`));
+  out.push(`  chosen as JSON: ${ruleText(r.chosen.policy)}`);
   out.push('', 'exit histogram (certification part)');
-  out.push(table(['exit', 'share', ''], r.chosen.held.exitShare.map((s, k) => [t.exitNames[k] ?? `exit ${k}`, pct(s, 1), '█'.repeat(Math.round(s * 40))])));
+  out.push(table(['exit', 'share', ''], c.exitShare.map((s, k) => [exitLabel(t.exitNames, k), pct(s, 1), '█'.repeat(Math.round(s * 40))])));
   for (const k of r.kinds) {
-    const shown = thin(k.front, frontRows, (p) => p === k.chosen || (!!p.cert?.tested && !p.cert.passed));
-    out.push('', `front: ${k.kind} (${k.front.length} points${shown.length < k.front.length ? `, ${shown.length} shown` : ''}; search part, then certification part)`);
+    const shown = thin(k.front, o.frontRows ?? 12, (p) => p === k.chosen || (!!p.cert?.tested && !p.cert.passed));
+    out.push('', `front: ${k.kind} (${k.front.length} points${shown.length < k.front.length ? `, ${shown.length} shown` : ''}; ${k.evaluated} settings; search part, then certification part)`);
     out.push(table(['MACs', 'accuracy', 'cert. MACs', 'cert. accuracy', 'drop pp', 'bound pp', 'test', 'setting'], shown.map((p) => [
       si(p.tune.meanMacs), pct(p.tune.accuracy), si(p.held.meanMacs), pct(p.held.accuracy), p.cert ? p.cert.estimate.toFixed(2) : drop(full, p.held), certCell(p.cert), statusCell(p.cert), settingText(p.policy),
     ])));
@@ -134,7 +178,7 @@ export function tuneHtml(t: TuneReport): string {
   const series = frontSeries(r.kinds, full, r.maxDrop);
   const rows = r.kinds.map((k) => `<tr><td>${esc(k.kind)}</td><td>${k.evaluated}</td><td>${k.front.length}</td><td>${pct(k.chosen.held.accuracy)}</td><td>${drop(full, k.chosen.held)}</td><td>${certCell(k.chosen.cert)}</td><td>${si(k.chosen.held.meanMacs)}</td><td>${saving(full, k.chosen.held)}</td><td><code>${esc(settingText(k.chosen.policy))}</code></td></tr>`);
   const fronts = r.kinds.map((k) => `<details><summary>front: ${esc(k.kind)} (${k.front.length} points)</summary><table><tr><th>MACs</th><th>accuracy</th><th>cert. MACs</th><th>cert. accuracy</th><th>drop pp</th><th>bound pp</th><th>test</th><th>setting</th></tr>${k.front.map((p: Point<Policy>) => `<tr><td>${si(p.tune.meanMacs)}</td><td>${pct(p.tune.accuracy)}</td><td>${si(p.held.meanMacs)}</td><td>${pct(p.held.accuracy)}</td><td>${p.cert ? p.cert.estimate.toFixed(2) : drop(full, p.held)}</td><td>${certCell(p.cert)}</td><td>${statusCell(p.cert)}</td><td><code>${esc(settingText(p.policy))}</code></td></tr>`).join('')}</table></details>`);
-  const promise = r.guarantee ? guaranteeLines(r.guarantee, settingText).map((l) => `<p class="promise">${esc(l.trim())}</p>`).join('\n') : '';
+  const promise = r.guarantee ? [`<p class="promise">${esc(promiseSentence(r.guarantee))}.</p>`, ...guaranteeLines(r.guarantee, settingText).map((l) => `<p>${esc(l.trim())}</p>`)].join('\n') : '';
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>offramp tune: ${esc(t.data)}</title>
 <style>body{font-family:sans-serif;max-width:980px;margin:2em auto;color:#222}table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;text-align:right}td:first-child,th:first-child{text-align:left}code{font-size:90%}.promise{font-weight:bold}</style>
@@ -145,7 +189,7 @@ export function tuneHtml(t: TuneReport): string {
 ${promise}
 <table><tr><th>policy</th><th>settings</th><th>front</th><th>accuracy</th><th>drop pp</th><th>bound pp</th><th>mean MACs</th><th>saving</th><th>setting</th></tr>${rows.join('')}</table>
 ${lineChart('Accuracy vs mean MACs (certification part; rings: chosen per policy; grey: full accuracy − certified bound)', 'mean MACs per sample', 'accuracy %', series, (v) => si(v, 2), (v) => v.toFixed(1))}
-${barChart('Exit histogram of the chosen policy (certification part)', t.exitNames, r.chosen.held.exitShare.map((s) => s * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
+${barChart('Exit histogram of the chosen policy (certification part)', t.exitNames.map((_, k) => exitLabel(t.exitNames, k)), r.chosen.held.exitShare.map((s) => s * 100), (v) => `${v.toFixed(1)} %`, '#1f77b4')}
 ${barChart('MACs per stage', t.stages.map((s) => `stage ${s.index}${s.exits.length ? ` (${s.exits.join(', ')})` : ''}`), t.stages.map((s) => s.macs), (v) => si(v), '#ff7f0e')}
 ${fronts.join('\n')}
 </body></html>

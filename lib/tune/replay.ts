@@ -2,6 +2,7 @@
 // runner asks after each exit whether to stop; the answer comes from the same
 // pieces of lib/policy that streamStep and runFrame are made of, in the same
 // order, so a replay spends exactly what the tuner's simulation predicted.
+import { roundNoise } from '../util/json.js';
 import { OfframpError } from '../errors.js';
 import {
   argmax, chainFor, compareExit, decide, decisionCost, frameStart, fullModel, isStream, refreshDue, streamOpen, streamStart, streamTest,
@@ -25,7 +26,7 @@ export interface ReplaySummary {
 /** The observed drop against the full model on the replayed frames, set beside the manifest's promise. */
 export function withDrop(s: ReplaySummary, fullAccuracy: number, g?: Guarantee): ReplaySummary {
   if (s.accuracy === undefined) return s;
-  const drop = (fullAccuracy - s.accuracy) * 100;
+  const drop = roundNoise((fullAccuracy - s.accuracy) * 100);
   return { ...s, fullAccuracy, drop, ...(g && g.certified ? { promise: { maxDrop: g.maxDrop, confidence: g.confidence, bound: g.bound, kept: drop <= g.maxDrop } } : {}) };
 }
 export interface ReplayResult { policy: Policy; exits: string[]; frames: ReplayFrame[]; summary: ReplaySummary }

@@ -25,7 +25,8 @@ import { argmax, decisionCost, fullModel, worstCase, type FramePolicy, type Scor
 import { dropBound, fixedSequence, rowsNeeded, type AgreementCounts, type DropBound, type PairedCounts } from '../certify/index.js';
 import { reachOf, rowsOf, splitParts, type ExitCache, type ExitCosts } from './cache.js';
 import { discordant, patienceTable, preparePart, scoreTable, tally, type Discordant, type Part, type Table } from './evaluate.js';
-import type { Guarantee } from './guarantee.js';
+import { recordedGuarantee, type Guarantee } from './guarantee.js';
+import { roundNoise } from '../util/json.js';
 
 export type FrameKind = FramePolicy['kind'];
 export const TUNE_KINDS: readonly FrameKind[] = ['confidence', 'entropy', 'margin', 'patience', 'budget'];
@@ -357,7 +358,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
       const b = bound(counts);
       const pt: Point = {
         policy: s.k.policy(r, reach, E, c.classes), tune: evalOf(r, tuneP.n), held: evalOf({ ...h, hist: h.hist.slice() }, heldP.n),
-        cert: { estimate: b.estimate * 100, bound: b.bound * 100, tested: false, passed: false },
+        cert: { estimate: roundNoise(b.estimate * 100), bound: b.bound * 100, tested: false, passed: false },
       };
       points.push(pt);
       certOf.set(r, { pt, counts, b, s, sp, xsp, heldCost });
@@ -394,7 +395,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
   const next = failed && { policy: failed.pt.policy, estimate: failed.b.estimate * 100, bound: failed.b.bound * 100, needed: neededOf(failed) };
   const method = cb ? cb.b.method : form ?? (c.labelled ? 'paired' : 'disagreement');
   const usesUnlabelled = !!extraP && method !== 'paired';
-  const guarantee: Guarantee = {
+  const guarantee: Guarantee = recordedGuarantee({
     confidence, maxDrop, certified: !!cb, unit: 'samples', evidence: heldP.n, unlabelled: usesUnlabelled ? extraP!.n : 0,
     estimate: cb ? cb.b.estimate * 100 : 0, bound: cb ? cb.b.bound * 100 : 0,
     method: `${mixed && method === 'disagreement' ? `disagreement with the full model on ${c.labelled ? 'labelled and ' : ''}unlabelled rows (Clopper–Pearson)` : METHOD[method]}; fixed-sequence testing over ${ordered.length} front settings (Learn-then-Test)`,
@@ -408,7 +409,7 @@ export function tune(c: ExitCache, costs: ExitCosts, o: TuneOptions = {}): TuneR
       ...(mixed && c.labelled && method === 'disagreement' ? ['accuracy is bounded through disagreement with the full model, which bounds the drop against true labels too'] : []),
       ...(usesUnlabelled ? [`the unlabelled rows come from the same source and were not used for anything else${mixed ? ' (half of them search, the other half certify)' : ''}`] : []),
     ],
-  };
+  });
   return {
     labelled: c.labelled, maxDrop, split: { mode: 'interleave', heldOut, tune: tuneP.n, held: heldP.n },
     reach: [...reach], full, kinds, chosen, settings, guarantee,

@@ -15,7 +15,8 @@ import { chainFor, DISTANCES, distance, fullModel, isStream, nextUp32, runFrame,
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
 import type { ExitView } from '../policy/index.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
-import type { Guarantee } from './guarantee.js';
+import { recordedGuarantee, type Guarantee } from './guarantee.js';
+import { roundNoise } from '../util/json.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
 
 export interface StreamEval extends Eval { scenes: number; reused: number }
@@ -227,7 +228,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const last = cheapest(seq.passed);
 
   // a point's own bound (it passes only when its bolder neighbour's passes too), at the level it passed at, or δ/2
-  const boundOf = (r: Rec) => { const [b] = bounds(r); return { estimate: b.estimate * 100, bound: b.bound * 100 }; };
+  const boundOf = (r: Rec) => { const [b] = bounds(r); return { estimate: roundNoise(b.estimate * 100), bound: b.bound * 100 }; };
   const passedSet = new Set(seq.passed), testedSet = new Set([...seq.passed, ...failed]);
   const pointOf = (r: Rec): Point<StreamPolicy> => ({ policy: r.policy, tune: r.e, held: certify(r).e, cert: { ...boundOf(r), tested: testedSet.has(r), passed: passedSet.has(r) } });
   const kinds: KindResult<StreamPolicy>[] = kindList.map((kind) => {
@@ -253,7 +254,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const needed = nextRec && need(nextRec);
   const next = nextRec && { policy: nextRec.policy, ...boundOf(nextRec), ...(needed !== undefined && { needed }) };
   const b = last ? bounds(last)[0] : undefined;
-  const guarantee: Guarantee = {
+  const guarantee: Guarantee = recordedGuarantee({
     confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
     estimate: b ? b.estimate * 100 : 0, bound: b ? b.bound * 100 : 0,
     method: b ? `${b.method}, two fixed sequences over the front (ranked by net and by lost shares, δ/2 each; a finished one hands on its level)` : 'the full model (nothing cheaper certified)',
@@ -261,7 +262,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     tested: seq.passed.length + failed.length, passed: seq.passed.length,
     ...(needed !== undefined && { needed }), ...(next && { next }),
     assumes: [...STREAM_ASSUMES, `scenes from ${sc.source}: ${tuneScenes} searched, ${heldScenes} certified`],
-  };
+  });
   return {
     labelled: c.labelled, maxDrop, split: { mode: 'tail', heldOut, tune: parts.tune.length, held: parts.held.length }, reach: [...reach],
     full: fullPt, kinds, chosen, settings: recs.length, guarantee, scenes: { source: sc.source, tune: tuneScenes, held: heldScenes },

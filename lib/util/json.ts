@@ -17,3 +17,9 @@ export function parseJsonText(text: string, what: string): { ok: true; value: un
     return { ok: false, message: `not valid JSON${at ? ` (at byte ${at})` : ''}${binary ? ', it looks like binary data' : ''}: expected ${what}` };
   }
 }
+
+/**
+ * A figure derived from counts (a share, or points made from shares) without binary floating-point noise:
+ * 0.15999999999999348 → 0.16. Twelve significant digits keep every figure a count of up to 10^9 rows can give.
+ */
+export const roundNoise = (x: number) => (Number.isFinite(x) && x !== 0 ? Number(x.toPrecision(12)) : x);
