@@ -89,7 +89,7 @@ export function stream(n: number, seed: number): { x: Float32Array; y: BigInt64A
 }
 
 /** About 690 scenes: enough for a bound of a point or two on the drop, a scene counting once. */
-export const STREAM_FRAMES = 24000, LATER_FRAMES = 6000;
+export const STREAM_FRAMES = 24000, LATER_FRAMES = 24000;
 
 export function writeDemoData(dir: string): string[] {
   fs.mkdirSync(dir, { recursive: true });
