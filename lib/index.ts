@@ -34,3 +34,7 @@ export type { Guarantee } from './certify/index.js';
 export { quantizeSplit, type QuantizeOptions, type QuantizeResult } from './quant/split.js';
 export { writeC, type WriteCOptions } from './emit/write.js';
 export { writeFirmware, type FirmwareOptions, type FirmwareResult } from './firmware/write.js';
+
+// Measuring the int8 firmware on an emulated Cortex-M (QEMU, arm-none-eabi-gcc).
+export { measureDevice, type DeviceOptions, type DeviceReport } from './measure/device.js';
+export { toolchainStatus, type ToolchainStatus } from './measure/toolchain.js';
