@@ -82,6 +82,22 @@ describe('offramp tune and replay', () => {
     expect(j.guarantee.certified).toBe(false);
     expect(j.guarantee.confidence).toBe(0.99);
     expect(j.chosen.policy.thresholds.every((t: number | null) => t === null)).toBe(true);
+    // the best observed setting, offered by hand and marked as carrying no promise: the cheapest front point whose
+    // observed drop stays within --max-drop, never in the manifest
+    const fronts = j.kinds.flatMap((k: { front: { policy: { thresholds: (number | null)[] }; held: { meanMacs: number }; cert?: { estimate: number } }[] }) => k.front)
+      .filter((p: { policy: { thresholds: (number | null)[] }; held: { meanMacs: number }; cert?: { estimate: number } }) => p.held.meanMacs < j.full.held.meanMacs && (p.cert?.estimate ?? Infinity) <= 1);
+    if (!fronts.length) { expect(j.uncertified).toBeUndefined(); return; }
+    const cheapest = Math.min(...fronts.map((p: { held: { meanMacs: number } }) => p.held.meanMacs));
+    expect(j.uncertified.certified).toBe(false);
+    expect(j.uncertified.observedDropPoints).toBeLessThanOrEqual(1);
+    expect(j.uncertified.savingShare).toBeCloseTo(1 - cheapest / j.full.held.meanMacs, 9);
+    const hint = r.stdout.split('\n').find((l) => l.startsWith('observed   '))!;
+    expect(hint).toMatch(/NOT certified, not written; to try it anyway: --policy '/);
+    const json = /--policy '(\{.*\})'$/.exec(hint)![1];
+    expect(JSON.parse(json)).toEqual(j.uncertified.policy);
+    const rp = offramp(['replay', split, '--data', x, '--policy', json, '--json']);
+    expect(rp.code, rp.stderr).toBe(0);
+    expect(JSON.parse(rp.stdout).policy).toEqual(j.uncertified.policy);
   });
   it('bad input: one line naming the file, exit 1; usage errors exit 2', () => {
     const noExits = offramp(['tune', plain, '--data', x, '--labels', y]);

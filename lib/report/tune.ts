@@ -7,7 +7,7 @@ import type { Eval, Point, PointBound, TuneResult } from '../tune/search.js';
 import type { Guarantee } from '../tune/guarantee.js';
 import type { Policy } from '../policy/policy.js';
 import { si, table, toJson } from './units.js';
-import { count, dropWords, exitLabel, promiseSentence } from './words.js';
+import { count, dropWords, exitLabel, points, promiseSentence } from './words.js';
 
 export const TUNE_SCHEMA = 'offramp-tune/2';
 
@@ -103,7 +103,11 @@ export function tuneText(t: TuneReport, o: { verbose?: boolean; frontRows?: numb
     out.push(`written    ${t.written}${t.stale?.length ? `; ${t.stale.join(', ')} still describe${t.stale.length === 1 ? 's' : ''} the manifest before this tuning` : ''}`);
   } else if (!t.manifestNote) out.push('written    nothing (--no-write): the manifest keeps its policy');
   if (t.manifestNote) out.push(`${t.written ? '           ' : 'manifest   '}${t.manifestNote}`);
-  if (!early) out.push(`next       more ${t.stream ? 'recording' : 'rows'}, a larger --max-drop, or exit heads that agree more with the full model (graft/build --head grid:4)`);
+  if (!early) {
+    const h = uncertifiedHint(t);
+    if (h) out.push(`observed   ${settingText(h.policy)} saves ${(h.saving * 100).toFixed(1)} % at an observed drop of ${points(h.drop)} on the certification part: NOT certified, not written; to try it anyway: --policy '${ruleText(h.policy)}'`);
+    out.push(`next       more ${t.stream ? 'recording' : 'rows'}, a larger --max-drop, or exit heads that agree more with the full model (graft/build --head grid:4)`);
+  }
   else if (t.written) {
     const dir = folderOf(t.written);
     out.push(`next       offramp emit-c ${dir} -o ${dir}/firmware    (the decision code for this policy)`,
@@ -143,12 +147,32 @@ export function settingText(p: Policy): string {
   }
 }
 
+/**
+ * When nothing certifies: the cheapest setting of any front whose observed drop on the certification part stays
+ * within the promise, for a person to try by hand (never written into the manifest; it carries no promise).
+ */
+export function uncertifiedHint(t: TuneReport): { policy: Policy; saving: number; drop: number } | undefined {
+  const r = t.result;
+  if (!isFull(r.chosen.policy)) return undefined;
+  const full = r.full.held;
+  let best: { policy: Policy; saving: number; drop: number; macs: number } | undefined;
+  for (const k of r.kinds) for (const p of k.front) {
+    const d = p.cert ? p.cert.estimate : (full.accuracy - p.held.accuracy) * 100;
+    if (isFull(p.policy) || d > r.maxDrop || p.held.meanMacs >= full.meanMacs) continue;
+    if (!best || p.held.meanMacs < best.macs) best = { policy: p.policy, saving: full.meanMacs ? 1 - p.held.meanMacs / full.meanMacs : 0, drop: d, macs: p.held.meanMacs };
+  }
+  return best && { policy: best.policy, saving: best.saving, drop: best.drop };
+}
+
 export function tuneJson(t: TuneReport): string {
   const r = t.result;
+  const hint = uncertifiedHint(t);
   return toJson({
     schema: TUNE_SCHEMA, data: t.data, stream: t.stream, labelled: r.labelled, maxDrop: r.maxDrop, split: r.split,
     exits: t.exitNames, reach: r.reach, stages: t.stages, settings: r.settings,
     guarantee: r.guarantee ?? null, full: r.full, chosen: r.chosen, kinds: r.kinds, written: t.written ?? null, ...(t.manifestNote && { manifestNote: t.manifestNote }),
+    // nothing certified: the best observed setting, marked as carrying no promise (not in the manifest)
+    ...(hint && { uncertified: { policy: hint.policy, savingShare: hint.saving, observedDropPoints: hint.drop, certified: false } }),
     ...('scenes' in r && { scenes: (r as { scenes: unknown }).scenes }),
   }) + '\n';
 }
