@@ -4,7 +4,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import { offramp } from './helpers/cli.js';
-import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
+import { samples, stream, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { writeManifestPolicy } from '../lib/split/manifest.js';
 
@@ -131,6 +131,31 @@ describe('offramp tune and replay', () => {
     expect(few.stderr).toContain(short);
     expect(few.stderr).toMatch(/segment ids for \d+ (frames|rows)/);
     expect(offramp(['replay', split, '--data', x, '--policy', '{"kind":"difference","thresholds":[0.1],"distance":"js","exit":0,"refresh":0}']).code).toBe(1);
+  });
+
+  it('stream labels as an engineer gives them: one per scene with --segments tunes as one per frame does', () => {
+    const st = stream(1500, 77);
+    const sx = path.join(dir, 'sx.npy'), sy = path.join(dir, 'sy.npy'), sseg = path.join(dir, 'sseg.npy'), sscene = path.join(dir, 'sscene.npy'), sbad = path.join(dir, 'sbad.npy');
+    writeNpy(sx, st.x, [1500, 1, BINS, FRAMES]);
+    // the generator's label holds within a scene: the per-scene file is each scene's first frame's label
+    const seg = Array.from(st.segment, Number), lab = Array.from(st.y, Number);
+    const firsts = seg.flatMap((v, i) => (i === 0 || v !== seg[i - 1] ? [i] : []));
+    for (let k = 0; k < firsts.length; k++) for (let i = firsts[k]; i < (firsts[k + 1] ?? seg.length); i++) lab[i] = lab[firsts[k]];
+    writeNpy(sy, Int32Array.from(lab), [1500]);
+    writeNpy(sseg, Int32Array.from(seg), [1500]);
+    writeNpy(sscene, Int32Array.from(firsts.map((i) => lab[i])), [firsts.length]);
+    writeNpy(sbad, Int32Array.from(firsts.slice(1).map((i) => lab[i])), [firsts.length - 1]);
+    const run = (labels: string) => offramp(['tune', split, '--data', sx, '--labels', labels, '--segments', sseg, '--stream', '--max-drop', '5', '--no-write', '--json']);
+    const perFrame = run(sy), perScene = run(sscene);
+    expect(perFrame.code, perFrame.stderr).toBe(0);
+    expect(perScene.code, perScene.stderr).toBe(0);
+    const a = JSON.parse(perFrame.stdout), b = JSON.parse(perScene.stdout);
+    expect(b.chosen).toEqual(a.chosen);
+    expect(b.guarantee).toEqual(a.guarantee);
+    const bad = run(sbad);
+    expect(bad.code).toBe(1);
+    expect(bad.stderr.trim().split('\n')).toHaveLength(1);
+    expect(bad.stderr).toMatch(new RegExp(`${firsts.length - 1} labels for 1500 frames in ${firsts.length} scenes`));
   });
 });
 

@@ -36,6 +36,22 @@ function staleAfterTuning(dir: string): string[] {
 /** Threshold candidates per exit: the search grows with its square on two exits, so it is bounded. */
 export const MAX_GRID = 1024;
 
+/**
+ * Labels as an engineer gives them: one per frame, or with --segments one per scene (in scene order, a scene
+ * being a run of one segment id), each frame then taking its scene's label.
+ */
+function streamLabels(file: string, rows: number, data: string, classes: number, segments?: Int32Array): Int32Array {
+  const n = readLabels(file, { classes }).length;
+  if (n === rows || !segments) return readLabels(file, { rows, of: data, classes });
+  let scenes = rows ? 1 : 0;
+  for (let i = 1; i < rows; i++) if (segments[i] !== segments[i - 1]) scenes++;
+  if (n !== scenes) throw new OfframpError('data', `${n} labels for ${rows} frames in ${scenes} scenes of ${data}: give one label per frame or one per scene`, file);
+  const per = readLabels(file, { classes });
+  const out = new Int32Array(rows);
+  for (let i = 0, k = 0; i < rows; i++) { if (i > 0 && segments[i] !== segments[i - 1]) k++; out[i] = per[k]; }
+  return out;
+}
+
 export function tuneCommand(program: Command): void {
   program.command('tune')
     .description('choose the exit policy and thresholds that spend the fewest MACs within an accuracy drop; write it into the manifest')
@@ -47,7 +63,7 @@ export function tuneCommand(program: Command): void {
     .option('--stream', 'tune the stream policies (difference, agreeing) on the data as an ordered sequence')
     .option('--confidence <C>', 'the promise holds with probability at least C over the draw of the data', '0.95')
     .option('--unlabelled <file>', '.npy extra inputs without labels: they tighten the bound on disagreement with the full model')
-    .option('--segments <file>', '.npy scene id per frame [N] (with --stream): a change of id starts a scene; default: runs of the full model\'s answers')
+    .option('--segments <file>', '.npy scene id per frame [N] (with --stream): a change of id starts a scene; default: runs of the full model\'s answers. With it, --labels may hold one label per scene')
     .option('--held-out <share>', 'share of the data that certifies the choice (the rest searches)', '0.5')
     .option('--grid <n>', 'threshold candidates per exit', '32')
     .option('--report <file>', 'write a self-contained HTML report')
@@ -75,9 +91,9 @@ export function tuneCommand(program: Command): void {
           { file: o.unlabelled, role: 'unlabelled data' }, { file: o.segments, role: 'segments' }], [o.report]);
         const layout0 = chainLayout(chain.manifest, chain.dir);
         const total = readDataHeader(o.data).rows;
-        const labels = o.labels ? readLabels(o.labels, { rows: total, of: o.data, classes: layout0.classes }) : undefined;
-        const bar = progressBar(!!process.stderr.isTTY && !o.json);
         const segments = o.segments ? readLabels(o.segments, { rows: total, of: o.data, what: 'segment id' }) : undefined;
+        const labels = o.labels ? streamLabels(o.labels, total, o.data, layout0.classes, segments) : undefined;
+        const bar = progressBar(!!process.stderr.isTTY && !o.json);
         const { cache, layout } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
         // extra rows without labels: their answers are the full model's, counted only for disagreement
         const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)))).cache : undefined;
