@@ -96,40 +96,46 @@ static offramp_answer_t decide_frame(void) { return walk(&offramp_policy, 0); }
 void offramp_reset(void) { }
 #endif
 
-offramp_answer_t offramp_classify(const float *input) {
+/* The whole network, no decision: the final output's answer. */
+static offramp_answer_t whole_network(void) {
   offramp_answer_t a;
-  int32_t i;
-  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
-  for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = offramp_quantize_value(input[i], offramp_input_q8_params.scale, offramp_input_q8_params.zero_point);
-  stages_done = 0;
-  a = decide_frame();
-  TRACE(OFFRAMP_TRACE_FRAME_END, frames);
-  frames++;
-  return a;
-}
-
-offramp_answer_t offramp_classify_q8(const int8_t *input) {
-  offramp_answer_t a;
-  int32_t i;
-  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
-  for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = input[i];
-  stages_done = 0;
-  a = decide_frame();
-  TRACE(OFFRAMP_TRACE_FRAME_END, frames);
-  frames++;
-  return a;
-}
-
-offramp_answer_t offramp_classify_full(const float *input) {
-  offramp_answer_t a;
-  int32_t i;
-  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
-  for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = offramp_quantize_value(input[i], offramp_input_q8_params.scale, offramp_input_q8_params.zero_point);
-  stages_done = 0;
   a.exit = OFFRAMP_EXITS;
   a.label = offramp_argmax_q8(logits_of(OFFRAMP_EXITS));
   a.reused = 0;
+  return a;
+}
+
+static void quantize_input(const float *input) {
+  int32_t i;
+  for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = offramp_quantize_value(input[i], offramp_input_q8_params.scale, offramp_input_q8_params.zero_point);
+}
+
+/* One frame whose int8 input is in place: `answer` decides it; a frame region spans it (the input's
+ * quantization included, begun by the caller). */
+static offramp_answer_t frame(offramp_answer_t (*answer)(void)) {
+  offramp_answer_t a;
+  stages_done = 0;
+  a = answer();
   TRACE(OFFRAMP_TRACE_FRAME_END, frames);
   frames++;
   return a;
+}
+
+offramp_answer_t offramp_classify(const float *input) {
+  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
+  quantize_input(input);
+  return frame(decide_frame);
+}
+
+offramp_answer_t offramp_classify_q8(const int8_t *input) {
+  int32_t i;
+  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
+  for (i = 0; i < OFFRAMP_INPUT_SIZE; i++) offramp_input_q8[i] = input[i];
+  return frame(decide_frame);
+}
+
+offramp_answer_t offramp_classify_full(const float *input) {
+  TRACE(OFFRAMP_TRACE_FRAME_BEGIN, frames);
+  quantize_input(input);
+  return frame(whole_network);
 }
