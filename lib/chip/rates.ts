@@ -2,9 +2,8 @@
 // scripts/measure-rates.ts): what the built-in m4f, m7 and m55 profiles use. The file lives under
 // lib/ as a real file, published with the package, and is read once when the profiles load.
 import fs from 'node:fs';
-import path from 'node:path';
-import { fileURLToPath } from 'node:url';
 import { OfframpError } from '../errors.js';
+import { shippedPath } from '../util/shipped.js';
 
 export const RATES_SCHEMA = 'offramp-rates/1';
 export type RatedCore = 'm4f' | 'm7' | 'm55';
@@ -38,13 +37,8 @@ export function macsPerCycleText(instructionsPerMac: number, cyclesPerInstructio
   return s.includes('.') ? s.replace(/0+$/, '').replace(/\.$/, '') : s;
 }
 
-const here = path.dirname(fileURLToPath(import.meta.url));
 /** lib/chip/measured-rates.json, from lib/chip/ or dist/lib/chip/. */
-export function ratesFile(): string {
-  const f = [path.join(here, 'measured-rates.json'), path.join(here, '..', '..', '..', 'lib', 'chip', 'measured-rates.json')].find((x) => fs.existsSync(x));
-  if (!f) throw new OfframpError('io', 'lib/chip/measured-rates.json is missing from this installation');
-  return f;
-}
+export const ratesFile = (): string => shippedPath('chip/measured-rates.json', 'the measured MAC rates');
 
 /** The measured rates, checked: every core with positive figures. */
 export function readMeasuredRates(file = ratesFile()): MeasuredRates {

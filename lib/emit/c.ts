@@ -4,7 +4,8 @@
 // (the stage table and the chosen policy as constants). Output depends only on the manifest,
 // the policy and the paths given (no timestamps), so the same inputs give the same bytes.
 import fs from 'node:fs';
-import { fileURLToPath } from 'node:url';
+import path from 'node:path';
+import { shippedPath } from '../util/shipped.js';
 import { OfframpError } from '../errors.js';
 import { chainFor, checkPolicy, fullModel, isStream, type FramePolicy, type Policy } from '../policy/index.js';
 import { VERSION } from '../version.js';
@@ -24,13 +25,10 @@ export const C_FILES = [C_HEADER, C_SOURCE, C_CONFIG, ...C_FIXED] as const;
  * package's lib/emit/c from the compiled dist/lib/emit.
  */
 export function cLibraryDir(): string {
-  const tried: string[] = [];
-  for (const rel of ['./c/', '../../../lib/emit/c/']) {
-    const dir = fileURLToPath(new URL(rel, import.meta.url));
-    if (C_FIXED.every((f) => fs.existsSync(dir + f))) return dir;
-    tried.push(dir);
-  }
-  throw new OfframpError('io', `offramp's C library files (${C_FIXED.join(', ')}) are missing: the installation is incomplete`, tried[0]);
+  const dir = shippedPath('emit/c', "offramp's C decision library") + path.sep;
+  const missing = C_FIXED.filter((f) => !fs.existsSync(dir + f));
+  if (missing.length) throw new OfframpError('io', `offramp's C library files (${missing.join(', ')}) are missing: the installation is incomplete`, dir);
+  return dir;
 }
 
 /** The library files' text, as they are. */
