@@ -7,8 +7,8 @@
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
-import { fileURLToPath } from 'node:url';
 import { OfframpError } from '../errors.js';
+import { shippedPath } from '../util/shipped.js';
 import { cString } from '../emit/c.js';
 import { firmwareFiles } from '../firmware/write.js';
 import { Int8Classifier, Int8Machine } from '../firmware/interp.js';
@@ -79,14 +79,7 @@ export interface DeviceReport {
   policyFrom: string;
 }
 
-const here = path.dirname(fileURLToPath(import.meta.url));
-function driverSource(): string {
-  for (let d = here, i = 0; i < 5; i++, d = path.dirname(d)) {
-    const f = path.join(d, 'lib', 'measure', 'driver', 'offramp_measure_main.c');
-    if (fs.existsSync(f)) return f;
-  }
-  throw new OfframpError('io', 'the measuring driver (lib/measure/driver) is missing from this installation');
-}
+const driverSource = () => shippedPath('measure/driver/offramp_measure_main.c', 'the measuring driver');
 
 const bad = (option: string, what: string) => new OfframpError('usage', `${option}: ${what}`);
 const CLOCK: Record<MeasuredCore, number> = { m4f: 80, m7: 400, m55: 200 };
@@ -138,7 +131,8 @@ export async function measureDevice(o: DeviceOptions, onProgress?: (what: string
       const r = ref.classify(x.subarray(k * per, (k + 1) * per));
       if (r.label === answers[k][0] && r.exit === answers[k][1] && +r.reused === answers[k][2]) equalRef++;
     }
-    const ort = await againstOnnxruntime(o.dir, fw.policy, reach, E, program.classes, [...fw.table.exitNames, fw.table.finalOutput], x, per, answers);
+    const ortAnswers = await onnxruntimeAnswers(o.dir, fw.policy, reach, [...fw.table.exitNames, fw.table.finalOutput], program.classes, x, per);
+    const ort = ortAnswers.flatMap((a, k) => (a.label !== answers[k][0] || a.exit !== answers[k][1] ? [{ frame: k, firmware: [answers[k][0], answers[k][1]] as [number, number], onnxruntime: [a.label, a.exit] as [number, number] }] : []));
 
     const profiles = frameProfiles(m.occurrences);
     const policyFrames = profiles.slice(0, n), fullFrames = profiles.slice(n);
@@ -180,22 +174,29 @@ export async function measureDevice(o: DeviceOptions, onProgress?: (what: string
 }
 
 
-/** The policy on onnxruntime's outputs of the QDQ stage files, frame by frame; where its label or exit differs from the firmware's. */
-async function againstOnnxruntime(dir: string, policy: Policy, reach: number[], E: number, classes: number, outs: string[], x: Float32Array, per: number, fw: number[][]) {
+/**
+ * The policy on onnxruntime's outputs of the QDQ stage files (the outside view of the firmware), frame by
+ * frame in order: each frame's label and exit. `outs` names the exits' outputs, the final output last;
+ * `onFrame` sees each frame's outputs (float32, as DequantizeLinear gives them).
+ */
+export async function onnxruntimeAnswers(dir: string, policy: Policy, reach: ArrayLike<number>, outs: string[], classes: number, x: Float32Array, per: number,
+  onFrame?: (k: number, z: Float32Array[]) => void): Promise<{ label: number; exit: number }[]> {
+  const E = outs.length - 1;
   const chain = await loadChain(dir);
   const frame: FramePolicy = isStream(policy) ? policy.then ?? fullModel(E) : policy;
   const ch = chainFor(frame, reach, E, classes);
   const st = streamStart(classes);
-  const differ: DeviceReport['answers']['differFromOnnxruntime'] = [];
   const shape = chain.manifest.inputs[0].shape.map(Number);
+  const answers: { label: number; exit: number }[] = [];
   try {
     for (let k = 0; k * per < x.length; k++) {
       const r = await chain.run({ [chain.manifest.inputs[0].name]: tensorFromData(1, shape, x.subarray(k * per, (k + 1) * per)) });
       const z = outs.map((o) => r.outputs[o].data as Float32Array);
+      onFrame?.(k, z);
       const v = { data: (j: number) => z[j], offset: () => 0 };
       const a = isStream(policy) ? streamStep(policy, st, v, ch) : runFrame(policy, ch, v, 0);
-      if (a.label !== fw[k][0] || a.exit !== fw[k][1]) differ.push({ frame: k, firmware: [fw[k][0], fw[k][1]], onnxruntime: [a.label, a.exit] });
+      answers.push({ label: a.label, exit: a.exit });
     }
   } finally { await chain.release(); }
-  return differ;
+  return answers;
 }

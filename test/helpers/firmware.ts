@@ -2,6 +2,7 @@
 // test/helpers/c/firmware_main.c, the TypeScript reference (lib/firmware/interp.ts) writing the
 // same byte streams, and onnxruntime running the QDQ stage files for the outside view.
 import { spawnSync } from 'node:child_process';
+import { expect } from 'vitest';
 import fs from 'node:fs';
 import path from 'node:path';
 import { lowerChain } from '../../lib/firmware/lower.js';
@@ -9,10 +10,9 @@ import { Int8Classifier, Int8Machine } from '../../lib/firmware/interp.js';
 import type { Program } from '../../lib/firmware/program.js';
 import { readManifestFile } from '../../lib/split/read.js';
 import { chainTable } from '../../lib/emit/table.js';
-import { loadChain } from '../../lib/run/chain.js';
-import { tensorFromData } from '../../lib/runtime/ort.js';
 import { quantizeValue } from '../../lib/kernels/requant.js';
-import { chainFor, fullModel, isStream, runFrame, streamStart, streamStep, type FramePolicy, type Policy } from '../../lib/policy/index.js';
+import type { Policy } from '../../lib/policy/index.js';
+import { onnxruntimeAnswers } from '../../lib/measure/device.js';
 import type { Manifest } from '../../lib/split/manifest.js';
 
 export const GCC = spawnSync('gcc', ['--version']).status === 0;
@@ -73,6 +73,21 @@ export function referenceAnswers(program: Program, policy: Policy, reach: number
   return a;
 }
 
+/**
+ * The compiled firmware `exe` of quantized folder `dir` against the TypeScript reference: every int8 tensor
+ * of the frames `few` byte for byte, and the label and exit of every frame of `all` under the manifest's policy.
+ */
+export function expectReferenceEqual(exe: string, dir: string, few: Float32Array, all: Float32Array): { values: number; answers: Answers; program: Program } {
+  const { program, manifest, reach } = loadProgram(dir);
+  const c = firmwareTensors(exe, few), t = referenceTensors(program, few);
+  expect(c.length).toBe(t.length);
+  expect(c.equals(t)).toBe(true);
+  const fa = firmwareAnswers(exe, all), ta = referenceAnswers(program, manifest.policy!.rule, reach, all);
+  expect(Array.from(fa.label)).toEqual(Array.from(ta.label));
+  expect(Array.from(fa.exit)).toEqual(Array.from(ta.exit));
+  return { values: t.length, answers: fa, program };
+}
+
 export interface OrtView {
   /** |q_firmware − q_onnxruntime| over every exit's and the final output's int8 logits (what the chain gives out): count by steps */
   steps: Map<number, number>;
@@ -81,39 +96,21 @@ export interface OrtView {
   frames: number;
 }
 
-/** onnxruntime on the QDQ stage files: its int8 outputs against the reference's, and the policy's answers on them. */
+/** onnxruntime on the QDQ stage files: its int8 logits against the reference's, and the policy's answers on them against the firmware's. */
 export async function againstOrt(dir: string, program: Program, outs: string[], policy: Policy, reach: number[], frames: Float32Array, fw: Answers): Promise<OrtView> {
-  const chain = await loadChain(dir);
-  const per = program.input.tensor.size, n = frames.length / per, E = program.logits.length - 1;
+  const per = program.input.tensor.size, n = frames.length / per;
   const m = new Int8Machine(program);
   const steps = new Map<number, number>();
-  const differ: OrtView['differ'] = [];
-  const frame: FramePolicy = isStream(policy) ? policy.then ?? fullModel(E) : policy;
-  const ch = chainFor(frame, reach, E, program.classes);
-  const st = streamStart(program.classes);
-  const shape = chain.manifest.inputs[0].shape.map(Number);
-  try {
-    for (let i = 0; i < n; i++) {
-      const x = frames.subarray(i * per, (i + 1) * per);
-      const r = await chain.run({ [program.input.name]: tensorFromData(1, shape, x) });
-      m.load(x); m.runTo(program.stages.length - 1);
-      const compare = (t: { name: string; scale: number; zeroPoint: number }, mine: Int8Array) => {
-        const o = r.outputs[t.name];
-        if (!o) throw new Error(`onnxruntime gave no ${t.name}`);
-        const d = o.data as Float32Array | Int8Array;
-        for (let j = 0; j < mine.length; j++) {
-          const q = d instanceof Int8Array ? d[j] : quantizeValue(d[j], t.scale, t.zeroPoint);
-          const k = Math.abs(q - mine[j]);
-          steps.set(k, (steps.get(k) ?? 0) + 1);
-        }
-      };
-      program.logits.forEach((t, k) => compare({ ...t, name: outs[k] }, m.logits[k]));
-      const z = outs.map((o) => r.outputs[o].data as Float32Array);
-      const v = { data: (k: number) => z[k], offset: () => 0 };
-      const a = isStream(policy) ? streamStep(policy, st, v, ch) : runFrame(policy, ch, v, 0);
-      if (a.label !== fw.label[i] || a.exit !== fw.exit[i]) differ.push({ frame: i, firmware: [fw.label[i], fw.exit[i]], ort: [a.label, a.exit] });
-    }
-  } finally { await chain.release(); }
+  const ort = await onnxruntimeAnswers(dir, policy, reach, outs, program.classes, frames, per, (i, z) => {
+    m.load(frames.subarray(i * per, (i + 1) * per)); m.runTo(program.stages.length - 1);
+    program.logits.forEach((t, k) => {
+      for (let j = 0; j < t.size; j++) {
+        const d = Math.abs(quantizeValue(z[k][j], t.scale, t.zeroPoint) - m.logits[k][j]);
+        steps.set(d, (steps.get(d) ?? 0) + 1);
+      }
+    });
+  });
+  const differ = ort.flatMap((a, i) => (a.label !== fw.label[i] || a.exit !== fw.exit[i] ? [{ frame: i, firmware: [fw.label[i], fw.exit[i]] as [number, number], ort: [a.label, a.exit] as [number, number] }] : []));
   return { steps, differ, frames: n };
 }
 
