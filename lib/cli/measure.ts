@@ -8,12 +8,11 @@ import { toolchainStatus } from '../measure/toolchain.js';
 import { UNMEASURABLE } from '../measure/cores.js';
 import { readManifestFile } from '../split/read.js';
 import { OfframpError } from '../errors.js';
-import { si, table, toJson } from '../report/units.js';
+import { bytes, microseconds, si, table, toJson } from '../report/units.js';
 import { emit, parseNumber } from './common.js';
 import { refuseInputsAsOutputs, splitReads } from './guard.js';
 import { writeAtomic } from '../util/atomic.js';
 
-const kib = (b: number) => (b >= 1024 ? `${(b / 1024).toFixed(2)} KiB` : `${b} B`);
 const pct = (x: number) => `${(x * 100).toFixed(1)} %`;
 
 export function deviceText(r: DeviceReport, verbose = false): string {
@@ -21,8 +20,8 @@ export function deviceText(r: DeviceReport, verbose = false): string {
   const equal = r.answers.equalToReference === r.frames;
   const head = [
     `on an emulated ${r.core} (QEMU ${r.machine}), ${r.frames} frames: ${si(f.policy)} instructions per frame with the policy against ${si(f.full)} for the whole network — ${pct(f.savedShare)} saved`,
-    `estimated ${f.policyMicroseconds >= 1000 ? `${(f.policyMicroseconds / 1000).toFixed(2)} ms` : `${f.policyMicroseconds} µs`} against ${f.fullMicroseconds >= 1000 ? `${(f.fullMicroseconds / 1000).toFixed(2)} ms` : `${f.fullMicroseconds} µs`} per frame at ${r.basis.clockMhz} MHz (an estimate: ${r.basis.cyclesPerInstruction} cycles per instruction, no wait states; the instruction counts are exact)`,
-    `flash ${kib(r.flash.libraryBytes)} (the library: code, weights, tables), RAM ${kib(r.ram.libraryBytes)} + stack peak ${kib(r.ram.stackPeakBytes)}`,
+    `estimated ${microseconds(f.policyMicroseconds)} against ${microseconds(f.fullMicroseconds)} per frame at ${r.basis.clockMhz} MHz (an estimate: ${r.basis.cyclesPerInstruction} cycles per instruction, no wait states; the instruction counts are exact)`,
+    `flash ${bytes(r.flash.libraryBytes)} (the library: code, weights, tables), RAM ${bytes(r.ram.libraryBytes)} + stack peak ${bytes(r.ram.stackPeakBytes)}`,
     `answers: ${equal ? 'all equal to' : `${r.frames - r.answers.equalToReference} DIFFER from`} the TypeScript integer reference; label and exit equal to onnxruntime's on ${r.answers.equalToOnnxruntime} of ${r.frames}` + (r.answers.accuracy !== undefined ? `; accuracy ${pct(r.answers.accuracy)}` : ''),
   ];
   const stages = table(['stage', 'MACs', 'instructions', 'per MAC'], r.stages.map((s) => [String(s.index), si(s.macs), si(s.instructions), s.instructionsPerMac.toFixed(2)]));

@@ -3,7 +3,7 @@
 import type { BuildResult } from '../pipeline/build.js';
 import type { Policy } from '../policy/policy.js';
 import path from 'node:path';
-import { bytes, si, table, toJson } from './units.js';
+import { bytes, microseconds, si, table, toJson } from './units.js';
 import { esc, lineChart, barChart, type Series } from './svg.js';
 import { basisWord, budgetText, duration, overLine, storedLabel } from './budget.js';
 import { count, dropWords, FINAL, promiseSentence } from './words.js';
@@ -62,10 +62,10 @@ export function buildSummary(r: BuildResult) {
 
 /** The device headline: what the exits save on the (emulated) microcontroller, in instructions and estimated time. */
 export function deviceLines(d: DeviceReport): string[] {
-  const f = d.perFrame, ms = (us: number) => (us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us} µs`);
+  const f = d.perFrame;
   return [
     `on device  emulated ${d.core}, int8 firmware on ${d.frames} rows: ${si(f.policy)} instructions per frame with the policy vs ${si(f.full)} for the whole network — ${(f.savedShare * 100).toFixed(1)} % saved`,
-    `           ≈ ${ms(f.policyMicroseconds)} vs ${ms(f.fullMicroseconds)} per frame at ${d.basis.clockMhz} MHz (estimate: ${d.basis.cyclesPerInstruction} cycles per instruction; the instruction counts are exact); flash ${bytes(d.flash.libraryBytes)}, RAM ${bytes(d.ram.libraryBytes)} + stack ${bytes(d.ram.stackPeakBytes)}; answers ${d.answers.equalToReference === d.frames ? 'equal to' : 'DIFFERENT from'} the integer reference`,
+    `           ≈ ${microseconds(f.policyMicroseconds)} vs ${microseconds(f.fullMicroseconds)} per frame at ${d.basis.clockMhz} MHz (estimate: ${d.basis.cyclesPerInstruction} cycles per instruction; the instruction counts are exact); flash ${bytes(d.flash.libraryBytes)}, RAM ${bytes(d.ram.libraryBytes)} + stack ${bytes(d.ram.stackPeakBytes)}; answers ${d.answers.equalToReference === d.frames ? 'equal to' : 'DIFFERENT from'} the integer reference`,
   ];
 }
 

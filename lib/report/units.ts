@@ -37,6 +37,9 @@ export function bytes(v: bigint | number): string {
   return scaled(x, BIN, (y) => y.toFixed(2)) ?? `${integer(v)} B`;
 }
 
+/** An estimated time given in microseconds: µs below a millisecond, ms with two decimals above. */
+export const microseconds = (us: number): string => (us >= 1000 ? `${(us / 1000).toFixed(2)} ms` : `${us} µs`);
+
 /** `digits` significant digits without exponent notation (500 stays 500, not 5.0e+2). */
 const fixed = (v: number, digits: number) => { const p = v.toPrecision(digits); return p.includes('e') ? String(Math.round(v)) : trim(p); };
 const trim = (s: string) => (s.includes('.') && !s.includes('e') ? s.replace(/\.?0+$/, '') : s);
