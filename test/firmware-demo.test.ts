@@ -13,7 +13,7 @@ import { samples, BINS, FRAMES } from '../scripts/demo-data.js';
 import { writeNpy } from '../lib/data/npy.js';
 import { toolchainStatus } from '../lib/measure/toolchain.js';
 import { measureDevice } from '../lib/measure/device.js';
-import { GCC, compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
+import { GCC, compileFirmware, firmwareAnswers, loadProgram, againstOrt, histogram, expectReferenceEqual } from './helpers/firmware.js';
 
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the firmware tests need it under CI');
 const EMU = toolchainStatus().ready;
@@ -48,17 +48,10 @@ describe.skipIf(!GCC)('int8 firmware of the demo model', { timeout: 600_000 }, (
 
   it('equals the integer reference bit for bit on every int8 tensor and every answer', () => {
     compileFirmware(f('fw'), f('fw.exe'));
-    const { program, manifest, reach } = loadProgram(f('b/int8'));
-    const per = program.input.tensor.size;
-    const few = val.subarray(0, 200 * per);
-    const c = firmwareTensors(f('fw.exe'), few), t = referenceTensors(program, few);
-    expect(c.length).toBe(t.length);
-    expect(c.equals(t)).toBe(true);
-    const fa = firmwareAnswers(f('fw.exe'), val), ta = referenceAnswers(program, manifest.policy!.rule, reach, val);
-    expect(Array.from(fa.label)).toEqual(Array.from(ta.label));
-    expect(Array.from(fa.exit)).toEqual(Array.from(ta.exit));
+    const per = BINS * FRAMES;
+    const { values, answers: fa, program } = expectReferenceEqual(f('fw.exe'), f('b/int8'), val.subarray(0, 200 * per), val);
     const exits = Array.from({ length: program.logits.length }, (_, k) => fa.exit.filter((e) => e === k).length);
-    console.log(`demo int8 firmware (gcc): ${t.length} int8 values of 200 windows bit for bit equal to the reference; ${fa.label.length} answers equal; exits taken ${exits.join(' / ')}`);
+    console.log(`demo int8 firmware (gcc): ${values} int8 values of 200 windows bit for bit equal to the reference; ${fa.label.length} answers equal; exits taken ${exits.join(' / ')}`);
   });
 
   it('agrees with onnxruntime on the QDQ stage files: int8 values within 1 step, label and exit on ≥ 99.5 % of windows', async () => {

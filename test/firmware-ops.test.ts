@@ -20,7 +20,7 @@ import { INT8, FLOAT } from '../lib/onnx/dtype.js';
 import { modelBytes, openSession, runSession, tensorFromData } from '../lib/runtime/ort.js';
 import { Int8Machine } from '../lib/firmware/interp.js';
 import { stepInputs, type Program } from '../lib/firmware/program.js';
-import { GCC, compileFirmware, firmwareAnswers, firmwareTensors, loadProgram, referenceAnswers, referenceTensors, againstOrt, histogram } from './helpers/firmware.js';
+import { GCC, compileFirmware, firmwareAnswers, loadProgram, againstOrt, histogram, expectReferenceEqual } from './helpers/firmware.js';
 
 if (!GCC && process.env.CI) throw new Error('gcc is missing: the firmware tests need it under CI');
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-fw-ops-'));
@@ -141,17 +141,10 @@ describe.skipIf(!GCC)('int8 firmware: Add, Mul, Concat, Transpose and activation
 
   it('equals the integer reference bit for bit on every int8 tensor and every answer', () => {
     compileFirmware(f('fw'), f('fw.exe'));
-    const { program, manifest, reach } = loadProgram(f('q'));
-    const few = val.subarray(0, 200 * PER);
-    const c = firmwareTensors(f('fw.exe'), few), t = referenceTensors(program, few);
-    expect(c.length).toBe(t.length);
-    expect(c.equals(t)).toBe(true);
-    const fa = firmwareAnswers(f('fw.exe'), val), ta = referenceAnswers(program, manifest.policy!.rule, reach, val);
-    expect(Array.from(fa.label)).toEqual(Array.from(ta.label));
-    expect(Array.from(fa.exit)).toEqual(Array.from(ta.exit));
+    const { values, answers: fa, program } = expectReferenceEqual(f('fw.exe'), f('q'), val.subarray(0, 200 * PER), val);
     const exits = Array.from({ length: program.logits.length }, (_, k) => fa.exit.filter((e) => e === k).length);
     const labels = Array.from({ length: program.classes }, (_, k) => fa.label.filter((e) => e === k).length);
-    console.log(`ops net int8 firmware (gcc): ${t.length} int8 values of 200 frames bit for bit equal to the reference; ${fa.label.length} answers equal; exits taken ${exits.join(' / ')}, labels ${labels.join(' / ')}`);
+    console.log(`ops net int8 firmware (gcc): ${values} int8 values of 200 frames bit for bit equal to the reference; ${fa.label.length} answers equal; exits taken ${exits.join(' / ')}, labels ${labels.join(' / ')}`);
   });
 
   it('agrees with onnxruntime on the QDQ stage files: every int8 tensor within a step, label and exit', async () => {
