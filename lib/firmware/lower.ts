@@ -233,7 +233,7 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     return t;
   };
   /** Follow the op's output through an optional Relu/Clip to its QuantizeLinear: the int8 output and its clamp. */
-  const sink = (n: Node, k = 0): { y: Tensor8; lo: number; hi: number } => {
+  const sink = (n: Node, k = 0): { y: Tensor8; lo: number; hi: number; consumed: Node[] } => {
     let v = n.outputs[k], lo = -128, hi = 127;
     let c = r.only(v);
     const act: Node[] = [];
@@ -252,7 +252,7 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
       }
     }
     const y = define({ name: c.outputs[0], ...q }, c);
-    return { y, lo, hi: Math.max(lo, hi) };
+    return { y, lo, hi: Math.max(lo, hi), consumed: [...act, c] };
   };
 
   const steps: Step[] = [];
@@ -275,9 +275,7 @@ function lowerStage(r: StageReader, st: ManifestStage, exitNames: string[], hand
     /** The int8 output of output k, its clamp; the activations and QuantizeLinear after it are this step's. */
     const claim = (k: number) => {
       const got = sink(n, k);
-      let c: Node | undefined = r.only(n.outputs[k]);
-      while (c && (c.op === 'Relu' || c.op === 'Clip')) { handled.add(c); c = r.only(c.outputs[0]); }
-      if (c) handled.add(c);
+      for (const c of got.consumed) handled.add(c);
       return got;
     };
     const a = attrsOf(n.attrs);
