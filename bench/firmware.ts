@@ -64,7 +64,7 @@ async function hostTiming(q: string, x: string, per: number, dir: string): Promi
   fs.mkdirSync(src);
   for (const f of firmwareFiles(q, src).files) fs.writeFileSync(path.join(src, f.name), f.text);
   const exe = path.join(src, 'fw');
-  const cc = spawnSync('gcc', ['-std=c99', '-O2', '-I', src, ...fs.readdirSync(src).filter((f) => f.endsWith('.c')).map((f) => path.join(src, f)), DRIVER, '-o', exe, '-lm'], { encoding: 'utf8' });
+  const cc = spawnSync('gcc', ['-std=c99', '-O2', '-I', src, ...fs.readdirSync(src).filter((f) => f.endsWith('.c')).map((f) => path.join(src, f)), DRIVER, '-o', exe], { encoding: 'utf8' });
   if (cc.status !== 0) throw new Error(cc.stderr);
   const data = readNpy(x).data as Float32Array;
   const frames = data.length / per;
