@@ -24,7 +24,7 @@ async function step(title: string, args: string[]): Promise<void> {
 
 writeDemoData(at('data'));
 // 6000 labelled windows: 3000 fit the heads, 1500 search the policy, 1500 certify it.
-await step('build', ['build', at('fan-monitor.onnx'), '--data', data('calib-x.npy'), '--labels', data('calib-y.npy'), '--head', 'grid:4', '--target', 'm4f', '-o', out]);
+await step('build', ['build', at('fan-monitor.onnx'), '--data', data('calib-x.npy'), '--labels', data('calib-y.npy'), '--target', 'm4f', '-o', out]);
 // The per-frame policy on 2000 validation windows that neither fitted nor tuned anything.
 await step('per-frame replay on new windows', ['replay', out, '--data', data('val-x.npy'), '--labels', data('val-y.npy')]);
 // The stream policy gets a folder of its own (the same stage files, split from the build's grafted model),

@@ -157,7 +157,8 @@ describe('token tensors [N, T, D]: heads pool over the tokens', () => {
     expect(j.exits[0].fit.agreement).toBeGreaterThan(0.6);
     expect(j.warnings).toBeUndefined();
     // forced to pool over D, every row's features are the same zeros (up to rounding): the head answers the majority
-    const n = await cli(['graft', model, '--cuts', 'normed', '--layout', 'NCL', '--data', data, '--held-out', '0.25', '-o', out]);
+    // (a linear head: a grid over D, which graft would choose here, reads a little of what pooling threw away)
+    const n = await cli(['graft', model, '--cuts', 'normed', '--layout', 'NCL', '--head', 'linear', '--data', data, '--held-out', '0.25', '-o', out]);
     expect(n.code, n.stderr).toBe(0);
     expect(n.stdout).toMatch(/warning: exit-0 at 'normed' agrees with the final output on [\d.]+ % of held-out rows, no more than always answering its most common class \([\d.]+ %\): the head reads nothing useful there; the cut \[1, 10, 16\] was pooled as NCL: if its last axis holds the features \(tokens × features\), give --layout NTD/);
     // build fits its candidate heads the same way: token layout read from the graph, every head above chance

@@ -1,8 +1,8 @@
 // offramp tune and replay end to end on the Fashion-MNIST CNN fixture (scripts/train-fmnist.py) with
 // Debian's dataset-fashion-mnist: graft linear heads on training rows, split at the exits, tune on the
 // 10k test set, replay the chosen policy; then recordings made of test images for the stream policies.
-// The certification checks use grid:4 heads on the same training rows and judge each tuning on test
-// images it did not see.
+// The certification checks use the heads graft chooses by default (grid:4 at both cheap cuts) on the same
+// training rows and judge each tuning on test images it did not see.
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import fs from 'node:fs';
 import os from 'node:os';
@@ -32,10 +32,10 @@ const json = (r: { code: number; stdout: string; stderr: string }) => {
 describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
   const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-tune-'));
   const split = path.join(tmp, 'split');
-  // grid:4 heads at the two cheap cuts (6 % and 53 % of the MACs): every exit of every test image,
+  // chosen (grid:4) heads at the two cheap cuts (6 % and 53 % of the MACs): every exit of every test image,
   // captured once through that chain and shared by the certification checks
   const gridSplit = path.join(tmp, 'grid-split');
-  let cache: ExitCache, costs: ExitCosts;
+  let cache: ExitCache, costs: ExitCosts, chosenHeads: string[] = [];
   afterAll(() => fs.rmSync(tmp, { recursive: true, force: true }));
   beforeAll(async () => {
     const train = readIdxImages(`${DIR}/train-images-idx3-ubyte.gz`), trainY = readIdxLabels(`${DIR}/train-labels-idx1-ubyte.gz`);
@@ -45,14 +45,16 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     writeNpy(path.join(tmp, 'train_y.npy'), Int32Array.from(trainY.subarray(0, N)), [N]);
     writeNpy(path.join(tmp, 'test.npy'), test.data, [test.count, 1, 28, 28]);
     writeNpy(path.join(tmp, 'test_y.npy'), Int32Array.from(testY), [test.count]);
-    const g = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0,/b3/b3.1/Relu_output_0',
+    const g = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0,/b3/b3.1/Relu_output_0', '--head', 'linear',
       '--data', path.join(tmp, 'train.npy'), '--labels', path.join(tmp, 'train_y.npy'), '-o', path.join(tmp, 'grafted.onnx')]);
     if (g.code !== 0) throw new Error(g.stderr);
     const s = offramp(['split', path.join(tmp, 'grafted.onnx'), '-o', split]);
     if (s.code !== 0) throw new Error(s.stderr);
-    const gg = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0', '--head', 'grid:4',
-      '--data', path.join(tmp, 'train.npy'), '--labels', path.join(tmp, 'train_y.npy'), '-o', path.join(tmp, 'grid.onnx')]);
+    // default settings: each exit's head chosen by graft (heads/choose.ts); on these rows it takes grid:4 at both
+    const gg = offramp(['graft', MODEL, '--cuts', '/b1/b1.2/MaxPool_output_0,/b2/b2.2/MaxPool_output_0',
+      '--data', path.join(tmp, 'train.npy'), '--labels', path.join(tmp, 'train_y.npy'), '-o', path.join(tmp, 'grid.onnx'), '--json']);
     if (gg.code !== 0) throw new Error(gg.stderr);
+    chosenHeads = (JSON.parse(gg.stdout).exits as { head: string; choice?: { tried: unknown[] } }[]).map((e) => `${e.head} of ${e.choice?.tried.length}`);
     const gs = offramp(['split', path.join(tmp, 'grid.onnx'), '-o', gridSplit]);
     if (gs.code !== 0) throw new Error(gs.stderr);
     const chain = await loadChain(gridSplit);
@@ -94,7 +96,8 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
     }
   });
 
-  it('tuned on 5000 labelled test images, the real drop on the other 5000 stays within 1 point and the saving at least 60 %', () => {
+  it('default settings, tuned on 5000 labelled test images: the real drop on the other 5000 stays within 1 point and the saving reaches 65 %', () => {
+    console.log(`Fashion-MNIST heads chosen by graft: ${chosenHeads.join(', ')} tried`);
     const first = Array.from({ length: 5000 }, (_, i) => i), second = first.map((i) => i + 5000);
     for (const [tuneOn, newData] of [[first, second], [second, first]]) {
       const r = tune(rowsOf(cache, tuneOn), costs, { maxDrop: 1 });
@@ -104,8 +107,8 @@ describe.skipIf(!have)('tune and replay on the Fashion-MNIST CNN', () => {
         `on the other 5000 images real drop ${real.drop.toFixed(2)} pp, real saving ${(real.saving * 100).toFixed(1)} % (${r.chosen.policy.kind})`);
       expect(real.drop).toBeLessThanOrEqual(1);
       expect(g.certified).toBe(true);
-      // with global-average (linear) heads the same check certified about 22 %: the grid keeps where things are
-      expect(real.saving).toBeGreaterThanOrEqual(0.6);
+      // with global-average (linear) heads, the default before heads were chosen, the same check certified about 22 %
+      expect(real.saving).toBeGreaterThanOrEqual(0.65);
     }
   });
 

@@ -16,7 +16,7 @@ import { toolchainStatus } from '../measure/toolchain.js';
 import { coreOf } from '../measure/cores.js';
 
 interface BuildFlags {
-  data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head: string;
+  data: string; labels?: string; out: string; maxDrop: string; maxExits: string; candidates: string; head?: string;
   seed: string; json?: boolean; target?: string; flash?: string; ram?: string; clockMhz?: string; macsPerCycle?: string;
   int8MacsPerCycle?: string; int8?: boolean; reorder?: boolean; verbose?: boolean; confidence: string; unlabelled?: string;
   measure?: boolean; core: string; measureRows: string;
@@ -46,7 +46,7 @@ export function buildCommand(program: Command): void {
     .option('--unlabelled <file>', 'extra inputs without labels (.npy): they tighten the bound on disagreement with the full model')
     .option('--max-exits <n>', 'most exits to place', '3')
     .option('--candidates <n>', 'candidate cuts to fit heads at', '6')
-    .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G', 'linear')
+    .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G (default: chosen per exit among linear, grid:2, grid:4 and mlp:32)')
     .option('--seed <n>', 'seed of every random choice', '1')
     .option('--reorder', 'write each stage file in a memory-aware node order (lower peak activation memory)')
     .option('--measure', 'with --int8: measure the int8 firmware on an emulated Cortex-M (QEMU), rows of --data in file order; the report leads with what the exits save there')
@@ -81,7 +81,7 @@ export function buildCommand(program: Command): void {
       const started = Date.now();
       const r = await buildExits(file, {
         data: o.data, labels: o.labels, out: o.out, target, int8: o.int8, maxDrop, confidence, unlabelled: o.unlabelled,
-        maxExits, candidates, head: parseHead(o.head), seed, reorder: o.reorder, ...(o.measure && { measure: { core: o.core, rows: measureRows } }),
+        maxExits, candidates, head: o.head === undefined ? undefined : parseHead(o.head), seed, reorder: o.reorder, ...(o.measure && { measure: { core: o.core, rows: measureRows } }),
         progress: tty ? (step, detail) => process.stderr.write(`${((Date.now() - started) / 1000).toFixed(1).padStart(5)} s  ${step.padEnd(8)} ${detail}\n`) : undefined,
         // The reports go in with the manifest they describe (after it), never beside another.
         describe: (b) => [{ name: 'report.json', data: buildJson(b) }, { name: 'report.html', data: buildHtml(b) }],

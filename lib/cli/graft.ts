@@ -16,7 +16,7 @@ import { progressBar } from './progress.js';
 export const GRAFT_SCHEMA = 'offramp-graft/1';
 
 interface GraftCliOptions {
-  cuts?: string; at?: string; data: string; labels?: string; head: string; out: string;
+  cuts?: string; at?: string; data: string; labels?: string; head?: string; out: string;
   seed: string; l2: string; temperature: string; layout?: string; heldOut: string; dim: string[]; json?: boolean;
 }
 
@@ -31,7 +31,16 @@ export function graftText(r: GraftResult, out: string): string {
   });
   return `${table(['exit', 'cut', 'head', 'MACs', 'params', 'accuracy', 'agreement', 'loss', 'fit/held'], rows)}\n`
     + `accuracy and agreement (with the final output) on the held-out rows; wrote ${out}\n`
+    + choiceText(r)
     + r.warnings.map((w) => `warning: ${w}\n`).join('');
+}
+
+/** One line per chosen head: what each kind tried there would save per frame, as estimated on the held-out rows. */
+function choiceText(r: GraftResult): string {
+  const chosen = r.heads.filter((h) => h.record.choice);
+  if (!chosen.length) return '';
+  return `heads chosen by the MACs they would save per frame (held-out rows; --head names one for every exit):\n`
+    + chosen.map((h) => `  ${h.record.output}: ${h.record.head}  (${h.record.choice!.tried.map((t) => `${t.head} ${si(Math.max(0, t.worth))}`).join(', ')})\n`).join('');
 }
 
 export function graftJson(r: GraftResult, out: string): string {
@@ -64,7 +73,7 @@ export function graftCommand(program: Command): void {
     .option('--at <fractions>', 'nearest clean cuts to these MAC fractions, e.g. 25%,50%')
     .requiredOption('--data <file>', 'calibration inputs: .npy [N, …] or a folder of test_data_set_*/input_0.pb')
     .option('--labels <file>', 'integer labels .npy [N]; without them heads distil the final output')
-    .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G', 'linear')
+    .option('--head <kind>', 'linear, mlp:H, conv:C or grid:G (default: chosen per exit among linear, grid:2, grid:4 and mlp:32)')
     .requiredOption('-o, --out <file>', 'grafted model to write')
     .option('--seed <n>', 'seed of the held-out split and of any random initialisation', '1')
     .option('--l2 <x>', 'L2 strength on head weights (mean loss + l2/2·‖W‖²)', '1e-5')
@@ -75,7 +84,7 @@ export function graftCommand(program: Command): void {
     .option('--json', `machine-readable report (schema ${GRAFT_SCHEMA})`)
     .action(modelAction(async (file: string, o: GraftCliOptions) => {
       if (!o.cuts === !o.at) throw usageError('give exactly one of --cuts and --at');
-      const head = parseHead(o.head), layout = o.layout ? parseLayout(o.layout) : undefined;
+      const head = o.head === undefined ? undefined : parseHead(o.head), layout = o.layout ? parseLayout(o.layout) : undefined;
       const seed = parseNumber(o.seed, '--seed', { int: true, min: 0, max: 2 ** 32 - 1 });
       const l2 = parseNumber(o.l2, '--l2', { min: 0 }), temperature = parseNumber(o.temperature, '--temperature', { min: 0, above: true });
       const heldOut = parseNumber(o.heldOut, '--held-out', { min: 0, max: 1, below: true });

@@ -13,7 +13,11 @@ import { argmaxRows, labelTargets, matchRate, softTargets, type Features, type T
 import { axesFor, headName, type HeadKind, type Layout } from './spec.js';
 import { inferLayout } from './layout.js';
 import { captureFeatures, type Batch } from './capture.js';
-import { graftHeads, type FittedHead, type HeadInput } from './graft.js';
+import { graftHeads, type ExitRecord, type FittedHead, type HeadInput } from './graft.js';
+import { bestTrial, CHOICE_RULE, exitableShare, HEAD_CHOICES, worthOf, type HeadTrial } from './choose.js';
+import { costModel } from '../cost/report.js';
+import { neededNodes } from '../cuts/order.js';
+import { roundNoise } from '../util/json.js';
 import type { Dense } from './nodes.js';
 
 /** Calibration inputs: a row count, the per-sample shape, and batches of at most `rows` rows. */
@@ -22,7 +26,8 @@ export interface DataSource { rows: number; batches(rows: number): Iterable<Batc
 export interface GraftOptions {
   /** cut value names (or node names: their first output) */
   cuts: string[];
-  head: HeadKind;
+  /** the head at every exit; without it each exit's is chosen among HEAD_CHOICES (heads/choose.ts) */
+  head?: HeadKind;
   layout?: Layout;
   /** integer class labels, one per row; without them heads distil the final output */
   labels?: ArrayLike<number>;
@@ -103,13 +108,28 @@ function recurrentBefore(model: Model, value: string): string | undefined {
   return undefined;
 }
 
+/** MACs of the nodes a value depends on (what a stage ending there computes), and of the whole model. */
+function macsBefore(model: Model & { file?: string }, shapes: ShapeResult, values: string[]): { before: number[]; total: number } {
+  const cost = costModel(model, { shapes });
+  const macOf = new Map(cost.nodes.map((n) => [n.index, Number(n.macs)]));
+  const total = [...macOf.values()].reduce((a, b) => a + b, 0);
+  const before = values.map((v) => [...neededNodes(model.graph, [v])].reduce((a, i) => a + (macOf.get(i) ?? 0), 0));
+  return { before, total };
+}
+
+type Input = HeadInput & { width: number; spatial: number };
+
 export async function graftExits(model: Model & { file?: string }, data: DataSource, o: GraftOptions): Promise<GraftResult> {
   const file = model.file, seed = o.seed ?? 1;
   if (!o.cuts.length) throw new OfframpError('usage', 'no cuts given', file);
   const shapes = o.shapes ?? (await completeShapes(model, { batch: 1 }));
   const io = classifierIO(model, shapes);
   const cuts = resolveCuts(model, o.cuts);
-  const inputs = cuts.map((cut, k): HeadInput & { width: number; spatial: number } => {
+  const kinds = o.head ? [o.head] : HEAD_CHOICES;
+  // per cut, the heads tried there; heads reading the same pooled features (linear and mlp, or two grids
+  // that come out alike on a small map) share one captured feature set
+  const captured: Input[] = [], slots = new Map<string, number>();
+  const tries = cuts.map((cut, k) => {
     const t = shapes.values.get(cut)?.type;
     if (!t?.shape || !concreteDims(t.shape)) throw new OfframpError('shape', `cut '${cut}' has no concrete shape`, file);
     if (t.dtype !== FLOAT) throw new OfframpError('graph', `cut '${cut}' is ${dtypeName(t.dtype)}; heads read float32 tensors`, file);
@@ -120,20 +140,42 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
       throw new OfframpError('shape', `cut '${cut}' is [${t.shape.join(', ')}]: its first axis is not the batch (${batch} here)${recurrentBefore(model, cut) ? `, as a time-first ${recurrentBefore(model, cut)} output is` : ''}; a head there would answer once per step along that axis: cut where the tensor is batch-first, or after the sequence is reduced`, file);
     // rank 3: the layout the graph shows (heads/layout.ts), unless given
     const axes = axesFor(t.shape, o.layout ?? (t.shape.length === 3 ? inferLayout(model, cut) : undefined), cut);
-    const cin = t.shape[axes.channel], spatial = axes.pool.reduce((a, i) => a * (t.shape![i] as number), 1);
-    const proj = o.head.kind === 'conv' ? randomProjection(cin, o.head.channels, (seed * 0x9e3779b1 + k) >>> 0) : undefined;
-    if (o.head.kind === 'grid' && axes.pool.length) {
-      if (axes.channel !== 1) throw new OfframpError('usage', `--head grid pools channels-first tensors; cut '${cut}' is ${axes.layout}`, file);
-      // windows of ⌈dim / cells⌉: at most `cells` per axis, the last one partial when the dim does not divide
-      const n = o.head.cells, grid = axes.pool.map((i) => Math.ceil((t.shape![i] as number) / n));
-      const cells = axes.pool.reduce((a, i, j) => a * Math.ceil((t.shape![i] as number) / grid[j]), 1);
-      return { cut, rank: t.shape.length, axes, grid, width: cin * cells, spatial };
+    const shape = t.shape, cin = shape[axes.channel], spatial = axes.pool.reduce((a, i) => a * shape[i], 1);
+    const inputOf = (head: HeadKind): Input | undefined => {
+      const proj = head.kind === 'conv' ? randomProjection(cin, head.channels, (seed * 0x9e3779b1 + k) >>> 0) : undefined;
+      if (head.kind === 'grid' && axes.pool.length) {
+        if (axes.channel !== 1) {
+          if (o.head) throw new OfframpError('usage', `--head grid pools channels-first tensors; cut '${cut}' is ${axes.layout}`, file);
+          return undefined;
+        }
+        // windows of ⌈dim / cells⌉: at most `cells` per axis, the last one partial when the dim does not divide
+        const n = head.cells, grid = axes.pool.map((i) => Math.ceil(shape[i] / n));
+        const cells = axes.pool.reduce((a, i, j) => a * Math.ceil(shape[i] / grid[j]), 1);
+        return { cut, rank: shape.length, axes, grid, width: cin * cells, spatial };
+      }
+      // a grid on a feature vector, or one window per axis, is the plain head
+      if (head.kind === 'grid' && !o.head) return undefined;
+      return { cut, rank: shape.length, axes, proj, width: proj ? proj.out : cin, spatial };
+    };
+    const list: { head: HeadKind; slot: number }[] = [];
+    const seen = new Set<string>();
+    for (const head of kinds) {
+      const inp = inputOf(head);
+      // a grid of one window per axis is the plain head's pooling
+      if (!inp || (!o.head && inp.grid && inp.width === cin)) continue;
+      const features = `${cut}|${inp.proj ? `conv:${inp.proj.out}` : ''}|${inp.grid?.join('x') ?? ''}`;
+      const trial = `${features}|${head.kind === 'mlp' ? head.hidden : ''}`;
+      if (seen.has(trial)) continue; // grid:4 on a 2×2 map is grid:2
+      seen.add(trial);
+      let slot = slots.get(features);
+      if (slot === undefined) { slots.set(features, (slot = captured.length)); captured.push(inp); }
+      list.push({ head, slot });
     }
-    return { cut, rank: t.shape.length, axes, proj, width: proj ? proj.out : cin, spatial };
+    return list;
   });
 
   const total = data.rows;
-  const cap = await captureFeatures(model, inputs, io.classes, data.batches(io.fixedBatch ?? o.batchRows ?? 64), {
+  const cap = await captureFeatures(model, captured, io.classes, data.batches(io.fixedBatch ?? o.batchRows ?? 64), {
     input: io.input, sample: io.sample, fixedBatch: io.fixedBatch, final: io.final, file,
     onBatch: (done) => o.progress?.('capture', done, total),
   });
@@ -148,14 +190,12 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
   const targets: Targets = labels ? labelTargets(labels, k) : softTargets(cap.final, n, k, o.temperature ?? 1);
   const teacher = argmaxRows(cap.final, n, k);
   const fitOpts = { l2: o.l2, seed, heldOut: o.heldOut };
+  const macs = o.head ? undefined : macsBefore(model, shapes, cuts);
 
-  const warnings: string[] = [];
-  const heads: FittedHead[] = inputs.map((h, e) => {
-    o.progress?.('fit', e, inputs.length);
-    const F: Features = cap.features[e];
+  const fitted = (h: Input, head: HeadKind, F: Features, e: number) => {
     let layers: Dense[], loss: number, split: { train: Int32Array; held: Int32Array };
-    if (o.head.kind === 'mlp') {
-      const f = fitMlp(F, targets, o.head.hidden, fitOpts);
+    if (head.kind === 'mlp') {
+      const f = fitMlp(F, targets, head.hidden, fitOpts);
       layers = [{ out: f.h, in: f.d, W: f32(f.W1), b: f32(f.b1) }, { out: k, in: f.h, W: f32(f.W2), b: f32(f.b2) }];
       ({ loss, split } = f);
     } else {
@@ -171,8 +211,8 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
     const rows = split.held.length ? split.held : split.train;
     const dense = (l: Dense) => ({ macs: l.in * l.out, params: l.in * l.out + l.out });
     const parts = [...(h.proj ? [{ ...dense(h.proj), macs: h.proj.in * h.proj.out * h.spatial }] : []), ...layers.map(dense)];
-    const record = {
-      exit: e, output: `exit-${e}`, cut: h.cut, head: headName(o.head), layout: h.axes.layout, classes: k,
+    const record: ExitRecord = {
+      exit: e, output: `exit-${e}`, cut: h.cut, head: headName(head), layout: h.axes.layout, classes: k,
       macs: parts.reduce((a, p) => a + p.macs, 0), params: parts.reduce((a, p) => a + p.params, 0),
       fit: {
         loss: Number(loss.toPrecision(8)),
@@ -180,6 +220,30 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
         agreement: matchRate(pred, teacher, rows), samples: split.train.length, heldOut: split.held.length,
       },
     };
+    return { layers, record, rows, logits };
+  };
+
+  const warnings: string[] = [];
+  const steps = tries.reduce((a, t) => a + t.length, 0);
+  let step = 0;
+  const heads: FittedHead[] = tries.map((list, e) => {
+    const fits = list.map(({ head, slot }) => {
+      o.progress?.('fit', step++, steps);
+      return fitted(captured[slot], head, cap.features[slot], e);
+    });
+    let pick = 0;
+    if (macs) {
+      // chosen on the fit's held-out rows, which certify nothing (heads/choose.ts)
+      const skipped = macs.total - macs.before[e];
+      const trials: HeadTrial[] = fits.map((f) => {
+        const exitable = exitableShare(f.logits, k, teacher, f.rows);
+        return { head: f.record.head, macs: f.record.macs, params: f.record.params, agreement: f.record.fit.agreement, exitable: roundNoise(exitable), worth: Math.round(worthOf(exitable, skipped, f.record.macs)) };
+      });
+      pick = bestTrial(trials);
+      fits[pick].record.choice = { rule: CHOICE_RULE, tried: trials };
+    }
+    const { layers, record, rows } = fits[pick];
+    const h = captured[list[pick].slot];
     // Chance level: the share of the most common answer among the scored rows; a head at or below it reads nothing.
     const counts = new Map<number, number>();
     for (const i of rows) counts.set(teacher[i], (counts.get(teacher[i]) ?? 0) + 1);
@@ -192,6 +256,6 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
     }
     return { cut: h.cut, rank: h.rank, axes: h.axes, proj: h.proj, ...(h.grid ? { grid: h.grid } : {}), layers, record };
   });
-  o.progress?.('fit', inputs.length, inputs.length);
+  o.progress?.('fit', steps, steps);
   return { model: graftHeads(model, heads, io.batch), heads, warnings };
 }

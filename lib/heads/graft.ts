@@ -8,6 +8,7 @@ import { EXITS_KEY, exitOutputs } from '../cuts/exits.js';
 import { OfframpError } from '../errors.js';
 import { emitClassifier, emitFeatures, emitter, type Dense, type Emitter } from './nodes.js';
 import type { Axes } from './spec.js';
+import type { HeadTrial } from './choose.js';
 
 export { EXITS_KEY };
 
@@ -26,6 +27,8 @@ export interface FitStats {
 export interface ExitRecord {
   exit: number; output: string; cut: string; head: string; layout: string;
   classes: number; macs: number; params: number; fit: FitStats;
+  /** when the head was chosen, not named: the rule and every head tried (heads/choose.ts) */
+  choice?: { rule: string; tried: HeadTrial[] };
 }
 
 /** Where a head reads and how: the cut tensor's rank and axes, an optional 1×1 projection, an optional pooling grid (window per pooled axis). */

@@ -201,7 +201,7 @@ export async function buildExits(file: string, options: BuildOptions): Promise<B
 
 async function buildInto(file: string, o: BuildOptions & { target?: Target }): Promise<BuildResult> {
   const say = (step: string, detail: string) => o.progress?.(step, detail);
-  const maxDrop = o.maxDrop ?? 1, confidence = o.confidence ?? 0.95, head: HeadKind = o.head ?? { kind: 'linear' }, seed = o.seed ?? 1;
+  const maxDrop = o.maxDrop ?? 1, confidence = o.confidence ?? 0.95, head: HeadKind | undefined = o.head, seed = o.seed ?? 1;
   if (!(confidence > 0 && confidence < 1)) throw new OfframpError('usage', `--confidence must lie strictly between 0 and 1, not ${confidence}`);
   const model: LoadedModel = loadModel(file);
   const shapes = await completeShapes(model, { batch: 1 });
