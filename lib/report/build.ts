@@ -37,7 +37,7 @@ export function buildSummary(r: BuildResult) {
     /** the manifest this report describes */
     manifest: { file: MANIFEST_FILE, sha256: r.manifestSha256 },
     files: r.files.map((f) => path.relative(r.dir, f).split(path.sep).join('/')),
-    exits: r.exits.map((e) => ({ output: e.output, cut: e.cut, head: e.head, macs: e.macs, params: e.params, fit: e.fit })),
+    exits: r.exits.map((e) => ({ output: e.output, cut: e.cut, head: e.head, macs: e.macs, params: e.params, fit: e.fit, ...(e.choice && { choice: e.choice }) })),
     policy: r.policy.rule,
     heldOut: heldOutOf(t),
     guarantee: r.policy.guarantee ?? null,
@@ -117,6 +117,7 @@ function buildDetail(r: BuildResult): string[] {
   ]);
   const lines = [
     `exits at   ${s.exits.map((e) => `${e.cut} (${e.head})`).join(', ')}`,
+    ...(s.exits.some((e) => e.choice) ? [`heads      chosen by the MACs each would save per frame on the fit's held-out rows: ${s.exits.map((e) => e.choice ? `${e.output} ${e.choice.tried.map((t) => `${t.head} ${si(Math.max(0, t.worth))}`).join(' / ')}` : `${e.output} named`).join('; ')}`] : []),
     `float32    ${policyText(s.policy)}: ${pct(h.saving)} saved, accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model on ${h.samples} held-out samples`,
     ...promiseText(s.guarantee),
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
