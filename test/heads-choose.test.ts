@@ -38,6 +38,7 @@ describe('the exitable share', () => {
     const t = (head: string, worth: number, params: number): HeadTrial => ({ head, worth, params, macs: 0, agreement: 0, exitable: 0 });
     expect(bestTrial([t('linear', 10, 50), t('grid:2', 30, 200), t('mlp:32', 30, 100)])).toBe(2);
     expect(bestTrial([t('linear', 10, 50), t('grid:2', 10, 50)])).toBe(0);
+    expect(bestTrial([t('linear', 10, 50), { ...t('grid:4', 90, 900), tooLarge: true }])).toBe(0);
   });
 });
 
@@ -70,6 +71,15 @@ describe('graft chooses a head per exit unless --head names one', () => {
       expect(nj.exits.map((e: { choice?: unknown }) => e.choice)).toEqual([undefined, undefined]);
       expect(nj.exits.map((e: { fit: unknown }) => e.fit)).toEqual(j.exits.map((e: { fit: unknown }) => e.fit));
     }
+  });
+  it('a head with more parameters than the layers after its cut is not chosen', () => {
+    // after /b4/b4.2/Relu the demo model holds only its classifier: 64 × 5 weights and 5 biases (the file's own initializers)
+    const r = offramp(['graft', model, '--cuts', '/b4/b4.2/Relu_output_0', '--data', x, '--labels', y, '-o', path.join(tmp, 'late.onnx'), '--json']);
+    expect(r.code, r.stderr).toBe(0);
+    const tried = JSON.parse(r.stdout).exits[0].choice.tried as HeadTrial[];
+    expect(JSON.parse(r.stdout).exits[0].head).toBe('linear');
+    for (const t of tried) expect(!!t.tooLarge).toBe(t.head !== 'linear' && t.params > 64 * 5 + 5);
+    expect(tried.filter((t) => t.tooLarge).length).toBeGreaterThan(0);
   });
   it('--head linear fits only that head and records no choice', () => {
     const r = offramp(['graft', model, '--at', '20%', '--data', x, '--labels', y, '--head', 'linear', '-o', path.join(tmp, 'l.onnx'), '--json']);

@@ -8,6 +8,7 @@ import { graftExits, classifierIO, type GraftResult } from '../heads/fit-heads.j
 import { parseHead, parseLayout } from '../heads/spec.js';
 import { dataSource, readLabels } from '../heads/sources.js';
 import { si, table, toJson } from '../report/units.js';
+import { trialsText } from '../report/heads.js';
 import { usageError } from '../errors.js';
 import { collect, emit, nameList, parseDims, parseFractions, parseNumber, modelAction } from './common.js';
 import { modelReads, refuseInputsAsOutputs } from './guard.js';
@@ -40,7 +41,7 @@ function choiceText(r: GraftResult): string {
   const chosen = r.heads.filter((h) => h.record.choice);
   if (!chosen.length) return '';
   return `heads chosen by the MACs they would save per frame (held-out rows; --head names one for every exit):\n`
-    + chosen.map((h) => `  ${h.record.output}: ${h.record.head}  (${h.record.choice!.tried.map((t) => `${t.head} ${si(Math.max(0, t.worth))}`).join(', ')})\n`).join('');
+    + chosen.map((h) => `  ${h.record.output}: ${h.record.head}  (${trialsText(h.record.choice!.tried, ', ')})\n`).join('');
 }
 
 export function graftJson(r: GraftResult, out: string): string {

@@ -47,19 +47,22 @@ export interface HeadTrial {
   exitable: number;
   /** exitable × (MACs an exit here skips) − the head's MACs, per frame */
   worth: number;
+  /** more parameters than the layers after the cut: not chosen (the linear head never is) */
+  tooLarge?: true;
 }
 
-/** The trial worth most; on equal worth the one with fewer parameters, then the earlier one. */
+/** The trial worth most among those not too large; on equal worth the one with fewer parameters, then the earlier one. */
 export function bestTrial(trials: HeadTrial[]): number {
-  let b = 0;
-  for (let i = 1; i < trials.length; i++) {
-    const t = trials[i], m = trials[b];
-    if (t.worth > m.worth || (t.worth === m.worth && t.params < m.params)) b = i;
-  }
-  return b;
+  let b = -1;
+  trials.forEach((t, i) => {
+    const m = trials[b];
+    if (t.tooLarge) return;
+    if (!m || t.worth > m.worth || (t.worth === m.worth && t.params < m.params)) b = i;
+  });
+  return Math.max(b, 0);
 }
 
 /** The rule in words, as the metadata records it beside the heads tried. */
-export const CHOICE_RULE = `worth = exitable × MACs skipped − head MACs; exitable: the held-out share the head's most confident answers cover at ≤ ${EXIT_TOLERANCE * 100} % disagreement with the final output`;
+export const CHOICE_RULE = `worth = exitable × MACs skipped − head MACs, among heads with no more parameters than the layers after the cut; exitable: the held-out share the head's most confident answers cover at ≤ ${EXIT_TOLERANCE * 100} % disagreement with the final output`;
 
 export const worthOf = (exitable: number, skipped: number, headMacs: number): number => exitable * skipped - headMacs;

@@ -108,13 +108,17 @@ function recurrentBefore(model: Model, value: string): string | undefined {
   return undefined;
 }
 
-/** MACs of the nodes a value depends on (what a stage ending there computes), and of the whole model. */
-function macsBefore(model: Model & { file?: string }, shapes: ShapeResult, values: string[]): { before: number[]; total: number } {
+/**
+ * MACs of the nodes a value depends on (what a stage ending there computes) and of the whole model, and the
+ * parameters of the nodes it does not depend on (the layers an exit there lets a frame skip).
+ */
+function costsAround(model: Model & { file?: string }, shapes: ShapeResult, values: string[]): { before: number[]; total: number; paramsAfter: number[] } {
   const cost = costModel(model, { shapes });
-  const macOf = new Map(cost.nodes.map((n) => [n.index, Number(n.macs)]));
-  const total = [...macOf.values()].reduce((a, b) => a + b, 0);
-  const before = values.map((v) => [...neededNodes(model.graph, [v])].reduce((a, i) => a + (macOf.get(i) ?? 0), 0));
-  return { before, total };
+  const macOf = new Map(cost.nodes.map((n) => [n.index, Number(n.macs)])), paramsOf = new Map(cost.nodes.map((n) => [n.index, Number(n.params)]));
+  const sum = (m: Map<number, number>, idx: Iterable<number>) => [...idx].reduce((a, i) => a + (m.get(i) ?? 0), 0);
+  const needed = values.map((v) => neededNodes(model.graph, [v]));
+  const allParams = sum(paramsOf, paramsOf.keys());
+  return { before: needed.map((n) => sum(macOf, n)), total: sum(macOf, macOf.keys()), paramsAfter: needed.map((n) => allParams - sum(paramsOf, n)) };
 }
 
 type Input = HeadInput & { width: number; spatial: number };
@@ -190,7 +194,7 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
   const targets: Targets = labels ? labelTargets(labels, k) : softTargets(cap.final, n, k, o.temperature ?? 1);
   const teacher = argmaxRows(cap.final, n, k);
   const fitOpts = { l2: o.l2, seed, heldOut: o.heldOut };
-  const macs = o.head ? undefined : macsBefore(model, shapes, cuts);
+  const around = o.head ? undefined : costsAround(model, shapes, cuts);
 
   const fitted = (h: Input, head: HeadKind, F: Features, e: number) => {
     let layers: Dense[], loss: number, split: { train: Int32Array; held: Int32Array };
@@ -232,12 +236,17 @@ export async function graftExits(model: Model & { file?: string }, data: DataSou
       return fitted(captured[slot], head, cap.features[slot], e);
     });
     let pick = 0;
-    if (macs) {
+    if (around) {
       // chosen on the fit's held-out rows, which certify nothing (heads/choose.ts)
-      const skipped = macs.total - macs.before[e];
+      const skipped = around.total - around.before[e];
       const trials: HeadTrial[] = fits.map((f) => {
         const exitable = exitableShare(f.logits, k, teacher, f.rows);
-        return { head: f.record.head, macs: f.record.macs, params: f.record.params, agreement: f.record.fit.agreement, exitable: roundNoise(exitable), worth: Math.round(worthOf(exitable, skipped, f.record.macs)) };
+        return {
+          head: f.record.head, macs: f.record.macs, params: f.record.params, agreement: f.record.fit.agreement, exitable: roundNoise(exitable),
+          worth: Math.round(worthOf(exitable, skipped, f.record.macs)),
+          // a head larger than the layers it lets a frame skip costs more flash than it could ever be worth keeping
+          ...(f.record.params > around.paramsAfter[e] && list[fits.indexOf(f)].head.kind !== 'linear' && { tooLarge: true as const }),
+        };
       });
       pick = bestTrial(trials);
       fits[pick].record.choice = { rule: CHOICE_RULE, tried: trials };

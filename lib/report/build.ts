@@ -4,6 +4,7 @@ import type { BuildResult } from '../pipeline/build.js';
 import type { Policy } from '../policy/policy.js';
 import path from 'node:path';
 import { bytes, microseconds, si, table, toJson } from './units.js';
+import { trialsText } from './heads.js';
 import { esc, lineChart, barChart, type Series } from './svg.js';
 import { basisWord, budgetText, duration, overLine, storedLabel } from './budget.js';
 import { count, dropWords, FINAL, promiseSentence } from './words.js';
@@ -117,7 +118,7 @@ function buildDetail(r: BuildResult): string[] {
   ]);
   const lines = [
     `exits at   ${s.exits.map((e) => `${e.cut} (${e.head})`).join(', ')}`,
-    ...(s.exits.some((e) => e.choice) ? [`heads      chosen by the MACs each would save per frame on the fit's held-out rows: ${s.exits.map((e) => e.choice ? `${e.output} ${e.choice.tried.map((t) => `${t.head} ${si(Math.max(0, t.worth))}`).join(' / ')}` : `${e.output} named`).join('; ')}`] : []),
+    ...(s.exits.some((e) => e.choice) ? [`heads      chosen by the MACs each would save per frame on the fit's held-out rows: ${s.exits.map((e) => e.choice ? `${e.output} ${trialsText(e.choice.tried, ' / ')}` : `${e.output} named`).join('; ')}`] : []),
     `float32    ${policyText(s.policy)}: ${pct(h.saving)} saved, accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model on ${h.samples} held-out samples`,
     ...promiseText(s.guarantee),
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
