@@ -31,7 +31,7 @@ describe('fixed-point requantization against the NumPy reference', () => {
     const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'offramp-requant-'));
     try {
       const rows = cases.requantize.map((c) => `{ ${c.acc === -2147483648 ? '(-2147483647 - 1)' : c.acc}, ${mulInitializer(c)} }`);
-      const src = `#include <stdio.h>\n#include "offramp_requant.h"\ntypedef struct { int32_t acc; offramp_mul_t m; } row_t;\nstatic const row_t rows[] = {\n${rows.join(',\n')}\n};\nint main(void) { unsigned i; for (i = 0; i < sizeof rows / sizeof rows[0]; i++) printf("%ld\\n", (long)offramp_requantize(rows[i].acc, rows[i].m)); return 0; }\n`;
+      const src = `#include <stdio.h>\n#include "offramp_requant.h"\ntypedef struct { int32_t acc; offramp_mul_t m; } row_t;\nstatic const row_t rows[] = {\n${rows.join(',\n')}\n};\nint main(void) { unsigned i; for (i = 0; i < sizeof rows / sizeof rows[0]; i++) printf("%ld\\n", (long)offramp_requantize(rows[i].acc, &rows[i].m)); return 0; }\n`;
       fs.writeFileSync(path.join(tmp, 'main.c'), src);
       const exe = path.join(tmp, 'main');
       const cc = spawnSync('gcc', ['-std=c99', '-O2', '-Wall', '-Wextra', '-Werror', '-I', firmwareSourceDirs()[0], path.join(tmp, 'main.c'), '-o', exe], { encoding: 'utf8' });

@@ -1,7 +1,7 @@
 /* offramp_conv.c: int8 convolution. The TypeScript reference is lib/kernels/conv.ts.
  *
- * Two output positions at a time, their windows gathered into int16 columns (a padded tap holds the
- * input zero point, which the folded bias cancels), then two output channels at a time dotted with
+ * Two output positions at a time, their windows gathered into a pair of interleaved int16 columns
+ * (offramp_dot.h; a padded tap holds the input zero point, which the folded bias cancels), then two output channels at a time dotted with
  * both columns: four accumulators share every load. On cores with the DSP extension (Armv7E-M,
  * Armv8-M Mainline with DSP, Armv8.1-M) the dot product runs two multiply-accumulates per SMLAD
  * instruction; elsewhere (Cortex-M0+, the host) the same sums in plain C. Either way the sums are
@@ -15,22 +15,25 @@ typedef struct {
   int16_t zero;
 } window_t;
 
-/* The window at (iy0, ix0) over cin channels, as int16, zeros past the real taps. */
-static void gather(const window_t *w, const int8_t *x, int32_t cin, int32_t iy0, int32_t ix0, int16_t *col) {
+/* Values go to column `slot` of an interleaved pair (OFFRAMP_PAIR_AT): four in a row, then four skipped. */
+#define PUT(v) do { *col++ = (int16_t)(v); if (--left == 0) { left = 4; col += 4; } } while (0)
+
+/* The window at (iy0, ix0) over cin channels, as int16 into column `slot` of pq, zeros past the real taps. */
+static void gather(const window_t *w, const int8_t *x, int32_t cin, int32_t iy0, int32_t ix0, int16_t *pq, int32_t slot) {
   const int32_t in_h = w->in_h, in_w = w->in_w, hw = w->hw, k_h = w->k_h, k_w = w->k_w, dil_h = w->dil_h, dil_w = w->dil_w;
   const int16_t zero = w->zero;
-  int16_t *end = col + w->k_row;
-  int32_t c, ky, kx;
+  int16_t *col = pq + 4 * slot;
+  int32_t c, ky, kx, left = 4, pad = w->k_row - cin * k_h * k_w;
   if (iy0 >= 0 && iy0 + (k_h - 1) * dil_h < in_h && ix0 >= 0 && ix0 + (k_w - 1) * dil_w < in_w) {
     for (c = 0; c < cin; c++) {
       const int8_t *row = x + c * hw + iy0 * in_w + ix0;
       if (k_w == 3 && dil_w == 1) {
-        /* the common 3-wide window, unrolled: a row costs its loads and stores */
-        for (ky = 0; ky < k_h; ky++, row += dil_h * in_w, col += 3) { col[0] = row[0]; col[1] = row[1]; col[2] = row[2]; }
+        /* the common 3-wide window, unrolled */
+        for (ky = 0; ky < k_h; ky++, row += dil_h * in_w) { PUT(row[0]); PUT(row[1]); PUT(row[2]); }
       } else {
         for (ky = 0; ky < k_h; ky++, row += dil_h * in_w) {
-          if (dil_w == 1) for (kx = 0; kx < k_w; kx++) *col++ = row[kx];
-          else for (kx = 0; kx < k_w; kx++) *col++ = row[kx * dil_w];
+          if (dil_w == 1) for (kx = 0; kx < k_w; kx++) PUT(row[kx]);
+          else for (kx = 0; kx < k_w; kx++) PUT(row[kx * dil_w]);
         }
       }
     }
@@ -42,13 +45,14 @@ static void gather(const window_t *w, const int8_t *x, int32_t cin, int32_t iy0,
         const int row_in = iy >= 0 && iy < in_h;
         for (kx = 0; kx < k_w; kx++) {
           const int32_t ix = ix0 + kx * dil_w;
-          *col++ = row_in && ix >= 0 && ix < in_w ? xc[iy * in_w + ix] : zero;
+          PUT(row_in && ix >= 0 && ix < in_w ? xc[iy * in_w + ix] : zero);
         }
       }
     }
   }
-  while (col < end) *col++ = 0;
+  while (pad-- > 0) PUT(0);
 }
+#undef PUT
 
 void offramp_conv(const offramp_conv_t *p, const int8_t *x, int8_t *y) {
   const int32_t groups = p->groups, cin = p->in_c / groups, cout = p->out_c / groups;
@@ -58,7 +62,7 @@ void offramp_conv(const offramp_conv_t *p, const int8_t *x, int8_t *y) {
   const int8_t *weight = p->weight;
   const int32_t *bias = p->bias;
   const offramp_mul_t *mul = p->mul;
-  int16_t *col0 = offramp_conv_scratch, *col1 = offramp_conv_scratch + k_row;
+  int16_t *pq = offramp_conv_scratch;
   window_t w;
   int32_t g, pos, o;
   w.in_h = p->in_h; w.in_w = p->in_w; w.hw = p->in_h * p->in_w; w.k_h = p->k_h; w.k_w = p->k_w;
@@ -68,19 +72,20 @@ void offramp_conv(const offramp_conv_t *p, const int8_t *x, int8_t *y) {
     const int32_t o_end = (g + 1) * cout;
     for (pos = 0; pos < positions; pos += 2) {
       const int two = pos + 1 < positions;
-      gather(&w, xg, cin, (pos / out_w) * stride_h - pad_top, (pos % out_w) * stride_w - pad_left, col0);
-      if (two) gather(&w, xg, cin, ((pos + 1) / out_w) * stride_h - pad_top, ((pos + 1) % out_w) * stride_w - pad_left, col1);
+      const int32_t next = two ? pos + 1 : pos; /* a last single position fills both columns */
+      gather(&w, xg, cin, (pos / out_w) * stride_h - pad_top, (pos % out_w) * stride_w - pad_left, pq, 0);
+      gather(&w, xg, cin, (next / out_w) * stride_h - pad_top, (next % out_w) * stride_w - pad_left, pq, 1);
       for (o = g * cout; o < o_end; o += 2) {
         const int pair = o + 1 < o_end;
         const int8_t *wa = weight + o * k_row;
         int8_t *ya = y + o * positions + pos;
         int32_t acc[4];
-        offramp_dot_2x2(wa, pair ? wa + k_row : wa, col0, two ? col1 : col0, k_row, acc);
-        ya[0] = offramp_to_int8(bias[o] + acc[0], mul[o], zero, lo, hi);
-        if (two) ya[1] = offramp_to_int8(bias[o] + acc[2], mul[o], zero, lo, hi);
+        offramp_dot_2x2(wa, pair ? wa + k_row : wa, pq, k_row, acc);
+        ya[0] = offramp_to_int8(bias[o] + acc[0], &mul[o], zero, lo, hi);
+        if (two) ya[1] = offramp_to_int8(bias[o] + acc[2], &mul[o], zero, lo, hi);
         if (pair) {
-          ya[positions] = offramp_to_int8(bias[o + 1] + acc[1], mul[o + 1], zero, lo, hi);
-          if (two) ya[positions + 1] = offramp_to_int8(bias[o + 1] + acc[3], mul[o + 1], zero, lo, hi);
+          ya[positions] = offramp_to_int8(bias[o + 1] + acc[1], &mul[o + 1], zero, lo, hi);
+          if (two) ya[positions + 1] = offramp_to_int8(bias[o + 1] + acc[3], &mul[o + 1], zero, lo, hi);
         }
       }
     }

@@ -14,7 +14,7 @@ void offramp_dense(const offramp_dense_t *p, const int8_t *x, int8_t *y) {
     const int8_t *wa = p->weight + o * p->k_row;
     int32_t acc[2];
     offramp_dot_2x1(wa, pair ? wa + p->k_row : wa, col, p->k_row, acc);
-    y[o] = offramp_to_int8(p->bias[o] + acc[0], p->mul[o], p->out_zero, p->lo, p->hi);
-    if (pair) y[o + 1] = offramp_to_int8(p->bias[o + 1] + acc[1], p->mul[o + 1], p->out_zero, p->lo, p->hi);
+    y[o] = offramp_to_int8(p->bias[o] + acc[0], &p->mul[o], p->out_zero, p->lo, p->hi);
+    if (pair) y[o + 1] = offramp_to_int8(p->bias[o + 1] + acc[1], &p->mul[o + 1], p->out_zero, p->lo, p->hi);
   }
 }

@@ -44,19 +44,19 @@ void offramp_mul(const offramp_mul2_t *p, const int8_t *a, const int8_t *b, int8
   const offramp_mul_t m = p->mul;
   int32_t i = 0, j = 0, k;
   if (b_n == n) {
-    for (; i < n; i++) y[i] = offramp_to_int8((a[i] - a_zero) * (b[i] - b_zero), m, zero, lo, hi);
+    for (; i < n; i++) y[i] = offramp_to_int8((a[i] - a_zero) * (b[i] - b_zero), &m, zero, lo, hi);
     return;
   }
   if (inner == 1) {
     for (; i < n; i++) {
-      y[i] = offramp_to_int8((a[i] - a_zero) * (b[j] - b_zero), m, zero, lo, hi);
+      y[i] = offramp_to_int8((a[i] - a_zero) * (b[j] - b_zero), &m, zero, lo, hi);
       if (++j == b_n) j = 0;
     }
     return;
   }
   while (i < n) {
     const int32_t vb = b[j] - b_zero;
-    for (k = 0; k < inner; k++, i++) y[i] = offramp_to_int8((a[i] - a_zero) * vb, m, zero, lo, hi);
+    for (k = 0; k < inner; k++, i++) y[i] = offramp_to_int8((a[i] - a_zero) * vb, &m, zero, lo, hi);
     if (++j == b_n) j = 0;
   }
 }

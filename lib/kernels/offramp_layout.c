@@ -11,7 +11,7 @@ void offramp_concat(const offramp_concat_t *p, int8_t *y) {
       const offramp_mul_t m = parts[k].mul;
       const int8_t *x = parts[k].x + o * block;
       if (parts[k].copy) for (i = 0; i < block; i++) *y++ = x[i];
-      else for (i = 0; i < block; i++) *y++ = offramp_to_int8(x[i] - in_zero, m, zero, lo, hi);
+      else for (i = 0; i < block; i++) *y++ = offramp_to_int8(x[i] - in_zero, &m, zero, lo, hi);
     }
 }
 
@@ -46,6 +46,6 @@ void offramp_slice(const offramp_slice_t *p, const int8_t *x, int8_t *y) {
   x += p->start;
   for (o = 0; o < outer; o++, x += in_row) {
     if (copy) for (i = 0; i < block; i++) *y++ = x[i];
-    else for (i = 0; i < block; i++) *y++ = offramp_to_int8(x[i] - in_zero, m, zero, lo, hi);
+    else for (i = 0; i < block; i++) *y++ = offramp_to_int8(x[i] - in_zero, &m, zero, lo, hi);
   }
 }

@@ -3,7 +3,7 @@
 
 void offramp_rescale(const offramp_rescale_t *p, const int8_t *x, int8_t *y) {
   int32_t i;
-  for (i = 0; i < p->n; i++) y[i] = offramp_to_int8(x[i] - p->in_zero, p->mul, p->out_zero, p->lo, p->hi);
+  for (i = 0; i < p->n; i++) y[i] = offramp_to_int8(x[i] - p->in_zero, &p->mul, p->out_zero, p->lo, p->hi);
 }
 
 /* Ties to even without libm: the quotient is clamped first, so the conversion to int32 is defined. */

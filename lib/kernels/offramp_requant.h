@@ -27,7 +27,9 @@ typedef struct {
  * quotient's lowest bit b, floor((p + 2^(e-1) - 1 + b) / 2^e) rounds to nearest and a tie to the even
  * neighbour (below half: the sum stays under the next multiple; above: it reaches it; at half: it
  * reaches it exactly when b is 1). */
-static inline int32_t offramp_requantize(int32_t acc, offramp_mul_t m) {
+static inline int32_t offramp_requantize(int32_t acc, const offramp_mul_t *mp) {
+  /* by pointer: passed by value, the struct is copied to the stack at every output (gcc -O2) */
+  const offramp_mul_t m = *mp;
   int64_t p, q;
   int32_t e;
   if (m.shift >= 1) {
@@ -47,7 +49,7 @@ static inline int32_t offramp_requantize(int32_t acc, offramp_mul_t m) {
 }
 
 /* The int8 result: the zero point added, clamped to [lo, hi] (a fused Relu or Clip narrows them). */
-static inline int8_t offramp_to_int8(int32_t acc, offramp_mul_t m, int32_t zero, int32_t lo, int32_t hi) {
+static inline int8_t offramp_to_int8(int32_t acc, const offramp_mul_t *m, int32_t zero, int32_t lo, int32_t hi) {
   int32_t v = offramp_requantize(acc, m) + zero;
   return (int8_t)(v < lo ? lo : v > hi ? hi : v);
 }
