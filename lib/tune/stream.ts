@@ -11,13 +11,14 @@
 import { OfframpError } from '../errors.js';
 import { chainedSequences } from '../certify/sequence.js';
 import { SCENE_FORMS, sceneDropBound, scenesNeeded, type SceneForm, type SceneShares } from '../certify/scenes.js';
-import { chainFor, DISTANCES, distance, fullModel, isStream, nextUp32, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
+import { chainFor, DISTANCES, distanceAt, fullModel, isStream, nextUp32, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
 import type { ExitView } from '../policy/index.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
 import { recordedGuarantee, type Guarantee } from './guarantee.js';
 import { roundNoise } from '../util/json.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
+import { probsAt, StreamWalk } from './stream-walk.js';
 
 export interface StreamEval extends Eval { scenes: number; reused: number }
 
@@ -50,20 +51,6 @@ export interface StreamTuneResult extends TuneResult<StreamPolicy> {
 
 type Run = StreamEval & { correct: number; cost: number };
 
-/**
- * Each frame's softmax at each exit, computed once per cache (float32 exp is costly in JavaScript,
- * and every candidate policy asks for the same ones): filled on first use, keyed by the cache,
- * which tuning never changes.
- */
-const softmaxMemo = new WeakMap<ExitCache, { probs: Float32Array; done: Uint8Array }>();
-/** The memo (laid out as the logits), with frame i's softmax at exit k filled in. */
-function probsAt(c: ExitCache, i: number, k: number): Float32Array {
-  let m = softmaxMemo.get(c);
-  if (!m) { m = { probs: new Float32Array(c.logits.length), done: new Uint8Array(c.samples * (c.exits + 1)) }; softmaxMemo.set(c, m); }
-  const at = i * (c.exits + 1) + k;
-  if (!m.done[at]) { softmax(c.logits, at * c.classes, c.classes, m.probs.subarray(at * c.classes, (at + 1) * c.classes)); m.done[at] = 1; }
-  return m.probs;
-}
 function cachedView(c: ExitCache, i: number): ExitView {
   const base = i * (c.exits + 1) * c.classes;
   return { data: () => c.logits, offset: (k) => base + k * c.classes, probs: (k) => probsAt(c, i, k) };
@@ -121,7 +108,7 @@ function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[]
     const a = (idx[j - 1] * E1 + k) * C, b = (idx[j] * E1 + k) * C;
     probsAt(c, idx[j - 1], k);
     const m = probsAt(c, idx[j], k);
-    const d = distance(kind, m.subarray(a, a + C), m.subarray(b, b + C), C);
+    const d = distanceAt(kind, m, a, m, b, C);
     if (Number.isFinite(d)) ds.push(d);
   }
   ds.sort((x, y) => x - y);
@@ -160,9 +147,10 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   // search: every (kind, distance, exit, then, refresh, threshold) on the head
   interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; form: SceneForm; e: StreamEval; bolder?: Rec }
   const recs: Rec[] = [];
+  // every setting's walk over a part, sharing the per-frame tables and the distances (stream-walk.ts)
+  let tuneWalk: StreamWalk | undefined, heldWalk: StreamWalk | undefined;
   const searched = (policy: StreamPolicy, kind: string): Rec => {
-    const e = evalStream(c, parts.tune, policy, reach, tuneLab);
-    const s = sceneShares(c, parts.tune, tuneLab, sc.ids, full);
+    const { run: e, shares: s } = (tuneWalk ??= new StreamWalk(c, parts.tune, reach, sc.ids, full)).eval(policy);
     // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
     let form = SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb = Infinity;
     for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < hb) { hb = b; form = f; } }
@@ -211,7 +199,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const heldOf = new Map<Rec, { e: StreamEval; shares: SceneShares }>();
   const certify = (r: Rec) => {
     let h = heldOf.get(r);
-    if (!h) { const e = evalStream(c, parts.held, r.policy, reach, heldLab); h = { e: strip(e), shares: sceneShares(c, parts.held, heldLab, sc.ids, full) }; heldOf.set(r, h); }
+    if (!h) { const { run: e, shares } = (heldWalk ??= new StreamWalk(c, parts.held, reach, sc.ids, full)).eval(r.policy); h = { e: strip(e), shares }; heldOf.set(r, h); }
     return h;
   };
   // intersection–union: the setting and its neighbour are each tested at the level the chains give it
