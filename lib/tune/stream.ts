@@ -42,6 +42,8 @@ export interface StreamTuneOptions {
   segments?: ArrayLike<number>;
   /** refresh periods to try (default REFRESH) */
   refresh?: readonly number[];
+  /** told the milliseconds each phase took: 'search' (every setting on the search part), then 'certify' (the rest) */
+  onPhase?: (phase: 'search' | 'certify', ms: number) => void;
 }
 
 export interface StreamTuneResult extends TuneResult<StreamPolicy> {
@@ -118,6 +120,9 @@ function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[]
   return [...out].sort((x, y) => x - y);
 }
 
+/** The bits of a part's per-scene shares: equal keys, equal bounds. */
+const sharesKey = (s: SceneShares): string => `${s.labelled ? 1 : 0}:${Buffer.from(s.lostEach.buffer, s.lostEach.byteOffset, s.lostEach.byteLength).toString('base64')}:${Buffer.from(s.gainedEach.buffer, s.gainedEach.byteOffset, s.gainedEach.byteLength).toString('base64')}`;
+
 export const STREAM_ASSUMES = [
   'scenes are independent of one another (frames within a scene are not: a scene counts as one piece of evidence)',
   'scene changes arrive at a rate like the tuning recording\'s, with scenes of like lengths and kinds',
@@ -132,6 +137,8 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const refresh = o.refresh ?? REFRESH;
   for (const r of refresh) if (!(Number.isInteger(r) && r >= 1)) throw new OfframpError('usage', `a refresh period is a whole number of frames ≥ 1, not ${r}`);
   const delta = 1 - conf, limit = maxDrop / 100;
+  let phaseStart = performance.now();
+  const phaseDone = (phase: 'search' | 'certify') => { const now = performance.now(); o.onPhase?.(phase, now - phaseStart); phaseStart = now; };
   const reach = reachOf(costs, E);
   const sc = sceneIds(c, o.segments);
   const parts = sceneSplit(sc.ids, heldOut);
@@ -149,12 +156,20 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const recs: Rec[] = [];
   // every setting's walk over a part, sharing the per-frame tables and the distances (stream-walk.ts)
   let tuneWalk: StreamWalk | undefined, heldWalk: StreamWalk | undefined;
+  // settings that differ often lose and gain the same shares of the same scenes (half of them on Fashion-MNIST
+  // recordings): their bounds are computed once, keyed by those shares' bits
+  const formOf = new Map<string, { form: SceneForm; hb: number }>();
   const searched = (policy: StreamPolicy, kind: string): Rec => {
     const { run: e, shares: s } = (tuneWalk ??= new StreamWalk(c, parts.tune, reach, sc.ids, full)).eval(policy);
     // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
-    let form = SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb = Infinity;
-    for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < hb) { hb = b; form = f; } }
-    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb, form, e: strip(e) };
+    const key = sharesKey(s);
+    let best = formOf.get(key);
+    if (!best) {
+      best = { form: SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb: Infinity };
+      for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < best.hb) best = { hb: b, form: f }; }
+      formOf.set(key, best);
+    }
+    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: best.hb, form: best.form, e: strip(e) };
   };
   // the neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller)
   const bolder = (r: Rec): Rec => (r.bolder ??= searched({ ...r.policy, thresholds: [r.policy.thresholds[0] * BOLDER] }, r.kind));
@@ -193,6 +208,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     return front(able.map((r) => ({ r, cost: r.cost, correct: -k(r) }))).map((x) => x.r).sort((a, b) => k(a) - k(b) || b.cost - a.cost);
   };
   const chains = [chainOf((r) => pairBound(r, (x) => x.form)), chainOf((r) => pairBound(r, () => 'lost:betting'))];
+  phaseDone('search');
   const WEIGHTS = [0.5, 0.5];
   // the reported front: cost against the setting's own bound on the head, with the tested settings among it
   const fr = [...new Set([...front(recs.map((r) => ({ r, cost: r.cost, correct: -r.hb }))).map((x) => x.r), ...chains.flat()])].sort((a, b) => a.cost - b.cost);
@@ -242,6 +258,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const needed = nextRec && need(nextRec);
   const next = nextRec && { policy: nextRec.policy, ...boundOf(nextRec), ...(needed !== undefined && { needed }) };
   const b = last ? bounds(last)[0] : undefined;
+  phaseDone('certify');
   const guarantee: Guarantee = recordedGuarantee({
     confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
     estimate: b ? b.estimate * 100 : 0, bound: b ? b.bound * 100 : 0,
