@@ -8,6 +8,7 @@ import { fileURLToPath } from 'node:url';
 import type { ChainBench, ChainPair } from './chain.js';
 import type { ConvBench } from './measure.js';
 import type { FirmwareBench } from './firmware.js';
+import type { StreamBench, StreamRun } from './stream.js';
 import { BUILTIN_TARGETS, FROM_MEMORY_RATES, ratioText } from '../lib/chip/target.js';
 import { readMeasuredRates } from '../lib/chip/rates.js';
 
@@ -63,6 +64,7 @@ async function parent(): Promise<void> {
     console.log(`\nofframp tune (synthetic cache: ${tu.samples} samples, ${tu.exits} exits)`);
     line('settings evaluated / s', `${tu.evalPerSec.toFixed(0)}`, `target ≥ 10000: ratio ${(tu.evalPerSec / 10000).toFixed(2)}`);
     line('whole tune(): settings / s', `${tu.tunePerSec.toFixed(0)}`, `${tu.tuneSettings} settings in ${tu.tuneMs.toFixed(0)} ms`);
+    streamSection();
     const arenaRun = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'arena.js')], { encoding: 'utf8' });
     if (arenaRun.status !== 0) throw new Error(`bench arena failed: ${arenaRun.stderr}`);
     const ar = JSON.parse(arenaRun.stdout);
@@ -75,6 +77,23 @@ arena plan (EfficientNet-B0, ${ar.values} activations)`);
   } finally {
     fs.rmSync(dir, { recursive: true, force: true });
   }
+}
+
+// Stream tuning of a 100 000-frame recording against one pass of the chain over it (bench/stream.ts).
+function streamSection(): void {
+  const r = spawnSync(process.execPath, [path.join(path.dirname(CHILD), 'stream.js')], { encoding: 'utf8', maxBuffer: 1 << 24 });
+  if (r.status !== 0) throw new Error(`bench stream failed: ${r.stderr}`);
+  const b = JSON.parse(r.stdout.trim().split('\n').pop()!) as StreamBench;
+  const s = (ms: number) => `${(ms / 1000).toFixed(1)} s`;
+  console.log(`\nstream tuning (Fashion-MNIST fixture CNN, 4 linear exits, ${b.frames} synthetic frames; tune --stream's work, capture on ${b.labelled.threads} threads of ${os.availableParallelism()} cores)`);
+  line('one pass of the chain, one thread', s(b.passMs), `${((b.passMs / b.frames) * 1000).toFixed(1)} µs per frame`);
+  const runLines = (name: string, x: StreamRun) => {
+    line(`tune --stream, ${name}`, s(x.totalMs), `goal ≤ 2 × the pass: ratio ${(x.totalMs / b.passMs).toFixed(2)}, ratio to goal ${(x.totalMs / b.passMs / 2).toFixed(2)}`);
+    line('  capture/frame/search/certify', `${(x.captureMs / 1000).toFixed(1)}/${(x.frameMs / 1000).toFixed(1)}/${(x.searchMs / 1000).toFixed(1)}/${(x.certifyMs / 1000).toFixed(1)} s`,
+      `${x.settings} settings, ${x.scenes} scenes; ${(x.saving * 100).toFixed(1)} % saved${x.certified ? '' : ' (nothing certified)'}`);
+  };
+  runLines('labels and segments', b.labelled);
+  runLines('no labels', b.unlabelled);
 }
 
 // Exact instruction counts on the emulated cores (bench/measure.ts). A single-issue core (M4) needs at

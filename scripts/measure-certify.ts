@@ -24,6 +24,7 @@ import { argmax, chainFor, fullModel, runFrame, type FramePolicy, type Policy, t
 
 const DIR = process.env.OFFRAMP_FMNIST ?? '/usr/share/datasets/fashion-mnist';
 const MODEL = 'test/fixtures/fmnist/cnn.onnx';
+const CUTS = '/b1/b1.2/MaxPool_output_0,/b2/b2.0/Conv_output_0,/b2/b2.2/MaxPool_output_0,/b3/b3.0/Conv_output_0';
 const args = process.argv.slice(2);
 const hi = args.indexOf('--head');
 const head = hi >= 0 ? args.splice(hi, 2)[1] : 'linear';
@@ -45,7 +46,8 @@ const split = w(`split-${head.replace(':', '')}`);
 if (!fs.existsSync(path.join(split, 'manifest.json'))) {
   writeNpy(w('fit.npy'), train.data.slice(0, 5000 * per), [5000, 1, 28, 28]);
   writeNpy(w('fit_y.npy'), Int32Array.from(trainY.subarray(0, 5000)), [5000]);
-  await run(['graft', MODEL, '--at', '15%,35%,45%,65%', '--head', head, '--data', w('fit.npy'), '--labels', w('fit_y.npy'), '-o', w(`grafted-${head.replace(':', '')}.onnx`)]);
+  // four distinct cuts (graft refuses --at shares that land on one cut; 35 % and 45 % both fall on b2's pool)
+  await run(['graft', MODEL, '--cuts', CUTS, '--head', head, '--data', w('fit.npy'), '--labels', w('fit_y.npy'), '-o', w(`grafted-${head.replace(':', '')}.onnx`)]);
   await run(['split', w(`grafted-${head.replace(':', '')}.onnx`), '-o', split]);
 }
 

@@ -94,16 +94,23 @@ export function tuneCommand(program: Command): void {
         const segments = o.segments ? readLabels(o.segments, { rows: total, of: o.data, what: 'segment id' }) : undefined;
         const labels = o.labels ? streamLabels(o.labels, total, o.data, layout0.classes, segments) : undefined;
         const bar = progressBar(!!process.stderr.isTTY && !o.json);
-        const { cache, layout } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
+        const timings: { phase: string; ms: number }[] = [];
+        let t0 = performance.now();
+        const lap = (phase: string) => { const now = performance.now(); timings.push({ phase, ms: now - t0 }); t0 = now; };
+        const { cache, layout, threads } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
+        lap(`capture (${threads} thread${threads > 1 ? 's' : ''})`);
         // extra rows without labels: their answers are the full model's, counted only for disagreement
         const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)))).cache : undefined;
+        if (unlabelled) lap('unlabelled capture');
         // The tuner's own complaints (too few samples in a part) are about the data file.
         const result: TuneResult<Policy> = inFile(o.data, () => {
-          if (!o.stream) return tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : undefined });
+          if (!o.stream) { const r = tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : undefined }); lap('search and certification'); return r; }
           // the per-frame policy a scene change runs on: tuned on the same frames
           const frame = tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : ['confidence'] });
+          lap('per-frame tuning');
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
-          return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments });
+          return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments,
+            onPhase: (phase, ms) => { timings.push({ phase: phase === 'search' ? 'stream search' : 'certification', ms }); t0 = performance.now(); } });
         });
         let written: string | undefined, manifestNote: string | undefined;
         // A certified policy is never replaced by one that certifies nothing (the full model, or an
@@ -134,6 +141,8 @@ export function tuneCommand(program: Command): void {
         };
         if (o.report) writeAtomic(o.report, tuneHtml(report));
         emit(o.json ? tuneJson(report) : tuneText(report, { verbose: o.verbose }));
+        // on stderr, beside the progress: the output itself stays the same bits from run to run
+        if (o.verbose && !o.json) process.stderr.write(`time: ${timings.map((x) => `${x.phase} ${(x.ms / 1000).toFixed(1)} s`).join(', ')}\n`);
       } finally { await chain.release(); }
     });
 }

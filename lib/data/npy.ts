@@ -120,16 +120,18 @@ export function checkFinite(a: NpyArray | Float32Array, rows: number, startRow: 
   }
 }
 
-/** Consecutive batches of up to batchRows rows (along axis 0); each batch is a fresh buffer. */
-export function* npyBatches(file: string, batchRows: number): Generator<{ start: number; rows: number; shape: number[]; data: NpyArray }> {
+/** Consecutive batches of up to batchRows rows (along axis 0), of rows from … to − 1 (default: all); each batch is a fresh buffer. */
+export function* npyBatches(file: string, batchRows: number, range: { from?: number; to?: number } = {}): Generator<{ start: number; rows: number; shape: number[]; data: NpyArray }> {
   hostLE();
   if (!(Number.isInteger(batchRows) && batchRows > 0)) throw new OfframpError('usage', `batch rows must be a positive integer, got ${batchRows}`);
   const fd = openRegular(file, 'data');
   try {
     const h = parseHeader(fd, file);
+    const from = range.from ?? 0, to = Math.min(range.to ?? h.rows, h.rows);
+    if (!(Number.isInteger(from) && from >= 0 && Number.isInteger(to))) throw new OfframpError('usage', `row range ${from}…${to} is not whole rows`);
     const rest = h.shape.slice(1), per = count(rest), Ctor = KINDS[h.descr.slice(1)][2];
-    for (let start = 0; start < h.rows; start += batchRows) {
-      const rows = Math.min(batchRows, h.rows - start);
+    for (let start = from; start < to; start += batchRows) {
+      const rows = Math.min(batchRows, to - start);
       const buf = new Uint8Array(rows * per * h.itemBytes);
       if (readFully(fd, buf, h.dataOffset + start * per * h.itemBytes) < buf.length) throw err('truncated while reading', file);
       const data = new Ctor(buf.buffer, 0, rows * per);

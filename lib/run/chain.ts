@@ -49,8 +49,13 @@ export function readManifest(where: string): { manifest: Manifest; file: string 
 
 /** Open every stage of a split (a folder or its manifest.json), each stage file checked against the manifest's SHA-256. `run` stops at the first exit `policy` accepts. */
 export async function loadChain(manifestPath: string, o: { optimization?: Optimization } = {}): Promise<Chain> {
-  const optimization = o.optimization ?? 'all';
   const { manifest, file } = readManifest(manifestPath);
+  return openChain(manifest, file, o);
+}
+
+/** The chain of a manifest already read from `file` (a worker thread opens its own from the one the caller read). */
+export function openChain(manifest: Manifest, file: string, o: { optimization?: Optimization } = {}): Chain {
+  const optimization = o.optimization ?? 'all';
   const dir = path.dirname(file);
   const sessions: SyncSession[] = [];
   try {

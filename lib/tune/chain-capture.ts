@@ -1,7 +1,13 @@
 // The capture pass over a split: every sample through the staged chain once,
 // keeping each exit's logits and the final output's in an ExitCache. Also what
 // the tuner needs from the manifest: exits in order, the final output, costs per exit.
-import { OfframpError } from '../errors.js';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import { fileURLToPath, pathToFileURL } from 'node:url';
+import { Worker } from 'node:worker_threads';
+import { OfframpError, type ErrorKind } from '../errors.js';
+import { MANIFEST_FILE } from '../split/manifest.js';
 import { npyBatches, readDataHeader, sampleShape, toFloat32 } from '../data/npy.js';
 import { tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import type { Chain } from '../run/chain.js';
@@ -51,13 +57,14 @@ export function chainLayout(m: Manifest, file?: string): ChainLayout {
 
 export { readLabels } from '../data/labels.js';
 
-/** Frames of a .npy as batch-1 tensors for the chain's input, one at a time. */
-export function* frames(m: Manifest, file: string, limit = Infinity): Generator<OrtTensor> {
+/** Frames of a .npy as batch-1 tensors for the chain's input, one at a time: `limit` of them from row `from`. */
+export function* frames(m: Manifest, file: string, limit = Infinity, from = 0): Generator<OrtTensor> {
   const t = m.inputs[0];
   const shape = [1, ...sampleShape(readDataHeader(file), t.shape, file)];
   if (t.dtype !== 'float32') throw new OfframpError('data', `the chain input '${t.name}' is ${t.dtype}; tuning feeds float32`, file);
   let n = 0;
-  for (const b of npyBatches(file, 256)) {
+  const to = Number.isFinite(limit) ? from + limit : undefined;
+  for (const b of npyBatches(file, 256, { from, to })) {
     const x = toFloat32(b.data), per = x.length / b.rows;
     for (let r = 0; r < b.rows && n < limit; r++, n++) yield tensorFromData(1, shape, x.slice(r * per, (r + 1) * per));
   }
@@ -69,19 +76,85 @@ export function copyLogits(t: OrtTensor | undefined, name: string, classes: numb
   out.set(t.data as Float32Array, off);
 }
 
-/** Run every sample of `data` through the whole chain; labels (when given) must count as many rows. */
-export async function captureCache(chain: Chain, data: string, labels?: Int32Array, onProgress?: (n: number) => void): Promise<{ cache: ExitCache; layout: ChainLayout }> {
-  const layout = chainLayout(chain.manifest, chain.dir);
-  const rows = readDataHeader(data).rows;
-  if (labels && labels.length !== rows) throw new OfframpError('data', `${labels.length} labels for ${rows} samples`, data);
+/**
+ * Rows from … to − 1 of `data` through the whole chain, one at a time: their logits laid out as an ExitCache's.
+ * `onProgress` hears the rows done so far, every 100 and at the end.
+ */
+export async function captureRows(chain: Chain, layout: ChainLayout, data: string, from: number, to: number, onProgress?: (n: number) => void): Promise<Float32Array> {
   const E = layout.exits.length, C = layout.classes, names = [...layout.exits, layout.final];
-  const logits = new Float32Array(rows * (E + 1) * C);
+  const logits = new Float32Array((to - from) * (E + 1) * C);
   let i = 0;
-  for (const x of frames(chain.manifest, data)) {
+  for (const x of frames(chain.manifest, data, to - from, from)) {
     const r = await chain.run({ [layout.input]: x });
     names.forEach((nm, k) => copyLogits(r.outputs[nm], nm, C, logits, (i * (E + 1) + k) * C));
     i++;
-    if (onProgress && (i % 100 === 0 || i === rows)) onProgress(i);
+    if (onProgress && (i % 100 === 0 || i === to - from)) onProgress(i);
   }
-  return { cache: makeCache(rows, E, C, logits, labels), layout };
+  return logits;
+}
+
+export interface CaptureOptions {
+  /**
+   * Worker threads, each with its own chain (single-threaded sessions, as the caller's) running one contiguous
+   * range of rows; the logits are the same bits whatever the count. Default: one per core
+   * (os.availableParallelism()), fewer for a short file (MIN_ROWS_PER_THREAD each); 1: this thread, no worker.
+   */
+  threads?: number;
+}
+
+/** Below this many rows a thread of its own costs more (onnxruntime and the stages load in each) than it saves. */
+export const MIN_ROWS_PER_THREAD = 2000;
+
+/** Run every sample of `data` through the whole chain; labels (when given) must count as many rows. */
+export async function captureCache(chain: Chain, data: string, labels?: Int32Array, onProgress?: (n: number) => void, o: CaptureOptions = {}): Promise<{ cache: ExitCache; layout: ChainLayout; threads: number }> {
+  const layout = chainLayout(chain.manifest, chain.dir);
+  const rows = readDataHeader(data).rows;
+  if (labels && labels.length !== rows) throw new OfframpError('data', `${labels.length} labels for ${rows} samples`, data);
+  if (o.threads !== undefined && !(Number.isInteger(o.threads) && o.threads >= 1)) throw new OfframpError('usage', `threads: a whole number ≥ 1, not ${o.threads}`);
+  const threads = Math.max(1, Math.min(o.threads ?? Math.min(os.availableParallelism(), Math.floor(rows / MIN_ROWS_PER_THREAD)), rows));
+  const worker = threads > 1 ? workerFile() : undefined;
+  const logits = worker ? await captureThreaded(chain, layout, data, rows, threads, worker, onProgress) : await captureRows(chain, layout, data, 0, rows, onProgress);
+  return { cache: makeCache(rows, layout.exits.length, layout.classes, logits, labels), layout, threads: worker ? threads : 1 };
+}
+
+/**
+ * The compiled worker module: beside this one in dist/, or, when these modules run from their TypeScript
+ * sources (the test runner), the build's copy; without a build, capture stays on this thread.
+ */
+function workerFile(): URL | undefined {
+  const here = fileURLToPath(import.meta.url);
+  if (here.endsWith('.js')) return new URL('./capture-worker.js', import.meta.url);
+  const built = path.join(path.dirname(here), '..', '..', 'dist', 'lib', 'tune', 'capture-worker.js');
+  return fs.existsSync(built) ? pathToFileURL(built) : undefined;
+}
+
+/** What a capture worker posts: progress, its logits (transferred), or the error it stopped on. */
+export type CaptureMessage = { done: number } | { logits: Float32Array } | { error: { kind: ErrorKind; message: string; file?: string; where?: string } | { message: string } };
+
+async function captureThreaded(chain: Chain, layout: ChainLayout, data: string, rows: number, threads: number, file: URL, onProgress?: (n: number) => void): Promise<Float32Array> {
+  const width = (layout.exits.length + 1) * layout.classes;
+  const bounds = Array.from({ length: threads + 1 }, (_, w) => Math.round((w * rows) / threads));
+  const done = new Array<number>(threads).fill(0);
+  let reported = 0;
+  const parts = await Promise.all(bounds.slice(0, -1).map((from, w) => new Promise<Float32Array | Error>((resolve) => {
+    const to = bounds[w + 1];
+    const wk = new Worker(file, { workerData: { manifest: chain.manifest, file: path.join(chain.dir, MANIFEST_FILE), optimization: chain.optimization, data, from, to } });
+    let result: Float32Array | Error = new OfframpError('runtime', `capture worker for rows ${from}…${to - 1} stopped without an answer`, data);
+    wk.on('message', (m: CaptureMessage) => {
+      if ('done' in m) {
+        done[w] = m.done;
+        const n = done.reduce((a, b) => a + b, 0);
+        if (onProgress && (n - reported >= 100 || n === rows)) { reported = n; onProgress(n); }
+      } else if ('logits' in m) result = m.logits;
+      else result = 'kind' in m.error ? new OfframpError(m.error.kind, m.error.message, m.error.file, m.error.where) : new Error(m.error.message);
+    });
+    wk.on('error', (e) => { result = e; });
+    wk.on('exit', () => resolve(result));
+  })));
+  // the first failing range's error: the row a single thread would have stopped on
+  const failed = parts.find((p): p is Error => p instanceof Error);
+  if (failed) throw failed;
+  const logits = new Float32Array(rows * width);
+  parts.forEach((p, w) => logits.set(p as Float32Array, bounds[w] * width));
+  return logits;
 }

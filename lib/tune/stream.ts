@@ -11,13 +11,14 @@
 import { OfframpError } from '../errors.js';
 import { chainedSequences } from '../certify/sequence.js';
 import { SCENE_FORMS, sceneDropBound, scenesNeeded, type SceneForm, type SceneShares } from '../certify/scenes.js';
-import { chainFor, DISTANCES, distance, fullModel, isStream, nextUp32, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
+import { chainFor, DISTANCES, distanceAt, fullModel, isStream, nextUp32, runFrame, softmax, streamStart, streamStep, type DistanceKind, type FramePolicy, type StreamPolicy } from '../policy/index.js';
 import { reachOf, viewOf, type ExitCache, type ExitCosts } from './cache.js';
 import type { ExitView } from '../policy/index.js';
 import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js';
 import { recordedGuarantee, type Guarantee } from './guarantee.js';
 import { roundNoise } from '../util/json.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
+import { probsAt, StreamWalk } from './stream-walk.js';
 
 export interface StreamEval extends Eval { scenes: number; reused: number }
 
@@ -41,6 +42,8 @@ export interface StreamTuneOptions {
   segments?: ArrayLike<number>;
   /** refresh periods to try (default REFRESH) */
   refresh?: readonly number[];
+  /** told the milliseconds each phase took: 'search' (every setting on the search part), then 'certify' (the rest) */
+  onPhase?: (phase: 'search' | 'certify', ms: number) => void;
 }
 
 export interface StreamTuneResult extends TuneResult<StreamPolicy> {
@@ -50,20 +53,6 @@ export interface StreamTuneResult extends TuneResult<StreamPolicy> {
 
 type Run = StreamEval & { correct: number; cost: number };
 
-/**
- * Each frame's softmax at each exit, computed once per cache (float32 exp is costly in JavaScript,
- * and every candidate policy asks for the same ones): filled on first use, keyed by the cache,
- * which tuning never changes.
- */
-const softmaxMemo = new WeakMap<ExitCache, { probs: Float32Array; done: Uint8Array }>();
-/** The memo (laid out as the logits), with frame i's softmax at exit k filled in. */
-function probsAt(c: ExitCache, i: number, k: number): Float32Array {
-  let m = softmaxMemo.get(c);
-  if (!m) { m = { probs: new Float32Array(c.logits.length), done: new Uint8Array(c.samples * (c.exits + 1)) }; softmaxMemo.set(c, m); }
-  const at = i * (c.exits + 1) + k;
-  if (!m.done[at]) { softmax(c.logits, at * c.classes, c.classes, m.probs.subarray(at * c.classes, (at + 1) * c.classes)); m.done[at] = 1; }
-  return m.probs;
-}
 function cachedView(c: ExitCache, i: number): ExitView {
   const base = i * (c.exits + 1) * c.classes;
   return { data: () => c.logits, offset: (k) => base + k * c.classes, probs: (k) => probsAt(c, i, k) };
@@ -121,7 +110,7 @@ function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[]
     const a = (idx[j - 1] * E1 + k) * C, b = (idx[j] * E1 + k) * C;
     probsAt(c, idx[j - 1], k);
     const m = probsAt(c, idx[j], k);
-    const d = distance(kind, m.subarray(a, a + C), m.subarray(b, b + C), C);
+    const d = distanceAt(kind, m, a, m, b, C);
     if (Number.isFinite(d)) ds.push(d);
   }
   ds.sort((x, y) => x - y);
@@ -130,6 +119,9 @@ function taus(c: ExitCache, idx: Int32Array, kind: DistanceKind, exits: number[]
   for (let g = 1; g <= grid && ds.length; g++) out.add(nextUp32(ds[Math.round((g / grid) * (ds.length - 1))]));
   return [...out].sort((x, y) => x - y);
 }
+
+/** The bits of a part's per-scene shares: equal keys, equal bounds. */
+const sharesKey = (s: SceneShares): string => `${s.labelled ? 1 : 0}:${Buffer.from(s.lostEach.buffer, s.lostEach.byteOffset, s.lostEach.byteLength).toString('base64')}:${Buffer.from(s.gainedEach.buffer, s.gainedEach.byteOffset, s.gainedEach.byteLength).toString('base64')}`;
 
 export const STREAM_ASSUMES = [
   'scenes are independent of one another (frames within a scene are not: a scene counts as one piece of evidence)',
@@ -145,6 +137,8 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const refresh = o.refresh ?? REFRESH;
   for (const r of refresh) if (!(Number.isInteger(r) && r >= 1)) throw new OfframpError('usage', `a refresh period is a whole number of frames ≥ 1, not ${r}`);
   const delta = 1 - conf, limit = maxDrop / 100;
+  let phaseStart = performance.now();
+  const phaseDone = (phase: 'search' | 'certify') => { const now = performance.now(); o.onPhase?.(phase, now - phaseStart); phaseStart = now; };
   const reach = reachOf(costs, E);
   const sc = sceneIds(c, o.segments);
   const parts = sceneSplit(sc.ids, heldOut);
@@ -160,13 +154,22 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   // search: every (kind, distance, exit, then, refresh, threshold) on the head
   interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; form: SceneForm; e: StreamEval; bolder?: Rec }
   const recs: Rec[] = [];
+  // every setting's walk over a part, sharing the per-frame tables and the distances (stream-walk.ts)
+  let tuneWalk: StreamWalk | undefined, heldWalk: StreamWalk | undefined;
+  // settings that differ often lose and gain the same shares of the same scenes (half of them on Fashion-MNIST
+  // recordings): their bounds are computed once, keyed by those shares' bits
+  const formOf = new Map<string, { form: SceneForm; hb: number }>();
   const searched = (policy: StreamPolicy, kind: string): Rec => {
-    const e = evalStream(c, parts.tune, policy, reach, tuneLab);
-    const s = sceneShares(c, parts.tune, tuneLab, sc.ids, full);
+    const { run: e, shares: s } = (tuneWalk ??= new StreamWalk(c, parts.tune, reach, sc.ids, full)).eval(policy);
     // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
-    let form = SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb = Infinity;
-    for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < hb) { hb = b; form = f; } }
-    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb, form, e: strip(e) };
+    const key = sharesKey(s);
+    let best = formOf.get(key);
+    if (!best) {
+      best = { form: SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb: Infinity };
+      for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < best.hb) best = { hb: b, form: f }; }
+      formOf.set(key, best);
+    }
+    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: best.hb, form: best.form, e: strip(e) };
   };
   // the neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller)
   const bolder = (r: Rec): Rec => (r.bolder ??= searched({ ...r.policy, thresholds: [r.policy.thresholds[0] * BOLDER] }, r.kind));
@@ -205,13 +208,14 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
     return front(able.map((r) => ({ r, cost: r.cost, correct: -k(r) }))).map((x) => x.r).sort((a, b) => k(a) - k(b) || b.cost - a.cost);
   };
   const chains = [chainOf((r) => pairBound(r, (x) => x.form)), chainOf((r) => pairBound(r, () => 'lost:betting'))];
+  phaseDone('search');
   const WEIGHTS = [0.5, 0.5];
   // the reported front: cost against the setting's own bound on the head, with the tested settings among it
   const fr = [...new Set([...front(recs.map((r) => ({ r, cost: r.cost, correct: -r.hb }))).map((x) => x.r), ...chains.flat()])].sort((a, b) => a.cost - b.cost);
   const heldOf = new Map<Rec, { e: StreamEval; shares: SceneShares }>();
   const certify = (r: Rec) => {
     let h = heldOf.get(r);
-    if (!h) { const e = evalStream(c, parts.held, r.policy, reach, heldLab); h = { e: strip(e), shares: sceneShares(c, parts.held, heldLab, sc.ids, full) }; heldOf.set(r, h); }
+    if (!h) { const { run: e, shares } = (heldWalk ??= new StreamWalk(c, parts.held, reach, sc.ids, full)).eval(r.policy); h = { e: strip(e), shares }; heldOf.set(r, h); }
     return h;
   };
   // intersection–union: the setting and its neighbour are each tested at the level the chains give it
@@ -254,6 +258,7 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   const needed = nextRec && need(nextRec);
   const next = nextRec && { policy: nextRec.policy, ...boundOf(nextRec), ...(needed !== undefined && { needed }) };
   const b = last ? bounds(last)[0] : undefined;
+  phaseDone('certify');
   const guarantee: Guarantee = recordedGuarantee({
     confidence: conf, maxDrop, certified: !!last, unit: 'scenes', evidence: heldScenes, unlabelled: 0,
     estimate: b ? b.estimate * 100 : 0, bound: b ? b.bound * 100 : 0,
