@@ -83,7 +83,7 @@ try {
   for (let i = 0; i < 3000; i++) noisy(Math.floor(rnd() * PROTOS), Math.floor(rnd() * 3) - 1, Math.floor(rnd() * 3) - 1, fit, i * PX);
   writeNpy(path.join(dir, 'fit.npy'), fit, [3000, 1, 28, 28]);
   writeNpy(path.join(dir, 'protos.npy'), protos, [PROTOS, 1, 28, 28]);
-  await cli(['graft', FIXTURE, '--cuts', CUTS, '--data', path.join(dir, 'fit.npy'), '-o', path.join(dir, 'g.onnx')]);
+  await cli(['graft', FIXTURE, '--cuts', CUTS, '--head', 'linear', '--data', path.join(dir, 'fit.npy'), '-o', path.join(dir, 'g.onnx')]);
   const split = path.join(dir, 'split');
   await cli(['split', path.join(dir, 'g.onnx'), '-o', split]);
   const chain = await loadChain(split);
