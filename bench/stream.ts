@@ -18,7 +18,7 @@ import { loadChain } from '../lib/run/chain.js';
 import { captureCache } from '../lib/tune/chain-capture.js';
 import { fullAnswers } from '../lib/tune/scenes.js';
 import { tune } from '../lib/tune/search.js';
-import { tuneStream } from '../lib/tune/stream.js';
+import { tuneStreamThreaded } from '../lib/tune/stream-threads.js';
 import type { FramePolicy } from '../lib/policy/index.js';
 
 export interface StreamRun { captureMs: number; threads: number; frameMs: number; searchMs: number; certifyMs: number; totalMs: number; settings: number; scenes: number; saving: number; certified: boolean }
@@ -57,7 +57,7 @@ async function run(dir: string, split: string, rec: string, labels?: Int32Array,
     const then = frame.chosen.policy.thresholds.some((t) => t !== null) ? [frame.chosen.policy as FramePolicy] : [];
     const t2 = performance.now();
     const ph: Record<string, number> = {};
-    const r = tuneStream(cache, layout.costs, { maxDrop: 1, grid: 24, then, segments, onPhase: (p, ms) => { ph[p] = ms; } });
+    const r = await tuneStreamThreaded(cache, layout.costs, { maxDrop: 1, grid: 24, then, segments, onPhase: (p, ms) => { ph[p] = ms; } });
     const t3 = performance.now();
     return {
       captureMs: t1 - t0, threads, frameMs: t2 - t1, searchMs: ph.search, certifyMs: ph.certify, totalMs: t3 - t0, settings: r.settings,

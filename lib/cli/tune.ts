@@ -10,7 +10,7 @@ import { readDataHeader } from '../data/npy.js';
 import { refuseInputsAsOutputs, refuseSameRows, splitReads } from './guard.js';
 import { progressBar } from './progress.js';
 import { tune, TUNE_KINDS, type FrameKind } from '../tune/search.js';
-import { tuneStream } from '../tune/stream.js';
+import { tuneStreamThreaded } from '../tune/stream-threads.js';
 import { STREAM_KINDS, type FramePolicy, type Policy, type StreamPolicy } from '../policy/policy.js';
 import { tuneHtml, tuneJson, tuneText, type TuneReport } from '../report/tune.js';
 import type { TuneResult } from '../tune/search.js';
@@ -96,6 +96,7 @@ export function tuneCommand(program: Command): void {
         const bar = progressBar(!!process.stderr.isTTY && !o.json);
         const timings: { phase: string; ms: number }[] = [];
         let t0 = performance.now();
+        let searchThreads = 1;
         const lap = (phase: string) => { const now = performance.now(); timings.push({ phase, ms: now - t0 }); t0 = now; };
         const { cache, layout, threads } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
         lap(`capture (${threads} thread${threads > 1 ? 's' : ''})`);
@@ -103,14 +104,15 @@ export function tuneCommand(program: Command): void {
         const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)))).cache : undefined;
         if (unlabelled) lap('unlabelled capture');
         // The tuner's own complaints (too few samples in a part) are about the data file.
-        const result: TuneResult<Policy> = inFile(o.data, () => {
+        const result: TuneResult<Policy> = await inFile(o.data, async () => {
           if (!o.stream) { const r = tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : undefined }); lap('search and certification'); return r; }
           // the per-frame policy a scene change runs on: tuned on the same frames
           const frame = tune(cache, layout.costs, { maxDrop, heldOut, grid, confidence, unlabelled, kinds: frameKinds.length ? frameKinds : ['confidence'] });
           lap('per-frame tuning');
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
-          return tuneStream(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments,
-            onPhase: (phase, ms) => { timings.push({ phase: phase === 'search' ? 'stream search' : 'certification', ms }); t0 = performance.now(); } });
+          return tuneStreamThreaded(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments,
+            onThreads: (n) => { searchThreads = n; },
+            onPhase: (phase, ms) => { timings.push({ phase: phase === 'search' ? `stream search (${searchThreads} thread${searchThreads > 1 ? 's' : ''})` : 'certification', ms }); t0 = performance.now(); } });
         });
         let written: string | undefined, manifestNote: string | undefined;
         // A certified policy is never replaced by one that certifies nothing (the full model, or an

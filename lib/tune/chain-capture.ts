@@ -1,10 +1,8 @@
 // The capture pass over a split: every sample through the staged chain once,
 // keeping each exit's logits and the final output's in an ExitCache. Also what
 // the tuner needs from the manifest: exits in order, the final output, costs per exit.
-import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
-import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Worker } from 'node:worker_threads';
 import { OfframpError, type ErrorKind } from '../errors.js';
 import { MANIFEST_FILE } from '../split/manifest.js';
@@ -13,6 +11,7 @@ import { tensorFromData, type OrtTensor } from '../runtime/ort.js';
 import type { Chain } from '../run/chain.js';
 import type { Manifest } from '../split/manifest.js';
 import { makeCache, type ExitCache, type ExitCosts } from './cache.js';
+import { compiledModule } from '../util/shipped.js';
 
 export interface ChainLayout {
   /** exit output names, in the order the chain makes them */
@@ -112,20 +111,9 @@ export async function captureCache(chain: Chain, data: string, labels?: Int32Arr
   if (labels && labels.length !== rows) throw new OfframpError('data', `${labels.length} labels for ${rows} samples`, data);
   if (o.threads !== undefined && !(Number.isInteger(o.threads) && o.threads >= 1)) throw new OfframpError('usage', `threads: a whole number ≥ 1, not ${o.threads}`);
   const threads = Math.max(1, Math.min(o.threads ?? Math.min(os.availableParallelism(), Math.floor(rows / MIN_ROWS_PER_THREAD)), rows));
-  const worker = threads > 1 ? workerFile() : undefined;
+  const worker = threads > 1 ? compiledModule(import.meta.url, 'tune/capture-worker.js') : undefined;
   const logits = worker ? await captureThreaded(chain, layout, data, rows, threads, worker, onProgress) : await captureRows(chain, layout, data, 0, rows, onProgress);
   return { cache: makeCache(rows, layout.exits.length, layout.classes, logits, labels), layout, threads: worker ? threads : 1 };
-}
-
-/**
- * The compiled worker module: beside this one in dist/, or, when these modules run from their TypeScript
- * sources (the test runner), the build's copy; without a build, capture stays on this thread.
- */
-function workerFile(): URL | undefined {
-  const here = fileURLToPath(import.meta.url);
-  if (here.endsWith('.js')) return new URL('./capture-worker.js', import.meta.url);
-  const built = path.join(path.dirname(here), '..', '..', 'dist', 'lib', 'tune', 'capture-worker.js');
-  return fs.existsSync(built) ? pathToFileURL(built) : undefined;
 }
 
 /** What a capture worker posts: progress, its logits (transferred), or the error it stopped on. */

@@ -32,6 +32,13 @@ export function probsAt(c: ExitCache, i: number, k: number): Float32Array {
   return m.probs;
 }
 
+/** The softmax memo of a cache as filled so far (to hand to another thread), and the filling of one from it. */
+export const softmaxMemoOf = (c: ExitCache): { probs: Float32Array; done: Uint8Array } | undefined => softmaxMemo.get(c);
+export function seedSoftmax(c: ExitCache, m: { probs: Float32Array; done: Uint8Array }): void {
+  if (m.probs.length !== c.logits.length || m.done.length !== c.samples * (c.exits + 1)) throw new OfframpError('usage', 'softmax memo: laid out as another cache');
+  softmaxMemo.set(c, m);
+}
+
 /** An evaluation as evalStream reports it. */
 export interface WalkRun { samples: number; accuracy: number; meanMacs: number; exitShare: number[]; scenes: number; reused: number; correct: number; cost: number }
 

@@ -18,7 +18,7 @@ import { fullAnswers, sceneIds, sceneSplit, type SceneSource } from './scenes.js
 import { recordedGuarantee, type Guarantee } from './guarantee.js';
 import { roundNoise } from '../util/json.js';
 import { evalOf, front, type Eval, type KindResult, type Point, type TuneResult } from './search.js';
-import { probsAt, StreamWalk } from './stream-walk.js';
+import { probsAt, StreamWalk, type WalkRun } from './stream-walk.js';
 
 export interface StreamEval extends Eval { scenes: number; reused: number }
 
@@ -129,51 +129,48 @@ export const STREAM_ASSUMES = [
   'the bound is on the scene-averaged drop (mean over scenes of the share of a scene\'s frames lost against the full model); a recording whose losses fall on its longest scenes can show a larger frame-weighted drop',
 ];
 
-export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions = {}): StreamTuneResult {
+/** One setting's walk over the search part, as the search keeps it, with the bound form chosen on it when known. */
+export interface Walked { run: WalkRun; shares: SceneShares; best?: BestForm }
+/** The form of the bound (which per-scene values, which bound) tightest on a setting's search-part shares, and that bound. */
+export interface BestForm { form: SceneForm; hb: number; /** the bound on the lost shares alone (betting), the second chain's risk */ lostHb: number }
+export function bestForm(s: SceneShares, delta: number): BestForm {
+  let form = SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb = Infinity, lostHb = Infinity;
+  for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) {
+    const b = sceneDropBound(s, delta, f).bound;
+    if (f === 'lost:betting') lostHb = b;
+    if (b < hb) { hb = b; form = f; }
+  }
+  return { form, hb, lostHb };
+}
+export const settingKey = (p: StreamPolicy): string => JSON.stringify(p);
+/** The neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller). */
+export const bolderOf = (p: StreamPolicy): StreamPolicy => ({ ...p, thresholds: [p.thresholds[0] * BOLDER] });
+
+/** What a tuning fixes before any setting is walked: the options, the parts, and every setting the search walks, in order. */
+export interface StreamPlan {
+  maxDrop: number; heldOut: number; conf: number; delta: number; limit: number; E: number;
+  reach: Float64Array; sc: ReturnType<typeof sceneIds>; parts: ReturnType<typeof sceneSplit>; full: Int32Array;
+  kindList: readonly StreamPolicy['kind'][];
+  settings: { policy: StreamPolicy; kind: string }[];
+  started: number;
+}
+
+export function planStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions = {}): StreamPlan {
+  const started = performance.now();
   const maxDrop = o.maxDrop ?? 1, heldOut = o.heldOut ?? 0.5, grid = o.grid ?? 24, E = c.exits, conf = o.confidence ?? 0.95;
   if (!(maxDrop >= 0)) throw new OfframpError('usage', `--max-drop must be ≥ 0 percentage points, not ${maxDrop}`);
   if (!(conf > 0 && conf < 1)) throw new OfframpError('usage', `--confidence takes a number strictly between 0 and 1, not ${conf}`);
   if (c.samples < 4) throw new OfframpError('data', 'stream tuning needs at least 4 frames');
   const refresh = o.refresh ?? REFRESH;
   for (const r of refresh) if (!(Number.isInteger(r) && r >= 1)) throw new OfframpError('usage', `a refresh period is a whole number of frames ≥ 1, not ${r}`);
-  const delta = 1 - conf, limit = maxDrop / 100;
-  let phaseStart = performance.now();
-  const phaseDone = (phase: 'search' | 'certify') => { const now = performance.now(); o.onPhase?.(phase, now - phaseStart); phaseStart = now; };
   const reach = reachOf(costs, E);
   const sc = sceneIds(c, o.segments);
   const parts = sceneSplit(sc.ids, heldOut);
   const full = fullAnswers(c);
-  const tuneLab = new Int32Array(parts.tune.length), heldLab = new Int32Array(parts.held.length);
-  const fullPolicy = fullModel(E);
-  const strip = (e: Run): StreamEval => ({ samples: e.samples, accuracy: e.accuracy, meanMacs: e.meanMacs, exitShare: e.exitShare, scenes: e.scenes, reused: e.reused });
-  const fullPt: Point<FramePolicy> = { policy: fullPolicy, tune: strip(evalStream(c, parts.tune, fullPolicy, reach)), held: strip(evalStream(c, parts.held, fullPolicy, reach)) };
-  const tuneScenes = sceneShares(c, parts.tune, tuneLab, sc.ids, full).n;
-  const heldScenes = sceneShares(c, parts.held, heldLab, sc.ids, full).n;
   const thens: (FramePolicy | undefined)[] = [undefined, ...(o.then ?? [])];
-
   // search: every (kind, distance, exit, then, refresh, threshold) on the head
-  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; form: SceneForm; e: StreamEval; bolder?: Rec }
-  const recs: Rec[] = [];
-  // every setting's walk over a part, sharing the per-frame tables and the distances (stream-walk.ts)
-  let tuneWalk: StreamWalk | undefined, heldWalk: StreamWalk | undefined;
-  // settings that differ often lose and gain the same shares of the same scenes (half of them on Fashion-MNIST
-  // recordings): their bounds are computed once, keyed by those shares' bits
-  const formOf = new Map<string, { form: SceneForm; hb: number }>();
-  const searched = (policy: StreamPolicy, kind: string): Rec => {
-    const { run: e, shares: s } = (tuneWalk ??= new StreamWalk(c, parts.tune, reach, sc.ids, full)).eval(policy);
-    // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
-    const key = sharesKey(s);
-    let best = formOf.get(key);
-    if (!best) {
-      best = { form: SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb: Infinity };
-      for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) { const b = sceneDropBound(s, delta, f).bound; if (b < best.hb) best = { hb: b, form: f }; }
-      formOf.set(key, best);
-    }
-    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: best.hb, form: best.form, e: strip(e) };
-  };
-  // the neighbour: the same setting with a threshold BOLDER times larger (a site whose distances run that much smaller)
-  const bolder = (r: Rec): Rec => (r.bolder ??= searched({ ...r.policy, thresholds: [r.policy.thresholds[0] * BOLDER] }, r.kind));
   const kindList = o.kinds ?? (['difference', 'agreeing'] as const);
+  const settings: StreamPlan['settings'] = [];
   for (const kind of kindList) {
     for (const dist of o.distances ?? DISTANCES) {
       for (const exit of kind === 'difference' ? Array.from({ length: E }, (_, k) => k) : [-1]) {
@@ -183,12 +180,53 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
             const policy: StreamPolicy = kind === 'difference' ? { kind, thresholds: [t], distance: dist, exit } : { kind, thresholds: [t], distance: dist };
             if (then) policy.then = then;
             policy.refresh = R;
-            recs.push(searched(policy, kind));
+            settings.push({ policy, kind });
           }
         }
       }
     }
   }
+  return { maxDrop, heldOut, conf, delta: 1 - conf, limit: maxDrop / 100, E, reach, sc, parts, full, kindList, settings, started };
+}
+
+export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions = {}): StreamTuneResult {
+  return tuneStreamPlanned(c, o, planStream(c, costs, o));
+}
+
+/**
+ * The tuning of a plan. `walked` holds walks already made over the search part (by other threads: the same
+ * bits, stream-threads.ts); any other setting is walked here.
+ */
+export function tuneStreamPlanned(c: ExitCache, o: StreamTuneOptions, plan: StreamPlan, walked?: ReadonlyMap<string, Walked>, tuneWalk?: StreamWalk): StreamTuneResult {
+  const { maxDrop, heldOut, conf, delta, limit, E, reach, sc, parts, full, kindList } = plan;
+  let phaseStart = plan.started;
+  const phaseDone = (phase: 'search' | 'certify') => { const now = performance.now(); o.onPhase?.(phase, now - phaseStart); phaseStart = now; };
+  const tuneLab = new Int32Array(parts.tune.length), heldLab = new Int32Array(parts.held.length);
+  const fullPolicy = fullModel(E);
+  const strip = (e: Run): StreamEval => ({ samples: e.samples, accuracy: e.accuracy, meanMacs: e.meanMacs, exitShare: e.exitShare, scenes: e.scenes, reused: e.reused });
+  const fullPt: Point<FramePolicy> = { policy: fullPolicy, tune: strip(evalStream(c, parts.tune, fullPolicy, reach)), held: strip(evalStream(c, parts.held, fullPolicy, reach)) };
+  const tuneScenes = sceneShares(c, parts.tune, tuneLab, sc.ids, full).n;
+  const heldScenes = sceneShares(c, parts.held, heldLab, sc.ids, full).n;
+
+  interface Rec { policy: StreamPolicy; kind: string; cost: number; correct: number; drop: number; shares: SceneShares; hb: number; lostHb: number; form: SceneForm; e: StreamEval; bolder?: Rec }
+  // every setting's walk over a part, sharing the per-frame tables and the distances (stream-walk.ts)
+  let heldWalk: StreamWalk | undefined;
+  // settings that differ often lose and gain the same shares of the same scenes (half of them on Fashion-MNIST
+  // recordings): their bounds are computed once, keyed by those shares' bits
+  const formOf = new Map<string, BestForm>();
+  const searched = (policy: StreamPolicy, kind: string): Rec => {
+    const w = walked?.get(settingKey(policy)), { run: e, shares: s } = w ?? (tuneWalk ??= new StreamWalk(c, parts.tune, reach, sc.ids, full)).eval(policy);
+    // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
+    let best = w?.best;
+    if (!best) {
+      const key = sharesKey(s);
+      best = formOf.get(key);
+      if (!best) formOf.set(key, (best = bestForm(s, delta)));
+    }
+    return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: best.hb, lostHb: best.lostHb, form: best.form, e: strip(e) };
+  };
+  const bolder = (r: Rec): Rec => (r.bolder ??= searched(bolderOf(r.policy), r.kind));
+  const recs: Rec[] = plan.settings.map((x) => searched(x.policy, x.kind));
 
   // What the sequences test, all from the head: the settings that keep the promise there together with their bolder
   // neighbour, and of those the front of cost against the pair's risk. The neighbour is judged before the front is
@@ -202,12 +240,13 @@ export function tuneStream(c: ExitCache, costs: ExitCosts, o: StreamTuneOptions 
   // 14 % and 81 %, both chains at δ/2 90 % and 45 %. Tried and dropped: one ranking chosen on halves of the head
   // (it chose the net ranking for grid:4: 0 %), and δ/4 for the net chain (14 % and 47 %).
   const able = recs.filter((r) => r.drop <= limit && bolder(r).drop <= limit);
-  const pairBound = (r: Rec, form: (x: Rec) => SceneForm) => Math.max(...[r, bolder(r)].map((x) => sceneDropBound(x.shares, delta, form(x)).bound));
+  // each the bound on the search part at δ, as bestForm keeps them: of the chosen form, and of the lost shares alone
+  const pairBound = (r: Rec, risk: (x: Rec) => number) => Math.max(risk(r), risk(bolder(r)));
   const chainOf = (risk: (r: Rec) => number) => {
     const memo = new Map<Rec, number>(), k = (r: Rec) => { let v = memo.get(r); if (v === undefined) memo.set(r, (v = risk(r))); return v; };
     return front(able.map((r) => ({ r, cost: r.cost, correct: -k(r) }))).map((x) => x.r).sort((a, b) => k(a) - k(b) || b.cost - a.cost);
   };
-  const chains = [chainOf((r) => pairBound(r, (x) => x.form)), chainOf((r) => pairBound(r, () => 'lost:betting'))];
+  const chains = [chainOf((r) => pairBound(r, (x) => x.hb)), chainOf((r) => pairBound(r, (x) => x.lostHb))];
   phaseDone('search');
   const WEIGHTS = [0.5, 0.5];
   // the reported front: cost against the setting's own bound on the head, with the tested settings among it

@@ -3,7 +3,7 @@
 // package keeps lib/).
 import fs from 'node:fs';
 import path from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { fileURLToPath, pathToFileURL } from 'node:url';
 import { OfframpError } from '../errors.js';
 
 const HERE = path.dirname(fileURLToPath(import.meta.url));
@@ -17,4 +17,17 @@ export function shippedPath(rel: string, what: string): string {
     if (fs.existsSync(p)) return p;
   }
   throw new OfframpError('io', `${what} (lib/${rel}) is missing from this installation`, path.join(ROOTS[0], 'lib', rel));
+}
+
+/**
+ * A worker thread's compiled module `rel` (relative to dist/lib), for a module at `from` (its import.meta.url):
+ * beside it when it runs compiled, or, when it runs from its TypeScript source (the test runner), the build's
+ * copy; undefined without a build (the caller then stays on its own thread).
+ */
+export function compiledModule(from: string, rel: string): URL | undefined {
+  const here = fileURLToPath(from);
+  const lib = path.join(path.dirname(here), '..');
+  if (here.endsWith('.js')) return pathToFileURL(path.join(lib, rel));
+  const built = path.join(lib, '..', 'dist', 'lib', rel);
+  return fs.existsSync(built) ? pathToFileURL(built) : undefined;
 }
