@@ -2,7 +2,7 @@
 // user would get them, each judged on images the tuning never saw. Not a test: the figures it prints go into
 // the commit messages and DEVELOPERS.md when the bounds or the search change.
 //
-//   npm run build && node dist/scripts/measure-certify.js WORK [frame|scarce|stream]... [--head H]
+//   npm run build && node dist/scripts/measure-certify.js WORK [frame|scarce|stream]... [--head H (default: graft chooses)]
 //
 // WORK keeps the grafted split and the captured exit caches (the long recordings take minutes to capture),
 // so a second run measures only the tuner. Images: train 0…4999 fit the heads; the per-frame checks tune on
@@ -19,7 +19,8 @@ import { loadChain } from '../lib/run/chain.js';
 import { captureCache } from '../lib/tune/chain-capture.js';
 import { makeCache, reachOf, rowsOf, viewOf, type ExitCache, type ExitCosts } from '../lib/tune/cache.js';
 import { tune } from '../lib/tune/search.js';
-import { evalStream, tuneStream } from '../lib/tune/stream.js';
+import { evalStream } from '../lib/tune/stream.js';
+import { tuneStreamThreaded } from '../lib/tune/stream-threads.js';
 import { argmax, chainFor, fullModel, runFrame, type FramePolicy, type Policy, type StreamPolicy } from '../lib/policy/index.js';
 
 const DIR = process.env.OFFRAMP_FMNIST ?? '/usr/share/datasets/fashion-mnist';
@@ -27,7 +28,8 @@ const MODEL = 'test/fixtures/fmnist/cnn.onnx';
 const CUTS = '/b1/b1.2/MaxPool_output_0,/b2/b2.0/Conv_output_0,/b2/b2.2/MaxPool_output_0,/b3/b3.0/Conv_output_0';
 const args = process.argv.slice(2);
 const hi = args.indexOf('--head');
-const head = hi >= 0 ? args.splice(hi, 2)[1] : 'linear';
+// without --head, graft chooses each exit's head (its default)
+const head = hi >= 0 ? args.splice(hi, 2)[1] : 'chosen';
 const [work, ...what] = args;
 if (!work) { process.stderr.write('usage: measure-certify WORK [frame|scarce|stream]... [--head H]\n'); process.exit(2); }
 const todo = new Set(what.length ? what : ['frame', 'scarce', 'stream']);
@@ -47,7 +49,7 @@ if (!fs.existsSync(path.join(split, 'manifest.json'))) {
   writeNpy(w('fit.npy'), train.data.slice(0, 5000 * per), [5000, 1, 28, 28]);
   writeNpy(w('fit_y.npy'), Int32Array.from(trainY.subarray(0, 5000)), [5000]);
   // four distinct cuts (graft refuses --at shares that land on one cut; 35 % and 45 % both fall on b2's pool)
-  await run(['graft', MODEL, '--cuts', CUTS, '--head', head, '--data', w('fit.npy'), '--labels', w('fit_y.npy'), '-o', w(`grafted-${head.replace(':', '')}.onnx`)]);
+  await run(['graft', MODEL, '--cuts', CUTS, ...(head === 'chosen' ? [] : ['--head', head]), '--data', w('fit.npy'), '--labels', w('fit_y.npy'), '-o', w(`grafted-${head.replace(':', '')}.onnx`)]);
   await run(['split', w(`grafted-${head.replace(':', '')}.onnx`), '-o', split]);
 }
 
@@ -162,7 +164,7 @@ if (todo.has('stream')) {
   };
   for (const maxDrop of (process.env.MAX_DROPS ?? '1,2').split(',').map(Number)) {
     const t0 = Date.now();
-    const r = tuneStream(rec.cache, rec.costs, { maxDrop, segments: seg });
+    const r = await tuneStreamThreaded(rec.cache, rec.costs, { maxDrop, segments: seg });
     const real = onNew(r.chosen.policy);
     say(`stream (${head}), ${F} frames, ${r.scenes.tune}+${r.scenes.held} scenes, max drop ${maxDrop}: ${gOf(r.guarantee)}${r.guarantee.needed ? `, needs ${r.guarantee.needed} scenes` : ''}; ` +
       `on the other recording: drop ${real.drop.toFixed(2)} pp, saving ${real.saving.toFixed(1)} % (${JSON.stringify(r.chosen.policy)}) [${((Date.now() - t0) / 1000).toFixed(0)} s]`);

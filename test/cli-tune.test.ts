@@ -152,6 +152,10 @@ describe('offramp tune and replay', () => {
     const a = JSON.parse(perFrame.stdout), b = JSON.parse(perScene.stdout);
     expect(b.chosen).toEqual(a.chosen);
     expect(b.guarantee).toEqual(a.guarantee);
+    // the same bits on one thread as on every core (the stream search spreads its settings over threads)
+    const one = offramp(['tune', split, '--data', sx, '--labels', sy, '--segments', sseg, '--stream', '--max-drop', '5', '--no-write', '--json', '--threads', '1']);
+    expect(one.stdout).toBe(perFrame.stdout);
+    expect(offramp(['tune', split, '--data', sx, '--stream', '--no-write', '--threads', '0']).code).toBe(2);
     const bad = run(sbad);
     expect(bad.code).toBe(1);
     expect(bad.stderr.trim().split('\n')).toHaveLength(1);

@@ -5,7 +5,7 @@ import path from 'node:path';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
-import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
+import { captureCache, chainLayout, MIN_ROWS_PER_THREAD, readLabels } from '../tune/chain-capture.js';
 import { readDataHeader } from '../data/npy.js';
 import { refuseInputsAsOutputs, refuseSameRows, splitReads } from './guard.js';
 import { progressBar } from './progress.js';
@@ -71,11 +71,13 @@ export function tuneCommand(program: Command): void {
     .option('--verbose', 'also print the split, the method, the exit histogram and the fronts')
     .option('--no-write', 'leave the manifest as it is')
     .option('--replace', 'write the tuned policy even over a certified one when this tuning certified nothing')
-    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean; verbose?: boolean }) => {
+    .option('--threads <n>', 'threads the capture and the stream search use (default: one per core); the result is the same bits on any count')
+    .action(async (dir: string, o: { data: string; labels?: string; maxDrop: string; policy?: string; stream?: boolean; heldOut: string; grid: string; report?: string; json?: boolean; write: boolean; confidence: string; unlabelled?: string; segments?: string; replace?: boolean; verbose?: boolean; threads?: string }) => {
       const maxDrop = parseNumber(o.maxDrop, '--max-drop', { min: 0, max: 100 });
       const confidence = parseNumber(o.confidence, '--confidence', CONFIDENCE_RANGE);
       const heldOut = parseNumber(o.heldOut, '--held-out', HELD_OUT_RANGE);
       const grid = parseNumber(o.grid, '--grid', { int: true, min: 2, max: MAX_GRID });
+      const threads = o.threads === undefined ? undefined : parseNumber(o.threads, '--threads', { int: true, min: 1, max: 256 });
       const kinds = o.policy === undefined ? [] : nameList(o.policy, '--policy');
       for (const k of kinds) if (![...TUNE_KINDS, ...STREAM_KINDS].includes(k as never)) throw usageError(`unknown policy kind '${k}' (one of ${[...TUNE_KINDS, ...STREAM_KINDS].join(', ')})`);
       const frameKinds = kinds.filter((k) => TUNE_KINDS.includes(k as FrameKind)) as FrameKind[];
@@ -98,10 +100,13 @@ export function tuneCommand(program: Command): void {
         let t0 = performance.now();
         let searchThreads = 1;
         const lap = (phase: string) => { const now = performance.now(); timings.push({ phase, ms: now - t0 }); t0 = now; };
-        const { cache, layout, threads } = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)));
-        lap(`capture (${threads} thread${threads > 1 ? 's' : ''})`);
+        // --threads is a cap: a short file stays below it as it would by default (MIN_ROWS_PER_THREAD each)
+        const capOf = (rows: number) => threads && Math.min(threads, Math.max(1, Math.floor(rows / MIN_ROWS_PER_THREAD)));
+        const captured = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)), { threads: capOf(total) });
+        const { cache, layout } = captured;
+        lap(`capture (${captured.threads} thread${captured.threads > 1 ? 's' : ''})`);
         // extra rows without labels: their answers are the full model's, counted only for disagreement
-        const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)))).cache : undefined;
+        const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)), { threads: capOf(readDataHeader(o.unlabelled!).rows) })).cache : undefined;
         if (unlabelled) lap('unlabelled capture');
         // The tuner's own complaints (too few samples in a part) are about the data file.
         const result: TuneResult<Policy> = await inFile(o.data, async () => {
@@ -111,7 +116,7 @@ export function tuneCommand(program: Command): void {
           lap('per-frame tuning');
           const then = frame.chosen.policy.thresholds.some((t) => t !== null) || frame.chosen.policy.kind !== 'confidence' ? [frame.chosen.policy as FramePolicy] : [];
           return tuneStreamThreaded(cache, layout.costs, { maxDrop, heldOut, grid: Math.min(grid, 24), then, kinds: streamKinds.length ? streamKinds : undefined, confidence, segments,
-            onThreads: (n) => { searchThreads = n; },
+            threads, onThreads: (n) => { searchThreads = n; },
             onPhase: (phase, ms) => { timings.push({ phase: phase === 'search' ? `stream search (${searchThreads} thread${searchThreads > 1 ? 's' : ''})` : 'certification', ms }); t0 = performance.now(); } });
         });
         let written: string | undefined, manifestNote: string | undefined;
