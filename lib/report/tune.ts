@@ -106,7 +106,7 @@ export function tuneText(t: TuneReport, o: { verbose?: boolean; frontRows?: numb
   if (!early) {
     const h = uncertifiedHint(t);
     if (h) out.push(`observed   ${settingText(h.policy)} saves ${(h.saving * 100).toFixed(1)} % at an observed drop of ${points(h.drop)} on the certification part: NOT certified, not written; to try it anyway: --policy '${ruleText(h.policy)}'`);
-    out.push(`next       more ${t.stream ? 'recording' : 'rows'}, a larger --max-drop, or exit heads that agree more with the full model (graft/build --head grid:4)`);
+    out.push(`next       more ${t.stream ? 'recording' : 'rows'}, a larger --max-drop, or exit heads that agree more with the full model (graft and build choose them when --head names none)`);
   }
   else if (t.written) {
     const dir = folderOf(t.written);
