@@ -165,6 +165,28 @@ describe('on a build --int8 folder the deployed chain is the int8 one', () => {
     expect(fs.readFileSync(path.join(other, 'offramp_policy.c'), 'utf8')).not.toBe(fs.readFileSync(path.join(fw, 'offramp_policy.c'), 'utf8'));
   });
 
+  test('a C file of offramp\'s names that offramp did not write is never replaced or removed: emit-c and build refuse, exit 2', async () => {
+    // a user's own file where emit-c would write its policy code
+    const out = p('own-c');
+    fs.mkdirSync(out);
+    fs.writeFileSync(path.join(out, 'offramp_policy.c'), 'int my_policy(void) { return 1; }\n');
+    const before = snapshot(out);
+    oneLine(await cli(['emit-c', build, '--float', '-o', out]), 2, path.join(out, 'offramp_policy.c'), /not a file offramp wrote/);
+    expect(snapshot(out)).toEqual(before);
+    // emit-c over its own earlier output is fine (every file it writes opens with its name)
+    const again = p('own-c-2');
+    expect((await cli(['emit-c', build, '--float', '-o', again])).code).toBe(0);
+    expect((await cli(['emit-c', build, '--float', '-o', again])).code).toBe(0);
+    // in a build's firmware folder: the build refuses before it starts, and the file stays
+    const mine = path.join(build, 'firmware', 'offramp_mine.c');
+    fs.writeFileSync(mine, 'int mine;\n');
+    const manifest = fs.readFileSync(path.join(build, 'manifest.json'));
+    oneLine(await cli(['build', p('mlp.onnx'), '--data', x, '--candidates', '3', '--target', 'm4f', '--int8', '--max-drop', '100', '-o', build]), 2, mine, /not a file offramp wrote/);
+    expect(fs.readFileSync(mine, 'utf8')).toBe('int mine;\n');
+    expect(fs.readFileSync(path.join(build, 'manifest.json'))).toEqual(manifest);
+    fs.rmSync(mine);
+  });
+
   test('replay and check say which chain they used in their first line', async () => {
     const r = await cli(['replay', build, '--data', x]);
     expect(r.code, r.stderr).toBe(0);

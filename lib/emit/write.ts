@@ -6,6 +6,7 @@ import { OfframpError } from '../errors.js';
 import type { Policy } from '../policy/index.js';
 import { readManifestFile } from '../split/read.js';
 import { writeAllAtomic } from '../util/atomic.js';
+import { refuseForeignC } from '../util/own-c.js';
 import { sha256, verifyStageFiles } from '../split/commit.js';
 import type { Manifest } from '../split/manifest.js';
 import { emitC, type EmitCOutput } from './c.js';
@@ -51,6 +52,7 @@ export function writeC(where: string, outDir: string, o: WriteCOptions = {}): Em
   const d = decisionC(where, outDir, o);
   // Every file or none (each to a temporary beside it, then all renamed); OUTDIR is made only when they are written.
   const written = d.out.files.map((f) => path.join(outDir, f.name));
+  refuseForeignC(written);
   writeAllAtomic(d.out.files.map((f, k) => ({ file: written[k], data: f.text })));
   return { ...d.out, written, policyFrom: d.policyFrom };
 }

@@ -6,6 +6,7 @@ import path from 'node:path';
 import { OfframpError } from '../errors.js';
 import type { Policy } from '../policy/index.js';
 import { writeAllAtomic } from '../util/atomic.js';
+import { refuseForeignC } from '../util/own-c.js';
 import { shippedPath } from '../util/shipped.js';
 import { decisionC } from '../emit/write.js';
 import type { ChainTable } from '../emit/table.js';
@@ -47,6 +48,7 @@ export function firmwareFiles(where: string, outDir: string, o: FirmwareOptions 
 export function writeFirmware(where: string, outDir: string, o: FirmwareOptions = {}): FirmwareResult {
   const r = firmwareFiles(where, outDir, o);
   const written = r.files.map((f) => path.join(outDir, f.name));
+  refuseForeignC(written);
   writeAllAtomic(r.files.map((f, k) => ({ file: written[k], data: f.text })));
   return { ...r, written };
 }

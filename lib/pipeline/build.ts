@@ -27,9 +27,10 @@ import { writeC } from '../emit/write.js';
 import { writeFirmware } from '../firmware/write.js';
 import { resolveTarget, targetFromJson, type Ratio, type Target } from '../chip/target.js';
 import { OfframpError } from '../errors.js';
+import { refuseForeignC } from '../util/own-c.js';
 import { writeAtomic } from '../util/atomic.js';
 import { scratchOf, withFolder } from '../util/folder.js';
-import { commitFolder, hashedName, sha256 } from '../split/commit.js';
+import { commitFolder, FIRMWARE_FILES, hashedName, sha256 } from '../split/commit.js';
 import { candidateCuts, choosePlacement, type PlacementSearch } from './placement.js';
 import { labelsOfParity, rowsOfParity } from './rows.js';
 import { buildInt8, type Int8Build } from './int8.js';
@@ -175,6 +176,9 @@ export async function buildExits(file: string, options: BuildOptions): Promise<B
   const o = checkBuildOptions(file, options);
   const final = path.resolve(o.out);
   const work = scratchOf(final);
+  // the build replaces the firmware's C files as a whole: one of their names that offramp did not write is refused first
+  const fw = path.join(final, FIRMWARE_FILES.dir);
+  refuseForeignC((fs.existsSync(fw) ? fs.readdirSync(fw) : []).filter((n) => FIRMWARE_FILES.names.test(n)).map((n) => path.join(fw, n)));
   return withFolder(final, async () => {
     fs.rmSync(work, { recursive: true, force: true });
     let r: BuildResult;

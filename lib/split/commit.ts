@@ -13,6 +13,7 @@
 import crypto from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
+import { writtenByOfframp } from '../util/own-c.js';
 import { OfframpError } from '../errors.js';
 
 export const sha256 = (b: Uint8Array) => crypto.createHash('sha256').update(b).digest('hex');
@@ -117,7 +118,8 @@ export function removeDescribing(dir: string, more: string[] = []): void {
   const fw = path.join(dir, FIRMWARE_FILES.dir);
   let names: string[] = [];
   try { names = fs.readdirSync(fw); } catch { /* no firmware folder */ }
-  for (const n of names) if (FIRMWARE_FILES.names.test(n)) fs.rmSync(path.join(fw, n), { force: true });
+  // a file of offramp's names that offramp did not write is someone's: it stays
+  for (const n of names) if (FIRMWARE_FILES.names.test(n) && writtenByOfframp(path.join(fw, n))) fs.rmSync(path.join(fw, n), { force: true });
 }
 
 /**
