@@ -79,25 +79,28 @@ describe('without the toolchain', () => {
   });
 
   it('pairs markers and subtracts one calibration per marker (worked example)', () => {
-    // Calibration 9; frame 0 from 100 to 200 holds stage 1 from 120 to 150: stage = 30 − 9 = 21,
-    // frame = 100 − 9 × (1 + 2 inner markers) = 73; frame 1 from 300 to 340, empty: 40 − 9 = 31.
-    const log = 'E 7 0 10\nE 8 0 19\nE 5 0 100\nE 1 1 120\nE 2 1 150\nE 6 0 200\nE 5 1 300\nE 6 1 340\nT 400\n';
+    // Calibration 9; frame 0 from 100 to 200 holds stage 1 from 120 to 150, which holds kernel step 0 from
+    // 125 to 140: step = 15 − 9 = 6, stage = 30 − 9 × (1 + 2 inner markers) = 3, frame = 100 − 9 × (1 + 4) = 55;
+    // frame 1 from 300 to 340, empty: 40 − 9 = 31.
+    const log = 'E 7 0 10\nE 8 0 19\nE 5 0 100\nE 1 1 120\nE 9 0 125\nE 10 0 140\nE 2 1 150\nE 6 0 200\nE 5 1 300\nE 6 1 340\nT 400\n';
     const c = readCountLog(log, true);
     expect(c.calibration).toBe(9);
     expect(c.total).toBe(400);
     expect(c.frames).toBe(2);
     expect(c.occurrences).toEqual([
-      { kind: 'stage', index: 1, frame: 0, instructions: 21 },
-      { kind: 'frame', index: 0, frame: 0, instructions: 73 },
+      { kind: 'step', index: 0, frame: 0, instructions: 6, stage: 1 },
+      { kind: 'stage', index: 1, frame: 0, instructions: 3 },
+      { kind: 'frame', index: 0, frame: 0, instructions: 55 },
       { kind: 'frame', index: 1, frame: 1, instructions: 31 },
     ]);
     expect(c.regions).toEqual([
-      { kind: 'stage', index: 1, count: 1, total: 21, min: 21, max: 21 },
-      { kind: 'frame', index: -1, count: 2, total: 104, min: 31, max: 73 },
+      { kind: 'stage', index: 1, count: 1, total: 3, min: 3, max: 3 },
+      { kind: 'step', index: 0, stage: 1, count: 1, total: 6, min: 6, max: 6 },
+      { kind: 'frame', index: -1, count: 2, total: 86, min: 31, max: 55 },
     ]);
     expect(frameProfiles(c.occurrences)).toEqual([
-      { frame: 0, index: 0, instructions: 73, stages: [{ index: 1, instructions: 21 }], decisions: [] },
-      { frame: 1, index: 1, instructions: 31, stages: [], decisions: [] },
+      { frame: 0, index: 0, instructions: 55, stages: [{ index: 1, instructions: 3 }], decisions: [], steps: [{ stage: 1, index: 0, instructions: 6 }] },
+      { frame: 1, index: 1, instructions: 31, stages: [], decisions: [], steps: [] },
     ]);
     expect(() => readCountLog('E 7 0 10\nE 8 0 19\nE 1 1 20\nE 4 1 30\nT 40\n', true)).toThrow(/end of decision 1 inside stage 1/);
     expect(() => readCountLog('E 7 0 10\nE 8 0 19\nE 1 1 20\nT 40\n', true)).toThrow(/stage 1 still open/);
@@ -120,7 +123,7 @@ describe.skipIf(!status.ready)('on the emulated cores', () => {
       expect(m.occurrences.map((o) => o.frame)).toEqual([-1, -1, -1, -1, -1, 0, 0, 0]);
       expect(m.frames).toBe(1);
       expect(frameProfiles(m.occurrences)).toEqual([
-        { frame: 0, index: 1000, instructions: 43, stages: [{ index: 5, instructions: 2 }], decisions: [{ index: 1, instructions: 41 }] },
+        { frame: 0, index: 1000, instructions: 43, stages: [{ index: 5, instructions: 2 }], decisions: [{ index: 1, instructions: 41 }], steps: [] },
       ]);
     });
   }

@@ -129,6 +129,19 @@ describe.skipIf(!EMU)('measured again on the emulated m4f', () => {
       m = JSON.parse(fs.readFileSync(f('m.json'), 'utf8'));
     });
 
+    it('counts each kernel step: the steps of a stage add up to it, less their markers\' few instructions, and their MACs to its MACs', () => {
+      const j = m as unknown as { stages: { index: number; macs: number; instructions: number }[]; steps: { stage: number; macs: number; instructions: number; kernel: string }[] };
+      for (const s of j.stages) {
+        const mine = j.steps.filter((x) => x.stage === s.index);
+        const sum = mine.reduce((a, x) => a + x.instructions, 0);
+        expect(sum).toBeLessThanOrEqual(s.instructions);
+        // the walk between steps (the step table, its switch) and a marker's call sequence: a few dozen instructions a step
+        expect(s.instructions - sum).toBeLessThan(60 * mine.length);
+        expect(mine.reduce((a, x) => a + x.macs, 0)).toBe(s.macs);
+        expect(mine.some((x) => x.kernel === 'conv')).toBe(true);
+      }
+    });
+
     it('prints the measured latency per stage and to each exit: instructions × 1.3 cycles at 80 MHz; flash and RAM as measured', () => {
       const r = offramp(['cost', dir, '--measured', f('m.json'), '--json']);
       expect(r.stderr).toBe('');

@@ -27,7 +27,13 @@ export function deviceText(r: DeviceReport, verbose = false): string {
   const stages = table(['stage', 'MACs', 'instructions', 'per MAC'], r.stages.map((s) => [String(s.index), si(s.macs), si(s.instructions), s.instructionsPerMac.toFixed(2)]));
   const paths = table(['answer from', 'frames', 'instructions per frame'], r.paths.map((p) => [p.exit === r.exits ? 'final output' : `exit ${p.exit}`, String(p.frames), si(p.meanInstructions)]));
   const decisions = table(['decision at', 'made', 'mean instructions', 'max'], r.decisions.map((d) => [`exit ${d.exit}`, String(d.count), String(d.meanInstructions), String(d.maxInstructions)]));
-  const more = verbose ? ['', decisions, '', `policy (${r.policyFrom}): ${JSON.stringify(r.policy)}`] : [];
+  // where the whole network's instructions go, kernel step by kernel step
+  const whole = r.steps.reduce((a, s) => a + s.instructions, 0);
+  const steps = table(['stage', 'step', 'kernel', 'node', 'MACs', 'instructions', 'per MAC', 'share'], r.steps.map((s) => [
+    String(s.stage), String(s.step), s.kernel, s.node.length > 28 ? `…${s.node.slice(-27)}` : s.node, s.macs ? si(s.macs) : '-', si(s.instructions),
+    s.macs ? (s.instructions / s.macs).toFixed(2) : '-', whole ? pct(s.instructions / whole) : '-',
+  ]));
+  const more = verbose ? ['', decisions, '', `kernel steps on the frames through the whole network (mean instructions):`, steps, '', `policy (${r.policyFrom}): ${JSON.stringify(r.policy)}`] : [];
   const diff = r.answers.differFromOnnxruntime.length ? ['', `where onnxruntime differs: ${r.answers.differFromOnnxruntime.slice(0, 5).map((d) => `frame ${d.frame} (label, exit) ${d.firmware.join(', ')} vs ${d.onnxruntime.join(', ')}`).join('; ')} — a logit a step apart near a threshold (fixed-point requantization against onnxruntime's float one)`] : [];
   return [...head, '', stages, '', paths, ...more, ...diff, ...(equal ? [] : ['', 'the firmware and the TypeScript reference disagree: this is a bug in offramp; please report it with the folder'])].join('\n') + '\n';
 }
@@ -43,7 +49,7 @@ export function measureCommand(program: Command): void {
     .option('--clock-mhz <mhz>', 'clock for the time estimate (default: 80, 400, 200 MHz for m4f, m7, m55)')
     .option('--json', 'machine-readable result (schema offramp-measure/1)')
     .option('-o, --out <file>', 'also write the JSON result to this file')
-    .option('--verbose', 'decisions per exit and the policy')
+    .option('--verbose', 'decisions per exit, instructions per kernel step, and the policy')
     .action(async (qdir: string, o: { data: string; labels?: string; core: string; rows: string; clockMhz?: string; json?: boolean; out?: string; verbose?: boolean }) => {
       if (Object.hasOwn(UNMEASURABLE, o.core)) throw new OfframpError('usage', `--core ${o.core}: ${UNMEASURABLE[o.core]}`);
       const tools = toolchainStatus();

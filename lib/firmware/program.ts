@@ -72,3 +72,10 @@ export interface Program {
 
 /** Bytes a slot's tensor takes outside the arena. */
 export const handoverBytes = (p: Program) => p.handovers.reduce((a, t) => a + t.size, 0);
+
+/** Multiply-accumulates of one step, as the cost report counts them (convolutions and matrix products; 0 for the rest). */
+export function stepMacs(s: Step): number {
+  if (s.kind === 'conv') { const p = s.p; return p.outH * p.outW * p.outC * (p.inC / p.groups) * p.kH * p.kW; }
+  if (s.kind === 'dense') return s.p.in * s.p.out;
+  return 0;
+}

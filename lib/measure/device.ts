@@ -12,7 +12,7 @@ import { shippedPath } from '../util/shipped.js';
 import { cString } from '../emit/c.js';
 import { firmwareFiles } from '../firmware/write.js';
 import { Int8Classifier, Int8Machine } from '../firmware/interp.js';
-import { handoverBytes } from '../firmware/program.js';
+import { handoverBytes, stepMacs } from '../firmware/program.js';
 import { loadChain } from '../run/chain.js';
 import { readManifestFile } from '../split/read.js';
 import { sha256 } from '../split/commit.js';
@@ -66,6 +66,8 @@ export interface DeviceReport {
   /** early exits; exit index `exits` is the final output */
   exits: number;
   stages: { index: number; file: string; macs: number; instructions: number; instructionsPerMac: number }[];
+  /** each kernel step of each stage on the frames through the whole network: its kernel, ONNX node, MACs and mean instructions */
+  steps: { stage: number; step: number; kernel: string; node: string; macs: number; instructions: number }[];
   /** instructions of one decision at each exit (mean over the frames that made it) */
   decisions: { exit: number; count: number; meanInstructions: number; maxInstructions: number }[];
   /** frames by the exit their answer came from: how many, mean instructions */
@@ -160,6 +162,10 @@ export async function measureDevice(o: DeviceOptions, onProgress?: (what: string
         const ins = Math.round(stageMean(s.index));
         return { index: s.index, file: s.file, macs: s.macs, instructions: ins, instructionsPerMac: s.macs ? Math.round((ins / s.macs) * 1000) / 1000 : 0 };
       }),
+      steps: program.stages.flatMap((s) => s.steps.map((st, i) => ({
+        stage: s.index, step: i, kernel: st.kind, node: st.node, macs: stepMacs(st),
+        instructions: Math.round(mean(fullFrames.flatMap((p) => p.steps.filter((x) => x.stage === s.index && x.index === i).map((x) => x.instructions)))),
+      }))),
       decisions, paths, frames: n,
       perFrame: {
         policy: Math.round(perPolicy), full: Math.round(perFull), savedShare: perFull ? Math.round((1 - perPolicy / perFull) * 10000) / 10000 : 0,

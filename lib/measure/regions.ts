@@ -2,7 +2,7 @@
 //
 // The log holds "E <event> <index> <count>" per marker, then "T <count>" (the run's total). Events
 // come in begin/end pairs (harness/trace.c): 1/2 stage k, 3/4 decision on exit k, 5/6 frame, 7/8 the
-// harness's empty calibration region. Between two marker stores with nothing between, the marker
+// harness's empty calibration region, 9/10 kernel step k of the stage around it. Between two marker stores with nothing between, the marker
 // itself executes `calibration` instructions (9 with the harness's call sequence), so a region's
 // figure is its raw difference less one calibration per marker inside it and one for its own end:
 //   net = (count_end - count_begin) - calibration × (1 + markers strictly inside).
@@ -14,9 +14,9 @@
 // a few instructions per marker; a region that comes out below zero that way is reported as 0.
 import { OfframpError } from '../errors.js';
 
-export type RegionKind = 'stage' | 'decision' | 'frame';
+export type RegionKind = 'stage' | 'decision' | 'frame' | 'step';
 
-const KINDS: Record<number, RegionKind | 'calibration'> = { 1: 'stage', 3: 'decision', 5: 'frame', 7: 'calibration' };
+const KINDS: Record<number, RegionKind | 'calibration'> = { 1: 'stage', 3: 'decision', 5: 'frame', 7: 'calibration', 9: 'step' };
 
 /** One executed region, in the order the regions ended. */
 export interface Occurrence {
@@ -26,13 +26,17 @@ export interface Occurrence {
   /** Which frame it belongs to: the frame's position among the run's frames (0, 1, …); -1 outside any frame. */
   frame: number;
   instructions: number;
+  /** A step's stage (the stage region around it); -1 outside any */
+  stage?: number;
 }
 
 /** All occurrences of one stage or decision index, or of all frames together (index -1). */
 export interface RegionSummary {
   kind: RegionKind;
-  /** Stage k, exit k; -1 for the frames, summed whatever their numbers. */
+  /** Stage k, exit k, step k; -1 for the frames, summed whatever their numbers. */
   index: number;
+  /** a step's stage */
+  stage?: number;
   count: number;
   total: number;
   min: number;
@@ -49,14 +53,14 @@ export interface CountLog {
   frames: number;
 }
 
-interface Open { kind: RegionKind | 'calibration'; event: number; index: number; start: number; inner: number; frame: number }
+interface Open { kind: RegionKind | 'calibration'; event: number; index: number; start: number; inner: number; frame: number; stage: number }
 
 function enclosingFrame(open: Open[]): number {
   for (let i = open.length - 1; i >= 0; i--) if (open[i]!.kind === 'frame') return open[i]!.frame;
   return -1;
 }
 
-const ORDER: RegionKind[] = ['stage', 'decision', 'frame'];
+const ORDER: RegionKind[] = ['stage', 'step', 'decision', 'frame'];
 
 /** Read the counter's log. `complete`: the firmware ended normally, so every region must be closed. */
 export function readCountLog(text: string, complete: boolean, file = 'counter log'): CountLog {
@@ -80,11 +84,12 @@ export function readCountLog(text: string, complete: boolean, file = 'counter lo
     if (!Number.isSafeInteger(count)) throw bad(n, `count ${f[3]} beyond exact range`);
     if (event % 2 === 1) {
       const kind = KINDS[event];
-      if (!kind) throw bad(n, `unknown marker event ${event} (the firmware's are 1 to 6)`);
+      if (!kind) throw bad(n, `unknown marker event ${event} (the firmware's are 1 to 6 and 9)`);
       if (kind === 'calibration' && (calibration !== undefined || open.length)) throw bad(n, 'calibration region not first');
       for (const o of open) o.inner++;
       const frame = kind === 'frame' ? frames++ : enclosingFrame(open);
-      open.push({ kind, event, index, start: count, inner: 0, frame });
+      const around = [...open].reverse().find((o) => o.kind === 'stage');
+      open.push({ kind, event, index, start: count, inner: 0, frame, stage: around ? around.index : -1 });
       return;
     }
     const top = open.pop();
@@ -97,7 +102,7 @@ export function readCountLog(text: string, complete: boolean, file = 'counter lo
     if (top.kind === 'calibration') { calibration = raw; return; }
     if (calibration === undefined) throw bad(n, 'no calibration region before the firmware\'s markers');
     const instructions = Math.max(0, raw - calibration * (1 + top.inner));
-    occurrences.push({ kind: top.kind, index, frame: top.frame, instructions });
+    occurrences.push({ kind: top.kind, index, frame: top.frame, instructions, ...(top.kind === 'step' && { stage: top.stage }) });
   });
   if (total === undefined) throw new OfframpError('runtime', 'the counter wrote no total (QEMU stopped before its exit)', file);
   if (calibration === undefined) throw new OfframpError('runtime', 'no calibration region: the harness did not start', file);
@@ -108,12 +113,12 @@ export function readCountLog(text: string, complete: boolean, file = 'counter lo
   const byKey = new Map<string, RegionSummary>();
   for (const o of occurrences) {
     const index = o.kind === 'frame' ? -1 : o.index;
-    const key = `${o.kind} ${index}`;
+    const key = `${o.kind} ${index} ${o.stage ?? ''}`;
     const s = byKey.get(key);
-    if (!s) byKey.set(key, { kind: o.kind, index, count: 1, total: o.instructions, min: o.instructions, max: o.instructions });
+    if (!s) byKey.set(key, { kind: o.kind, index, ...(o.stage !== undefined && { stage: o.stage }), count: 1, total: o.instructions, min: o.instructions, max: o.instructions });
     else { s.count++; s.total += o.instructions; s.min = Math.min(s.min, o.instructions); s.max = Math.max(s.max, o.instructions); }
   }
-  const regions = [...byKey.values()].sort((a, b) => ORDER.indexOf(a.kind) - ORDER.indexOf(b.kind) || a.index - b.index);
+  const regions = [...byKey.values()].sort((a, b) => ORDER.indexOf(a.kind) - ORDER.indexOf(b.kind) || (a.stage ?? 0) - (b.stage ?? 0) || a.index - b.index);
   return { total, calibration, occurrences, regions, frames };
 }
 
@@ -125,6 +130,8 @@ export interface FrameProfile {
   instructions: number;
   stages: { index: number; instructions: number }[];
   decisions: { index: number; instructions: number }[];
+  /** kernel steps, each with its stage */
+  steps: { stage: number; index: number; instructions: number }[];
 }
 
 /** The frames of a run, each with what ran inside it; the exit path of a frame is its list of stages
@@ -134,13 +141,14 @@ export function frameProfiles(occurrences: Occurrence[]): FrameProfile[] {
   const frames = new Map<number, FrameProfile>();
   const get = (f: number) => {
     let p = frames.get(f);
-    if (!p) frames.set(f, p = { frame: f, index: -1, instructions: 0, stages: [], decisions: [] });
+    if (!p) frames.set(f, p = { frame: f, index: -1, instructions: 0, stages: [], decisions: [], steps: [] });
     return p;
   };
   for (const o of occurrences) {
     if (o.frame < 0) continue;
     const p = get(o.frame);
     if (o.kind === 'frame') { p.index = o.index; p.instructions = o.instructions; }
+    else if (o.kind === 'step') p.steps.push({ stage: o.stage ?? -1, index: o.index, instructions: o.instructions });
     else (o.kind === 'stage' ? p.stages : p.decisions).push({ index: o.index, instructions: o.instructions });
   }
   return [...frames.values()].sort((a, b) => a.frame - b.frame);

@@ -37,11 +37,12 @@ offramp_answer_t offramp_classify_full(const float *input);
 const int8_t *offramp_exit_logits_q8(int32_t k);
 
 /* Measuring hooks: compiled with -DOFFRAMP_TRACE, the library calls offramp_trace (which the caller
- * defines) around every stage, decision and frame. */
+ * defines) around every stage, decision, frame and kernel step (7 and 8 are the measuring harness's own). */
 enum {
   OFFRAMP_TRACE_STAGE_BEGIN = 1, OFFRAMP_TRACE_STAGE_END = 2,
   OFFRAMP_TRACE_DECIDE_BEGIN = 3, OFFRAMP_TRACE_DECIDE_END = 4,
-  OFFRAMP_TRACE_FRAME_BEGIN = 5, OFFRAMP_TRACE_FRAME_END = 6
+  OFFRAMP_TRACE_FRAME_BEGIN = 5, OFFRAMP_TRACE_FRAME_END = 6,
+  OFFRAMP_TRACE_STEP_BEGIN = 9, OFFRAMP_TRACE_STEP_END = 10
 };
 #ifdef OFFRAMP_TRACE
 void offramp_trace(int32_t event, int32_t index);
