@@ -118,7 +118,10 @@ function buildDetail(r: BuildResult): string[] {
   ]);
   const lines = [
     `exits at   ${s.exits.map((e) => `${e.cut} (${e.head})`).join(', ')}`,
-    ...(s.exits.some((e) => e.choice) ? [`heads      chosen by the MACs each would save per frame on the fit's held-out rows: ${s.exits.map((e) => e.choice ? `${e.output} ${trialsText(e.choice.tried, ' / ')}` : `${e.output} named`).join('; ')}`] : []),
+    ...(s.exits.some((e) => e.choice) ? [
+      "heads      chosen by the MACs each would save per frame on the fit's held-out rows:",
+      ...s.exits.map((e) => `           ${e.output} ${e.head}: ${e.choice ? trialsText(e.choice.tried, ', ') : 'named by --head'}`),
+    ] : []),
     `float32    ${policyText(s.policy)}: ${pct(h.saving)} saved, accuracy ${pct(h.accuracy, 2)} vs ${pct(h.fullAccuracy, 2)} for the full model on ${h.samples} held-out samples`,
     ...promiseText(s.guarantee),
     `check      staged chain = grafted model on ${s.check.samples} samples: ${s.check.ok ? 'ok' : 'MISMATCH'} (max abs diff ${s.check.maxAbs})`,
