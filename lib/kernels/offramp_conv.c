@@ -54,6 +54,22 @@ static void gather(const window_t *w, const int8_t *x, int32_t cin, int32_t iy0,
 }
 #undef PUT
 
+/* The group's output channels, two at a time, dotted with the column pair; REQ requantizes. */
+#define CHANNELS(REQ) \
+  for (o = g * cout; o < o_end; o += 2) { \
+    const int pair = o + 1 < o_end; \
+    const int8_t *wa = weight + o * k_row; \
+    int8_t *ya = y + o * positions + pos; \
+    int32_t acc[4]; \
+    offramp_dot_2x2(wa, pair ? wa + k_row : wa, pq, k_row, acc); \
+    ya[0] = REQ(bias[o] + acc[0], &mul[o], zero, lo, hi); \
+    if (two) ya[1] = REQ(bias[o] + acc[2], &mul[o], zero, lo, hi); \
+    if (pair) { \
+      ya[positions] = REQ(bias[o + 1] + acc[1], &mul[o + 1], zero, lo, hi); \
+      if (two) ya[positions + 1] = REQ(bias[o + 1] + acc[3], &mul[o + 1], zero, lo, hi); \
+    } \
+  }
+
 void offramp_conv(const offramp_conv_t *p, const int8_t *x, int8_t *y) {
   const int32_t groups = p->groups, cin = p->in_c / groups, cout = p->out_c / groups;
   const int32_t out_w = p->out_w, positions = p->out_h * out_w, k_row = p->k_row;
@@ -70,24 +86,15 @@ void offramp_conv(const offramp_conv_t *p, const int8_t *x, int8_t *y) {
   for (g = 0; g < groups; g++) {
     const int8_t *xg = x + g * cin * w.hw;
     const int32_t o_end = (g + 1) * cout;
+    /* every multiplier of the group with shift >= 1 (the common case): the requantization without its test */
+    int s1 = 1;
+    for (o = g * cout; o < o_end; o++) if (mul[o].shift < 1) s1 = 0;
     for (pos = 0; pos < positions; pos += 2) {
       const int two = pos + 1 < positions;
       const int32_t next = two ? pos + 1 : pos; /* a last single position fills both columns */
       gather(&w, xg, cin, (pos / out_w) * stride_h - pad_top, (pos % out_w) * stride_w - pad_left, pq, 0);
       gather(&w, xg, cin, (next / out_w) * stride_h - pad_top, (next % out_w) * stride_w - pad_left, pq, 1);
-      for (o = g * cout; o < o_end; o += 2) {
-        const int pair = o + 1 < o_end;
-        const int8_t *wa = weight + o * k_row;
-        int8_t *ya = y + o * positions + pos;
-        int32_t acc[4];
-        offramp_dot_2x2(wa, pair ? wa + k_row : wa, pq, k_row, acc);
-        ya[0] = offramp_to_int8(bias[o] + acc[0], &mul[o], zero, lo, hi);
-        if (two) ya[1] = offramp_to_int8(bias[o] + acc[2], &mul[o], zero, lo, hi);
-        if (pair) {
-          ya[positions] = offramp_to_int8(bias[o + 1] + acc[1], &mul[o + 1], zero, lo, hi);
-          if (two) ya[positions + 1] = offramp_to_int8(bias[o + 1] + acc[3], &mul[o + 1], zero, lo, hi);
-        }
-      }
+      if (s1) { CHANNELS(offramp_to_int8_s1) } else { CHANNELS(offramp_to_int8) }
     }
   }
 }

@@ -27,23 +27,25 @@ typedef struct {
  * quotient's lowest bit b, floor((p + 2^(e-1) - 1 + b) / 2^e) rounds to nearest and a tie to the even
  * neighbour (below half: the sum stays under the next multiple; above: it reaches it; at half: it
  * reaches it exactly when b is 1). */
+/* The same for a multiplier with shift >= 1, the common case (callers that know it skip the test).
+ * e = 32 + s: the quotient is the high word of p + nudge, shifted by s; it fits int32 as it is (a
+ * 32-bit add pair and shift, where the general form needs 64-bit shifts by a variable). */
+static inline int32_t offramp_requantize_s1(int32_t acc, const offramp_mul_t *m) {
+  const int32_t s = m->shift - 1;
+  const int64_t prod = (int64_t)acc * (int64_t)m->mult;
+  const uint32_t b = (uint32_t)(((int32_t)(prod >> 32) >> s) & 1);
+  const uint64_t u = (uint64_t)prod + ((uint64_t)m->nudge_hi << 32 | m->nudge_lo) + b;
+  return (int32_t)(uint32_t)(u >> 32) >> s;
+}
+
 static inline int32_t offramp_requantize(int32_t acc, const offramp_mul_t *mp) {
   /* by pointer: passed by value, the struct is copied to the stack at every output (gcc -O2) */
-  const offramp_mul_t m = *mp;
   int64_t p, q;
   int32_t e;
-  if (m.shift >= 1) {
-    /* e = 32 + s: the quotient is the high word of p + nudge, shifted by s; it fits int32 as it is
-     * (a 32-bit add pair and shift, where the general form needs 64-bit shifts by a variable) */
-    const int32_t s = m.shift - 1;
-    const int64_t prod = (int64_t)acc * (int64_t)m.mult;
-    const uint32_t b = (uint32_t)(((int32_t)(prod >> 32) >> s) & 1);
-    const uint64_t u = (uint64_t)prod + ((uint64_t)m.nudge_hi << 32 | m.nudge_lo) + b;
-    return (int32_t)(uint32_t)(u >> 32) >> s;
-  }
-  if (m.mult == 0) return 0;
-  e = 31 + m.shift;
-  p = (int64_t)acc * (int64_t)m.mult;
+  if (mp->shift >= 1) return offramp_requantize_s1(acc, mp);
+  if (mp->mult == 0) return 0;
+  e = 31 + mp->shift;
+  p = (int64_t)acc * (int64_t)mp->mult;
   q = (p + ((INT64_C(1) << (e - 1)) - 1) + ((p >> e) & 1)) >> e;
   return q > INT32_MAX ? INT32_MAX : q < INT32_MIN ? INT32_MIN : (int32_t)q;
 }
@@ -51,6 +53,11 @@ static inline int32_t offramp_requantize(int32_t acc, const offramp_mul_t *mp) {
 /* The int8 result: the zero point added, clamped to [lo, hi] (a fused Relu or Clip narrows them). */
 static inline int8_t offramp_to_int8(int32_t acc, const offramp_mul_t *m, int32_t zero, int32_t lo, int32_t hi) {
   int32_t v = offramp_requantize(acc, m) + zero;
+  return (int8_t)(v < lo ? lo : v > hi ? hi : v);
+}
+
+static inline int8_t offramp_to_int8_s1(int32_t acc, const offramp_mul_t *m, int32_t zero, int32_t lo, int32_t hi) {
+  int32_t v = offramp_requantize_s1(acc, m) + zero;
   return (int8_t)(v < lo ? lo : v > hi ? hi : v);
 }
 
