@@ -9,7 +9,8 @@ import type { StreamPolicy } from '../policy/index.js';
 import { compiledModule } from '../util/shipped.js';
 import type { ExitCache, ExitCosts } from './cache.js';
 import { softmaxMemoOf, StreamWalk } from './stream-walk.js';
-import { bolderOf, planStream, settingKey, tuneStreamPlanned, type StreamPlan, type StreamTuneOptions, type StreamTuneResult, type Walked } from './stream.js';
+import { bolderOf, formCache, planStream, settingKey, tuneStreamPlanned, type BestForm, type StreamPlan, type StreamTuneOptions, type StreamTuneResult, type Walked } from './stream.js';
+import type { SceneShares } from '../certify/scenes.js';
 
 /** What a stream-search worker is given once (stream-worker.ts); lists of settings follow as messages. */
 export interface StreamJob {
@@ -22,6 +23,8 @@ export interface StreamJob {
 
 /** Below this many walks a thread of its own costs more (its start, the copy of the cache) than it saves. */
 const MIN_WALKS_PER_THREAD = 200;
+/** A worker's start (its modules, the copy of the cache, its tables) counts as this share of the first round's walks when groups are dealt. */
+const WORKER_START_SHARE = 0.05;
 
 /**
  * tuneStream, with the search's walks spread over `threads` threads (default one per core; 1: this thread
@@ -56,6 +59,7 @@ class SearchPool {
   private readonly failure: Promise<never>;
   private readonly threadOf = new Map<string, number>();
   private readonly load: number[];
+  private readonly formOf: (s: SceneShares) => BestForm;
 
   constructor(c: ExitCache, plan: StreamPlan, private readonly here: StreamWalk, threads: number, file: URL) {
     const memo = softmaxMemoOf(c)!;
@@ -64,6 +68,7 @@ class SearchPool {
       probs: memo.probs, done: memo.done, idx: plan.parts.tune, ids: plan.sc.ids, full: plan.full, reach: plan.reach, delta: plan.delta,
     };
     this.size = threads;
+    this.formOf = formCache(plan.delta);
     this.load = new Array<number>(threads).fill(0);
     this.workers = Array.from({ length: threads - 1 }, () => new Worker(file, { workerData: job }));
     this.failure = new Promise<never>((_, reject) => {
@@ -81,14 +86,15 @@ class SearchPool {
       if (g) g.push(p); else groups.set(k, [p]);
     }
     const share: StreamPolicy[][] = Array.from({ length: this.size }, () => []);
+    if (!this.load.some((l) => l !== 0)) for (let t = 1; t < this.size; t++) this.load[t] = Math.round(policies.length * WORKER_START_SHARE);
     for (const [k, g] of [...groups].sort((a, b) => b[1].length - a[1].length)) {
       let t = this.threadOf.get(k);
       if (t === undefined) { t = this.load.indexOf(Math.min(...this.load)); this.threadOf.set(k, t); }
       share[t].push(...g); this.load[t] += g.length;
     }
     const asked = this.workers.map((wk, t) => (share[t + 1].length ? this.ask(wk, share[t + 1]) : Promise.resolve([])));
-    // this thread's share while the others walk theirs
-    for (const p of share[0]) walked.set(settingKey(p), this.here.eval(p));
+    // this thread's share while the others walk theirs, bound forms included as theirs are
+    for (const p of share[0]) { const r = this.here.eval(p); walked.set(settingKey(p), { ...r, best: this.formOf(r.shares) }); }
     const answers = await Promise.race([Promise.all(asked), this.failure]);
     answers.forEach((ws, t) => ws.forEach((w, k) => walked.set(settingKey(share[t + 1][k]), w)));
   }

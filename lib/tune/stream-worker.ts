@@ -4,8 +4,7 @@
 import { parentPort, workerData } from 'node:worker_threads';
 import type { FramePolicy, StreamPolicy } from '../policy/index.js';
 import { seedSoftmax, StreamWalk } from './stream-walk.js';
-import { bestForm } from './stream.js';
-import type { SceneShares } from '../certify/scenes.js';
+import { formCache } from './stream.js';
 import type { ExitCache } from './cache.js';
 import type { StreamJob } from './stream-threads.js';
 
@@ -15,20 +14,13 @@ seedSoftmax(c, { probs: w.probs, done: w.done });
 const walk = new StreamWalk(c, w.idx, w.reach, w.ids, w.full);
 // the walk keeps `then`'s table per policy object: settings that share one share the object again
 const thens = new Map<string, FramePolicy>();
-const forms = new Map<string, ReturnType<typeof bestForm>>();
-const bits = (a: Float64Array) => Buffer.from(a.buffer, a.byteOffset, a.byteLength).toString('base64');
-const formOf = (s: SceneShares) => {
-  const k = `${s.labelled ? 1 : 0}:${bits(s.lostEach)}:${bits(s.gainedEach)}`;
-  let f = forms.get(k);
-  if (!f) forms.set(k, (f = bestForm(s, w.delta)));
-  return f;
-};
+// the bound form too (its bounds cost about what the walk does), once per distinct shares
+const formOf = formCache(w.delta);
 parentPort!.on('message', (policies: StreamPolicy[]) => {
   try {
     const walks = policies.map((p) => {
       if (p.then) { const k = JSON.stringify(p.then); p.then = thens.get(k) ?? (thens.set(k, p.then), p.then); }
       const r = walk.eval(p);
-      // the bound form too (its bounds cost about what the walk does), once per distinct shares
       return { ...r, best: formOf(r.shares) };
     });
     parentPort!.postMessage({ walks });

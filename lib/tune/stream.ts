@@ -133,6 +133,20 @@ export const STREAM_ASSUMES = [
 export interface Walked { run: WalkRun; shares: SceneShares; best?: BestForm }
 /** The form of the bound (which per-scene values, which bound) tightest on a setting's search-part shares, and that bound. */
 export interface BestForm { form: SceneForm; hb: number; /** the bound on the lost shares alone (betting), the second chain's risk */ lostHb: number }
+/**
+ * bestForm, once per distinct shares: settings often lose and gain the same shares of the same scenes (half
+ * of them on Fashion-MNIST recordings), keyed by the shares' bits.
+ */
+export function formCache(delta: number): (s: SceneShares) => BestForm {
+  const forms = new Map<string, BestForm>();
+  return (s) => {
+    const key = sharesKey(s);
+    let f = forms.get(key);
+    if (!f) forms.set(key, (f = bestForm(s, delta)));
+    return f;
+  };
+}
+
 export function bestForm(s: SceneShares, delta: number): BestForm {
   let form = SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled'][0], hb = Infinity, lostHb = Infinity;
   for (const f of SCENE_FORMS[s.labelled ? 'labelled' : 'unlabelled']) {
@@ -213,16 +227,11 @@ export function tuneStreamPlanned(c: ExitCache, o: StreamTuneOptions, plan: Stre
   let heldWalk: StreamWalk | undefined;
   // settings that differ often lose and gain the same shares of the same scenes (half of them on Fashion-MNIST
   // recordings): their bounds are computed once, keyed by those shares' bits
-  const formOf = new Map<string, BestForm>();
+  const formOf = formCache(delta);
   const searched = (policy: StreamPolicy, kind: string): Rec => {
     const w = walked?.get(settingKey(policy)), { run: e, shares: s } = w ?? (tuneWalk ??= new StreamWalk(c, parts.tune, reach, sc.ids, full)).eval(policy);
     // the form of the bound (which per-scene values, which bound) is fixed here, on the search part: the tightest there
-    let best = w?.best;
-    if (!best) {
-      const key = sharesKey(s);
-      best = formOf.get(key);
-      if (!best) formOf.set(key, (best = bestForm(s, delta)));
-    }
+    const best = w?.best ?? formOf(s);
     return { policy, kind, cost: e.cost, correct: e.correct, drop: s.lost - s.gained, shares: s, hb: best.hb, lostHb: best.lostHb, form: best.form, e: strip(e) };
   };
   const bolder = (r: Rec): Rec => (r.bolder ??= searched(bolderOf(r.policy), r.kind));
