@@ -65,29 +65,21 @@ int _close(int fd) {
 }
 
 /* SYS_WRITE and SYS_READ return the number of bytes NOT transferred. */
-int _write(int fd, const void *buf, size_t len) {
+static int transfer(uint32_t op, int fd, const void *buf, size_t len) {
   if (!valid(fd)) {
     errno = EBADF;
     return -1;
   }
   uint32_t block[3] = {(uint32_t)handle[fd], (uint32_t)buf, (uint32_t)len};
-  int32_t left = offramp_harness_semihost(SH_WRITE, block);
+  int32_t left = offramp_harness_semihost(op, block);
   if (left < 0) return -1;
   position[fd] += len - (uint32_t)left;
   return (int)(len - (uint32_t)left);
 }
 
-int _read(int fd, void *buf, size_t len) {
-  if (!valid(fd)) {
-    errno = EBADF;
-    return -1;
-  }
-  uint32_t block[3] = {(uint32_t)handle[fd], (uint32_t)buf, (uint32_t)len};
-  int32_t left = offramp_harness_semihost(SH_READ, block);
-  if (left < 0) return -1;
-  position[fd] += len - (uint32_t)left;
-  return (int)(len - (uint32_t)left);
-}
+int _write(int fd, const void *buf, size_t len) { return transfer(SH_WRITE, fd, buf, len); }
+
+int _read(int fd, void *buf, size_t len) { return transfer(SH_READ, fd, buf, len); }
 
 off_t _lseek(int fd, off_t offset, int whence) {
   if (!valid(fd)) {
