@@ -194,16 +194,18 @@ float offramp_distance(offramp_distance_t kind, const float *p, const float *q) 
 
 void offramp_frame_start(offramp_frame_t *s) { s->last = -1; s->run = 0; }
 
+/* Patience: the exit's label extends or restarts the run of equal labels; stop once it is long enough. */
+static int patience_step(const offramp_frame_policy_t *p, offramp_frame_t *s, int32_t label) {
+  s->run = label == s->last ? s->run + 1 : 1;
+  s->last = label;
+  return s->run >= p->patience;
+}
+
 /* Exit k (< OFFRAMP_EXITS) has its logits z: stop here? Label = offramp_argmax(z) when it says yes. */
 int offramp_decide(const offramp_frame_policy_t *p, offramp_frame_t *s, int32_t k, const float *z) {
   float t;
   if (k >= p->cap) return 1;
-  if (p->kind == OFFRAMP_PATIENCE) {
-    int32_t l = offramp_argmax(z);
-    s->run = l == s->last ? s->run + 1 : 1;
-    s->last = l;
-    return s->run >= p->patience;
-  }
+  if (p->kind == OFFRAMP_PATIENCE) return patience_step(p, s, offramp_argmax(z));
   if (p->score == OFFRAMP_NO_SCORE || !p->on[k]) return 0;
   t = p->threshold[k];
   switch (p->score) {
@@ -307,12 +309,7 @@ int32_t offramp_argmax_q8(const int8_t *q) {
 int offramp_decide_q8(const offramp_frame_policy_t *p, offramp_frame_t *s, int32_t k, const int8_t *q, offramp_q8_t qp) {
   float z[N];
   if (k >= p->cap) return 1;
-  if (p->kind == OFFRAMP_PATIENCE) {
-    int32_t l = offramp_argmax_q8(q);
-    s->run = l == s->last ? s->run + 1 : 1;
-    s->last = l;
-    return s->run >= p->patience;
-  }
+  if (p->kind == OFFRAMP_PATIENCE) return patience_step(p, s, offramp_argmax_q8(q));
   if (p->score == OFFRAMP_NO_SCORE || !p->on[k]) return 0;   /* nothing to score: no dequantizing either */
   offramp_dequantize(q, qp, z);
   return offramp_decide(p, s, k, z);
