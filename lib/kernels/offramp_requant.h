@@ -51,14 +51,15 @@ static inline int32_t offramp_requantize(int32_t acc, const offramp_mul_t *mp) {
 }
 
 /* The int8 result: the zero point added, clamped to [lo, hi] (a fused Relu or Clip narrows them). */
+static inline int8_t offramp_clamp8(int32_t v, int32_t lo, int32_t hi) { return (int8_t)(v < lo ? lo : v > hi ? hi : v); }
+
 static inline int8_t offramp_to_int8(int32_t acc, const offramp_mul_t *m, int32_t zero, int32_t lo, int32_t hi) {
-  int32_t v = offramp_requantize(acc, m) + zero;
-  return (int8_t)(v < lo ? lo : v > hi ? hi : v);
+  return offramp_clamp8(offramp_requantize(acc, m) + zero, lo, hi);
 }
 
+/* offramp_to_int8 for a multiplier with shift >= 1 */
 static inline int8_t offramp_to_int8_s1(int32_t acc, const offramp_mul_t *m, int32_t zero, int32_t lo, int32_t hi) {
-  int32_t v = offramp_requantize_s1(acc, m) + zero;
-  return (int8_t)(v < lo ? lo : v > hi ? hi : v);
+  return offramp_clamp8(offramp_requantize_s1(acc, m) + zero, lo, hi);
 }
 
 #endif
