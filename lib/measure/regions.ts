@@ -55,9 +55,10 @@ export interface CountLog {
 
 interface Open { kind: RegionKind | 'calibration'; event: number; index: number; start: number; inner: number; frame: number; stage: number }
 
-function enclosingFrame(open: Open[]): number {
-  for (let i = open.length - 1; i >= 0; i--) if (open[i]!.kind === 'frame') return open[i]!.frame;
-  return -1;
+/** The innermost open region of a kind. */
+function innermost(open: Open[], kind: RegionKind): Open | undefined {
+  for (let i = open.length - 1; i >= 0; i--) if (open[i]!.kind === kind) return open[i];
+  return undefined;
 }
 
 const ORDER: RegionKind[] = ['stage', 'step', 'decision', 'frame'];
@@ -87,9 +88,8 @@ export function readCountLog(text: string, complete: boolean, file = 'counter lo
       if (!kind) throw bad(n, `unknown marker event ${event} (the firmware's are 1 to 6 and 9)`);
       if (kind === 'calibration' && (calibration !== undefined || open.length)) throw bad(n, 'calibration region not first');
       for (const o of open) o.inner++;
-      const frame = kind === 'frame' ? frames++ : enclosingFrame(open);
-      const around = [...open].reverse().find((o) => o.kind === 'stage');
-      open.push({ kind, event, index, start: count, inner: 0, frame, stage: around ? around.index : -1 });
+      const frame = kind === 'frame' ? frames++ : innermost(open, 'frame')?.frame ?? -1;
+      open.push({ kind, event, index, start: count, inner: 0, frame, stage: innermost(open, 'stage')?.index ?? -1 });
       return;
     }
     const top = open.pop();
