@@ -5,7 +5,7 @@ import path from 'node:path';
 import type { Command } from 'commander';
 import { loadChain } from '../run/chain.js';
 import { writeManifestPolicy } from '../split/manifest.js';
-import { captureCache, chainLayout, MIN_ROWS_PER_THREAD, readLabels } from '../tune/chain-capture.js';
+import { captureCache, chainLayout, readLabels } from '../tune/chain-capture.js';
 import { readDataHeader } from '../data/npy.js';
 import { refuseInputsAsOutputs, refuseSameRows, splitReads } from './guard.js';
 import { progressBar } from './progress.js';
@@ -100,13 +100,12 @@ export function tuneCommand(program: Command): void {
         let t0 = performance.now();
         let searchThreads = 1;
         const lap = (phase: string) => { const now = performance.now(); timings.push({ phase, ms: now - t0 }); t0 = now; };
-        // --threads is a cap: a short file stays below it as it would by default (MIN_ROWS_PER_THREAD each)
-        const capOf = (rows: number) => threads && Math.min(threads, Math.max(1, Math.floor(rows / MIN_ROWS_PER_THREAD)));
-        const captured = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)), { threads: capOf(total) });
+        // --threads is a cap: a short file stays below it as it would by default
+        const captured = await captureCache(chain, o.data, labels, bar && ((n) => bar('capture', n, total)), { maxThreads: threads });
         const { cache, layout } = captured;
         lap(`capture (${captured.threads} thread${captured.threads > 1 ? 's' : ''})`);
         // extra rows without labels: their answers are the full model's, counted only for disagreement
-        const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)), { threads: capOf(readDataHeader(o.unlabelled!).rows) })).cache : undefined;
+        const unlabelled = o.unlabelled ? (await captureCache(chain, o.unlabelled, undefined, bar && ((n) => bar('unlabelled', n, readDataHeader(o.unlabelled!).rows)), { maxThreads: threads })).cache : undefined;
         if (unlabelled) lap('unlabelled capture');
         // The tuner's own complaints (too few samples in a part) are about the data file.
         const result: TuneResult<Policy> = await inFile(o.data, async () => {

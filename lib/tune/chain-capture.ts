@@ -99,6 +99,8 @@ export interface CaptureOptions {
    * (os.availableParallelism()), fewer for a short file (MIN_ROWS_PER_THREAD each); 1: this thread, no worker.
    */
   threads?: number;
+  /** Without `threads`: at most this many (in place of the core count), still MIN_ROWS_PER_THREAD each. */
+  maxThreads?: number;
 }
 
 /** Below this many rows a thread of its own costs more (onnxruntime and the stages load in each) than it saves. */
@@ -109,8 +111,10 @@ export async function captureCache(chain: Chain, data: string, labels?: Int32Arr
   const layout = chainLayout(chain.manifest, chain.dir);
   const rows = readDataHeader(data).rows;
   if (labels && labels.length !== rows) throw new OfframpError('data', `${labels.length} labels for ${rows} samples`, data);
-  if (o.threads !== undefined && !(Number.isInteger(o.threads) && o.threads >= 1)) throw new OfframpError('usage', `threads: a whole number ≥ 1, not ${o.threads}`);
-  const threads = Math.max(1, Math.min(o.threads ?? Math.min(os.availableParallelism(), Math.floor(rows / MIN_ROWS_PER_THREAD)), rows));
+  for (const [k, v] of [['threads', o.threads], ['maxThreads', o.maxThreads]] as const) {
+    if (v !== undefined && !(Number.isInteger(v) && v >= 1)) throw new OfframpError('usage', `${k}: a whole number ≥ 1, not ${v}`);
+  }
+  const threads = Math.max(1, Math.min(o.threads ?? Math.min(o.maxThreads ?? os.availableParallelism(), Math.floor(rows / MIN_ROWS_PER_THREAD)), rows));
   const worker = threads > 1 ? compiledModule(import.meta.url, 'tune/capture-worker.js') : undefined;
   const logits = worker ? await captureThreaded(chain, layout, data, rows, threads, worker, onProgress) : await captureRows(chain, layout, data, 0, rows, onProgress);
   return { cache: makeCache(rows, layout.exits.length, layout.classes, logits, labels), layout, threads: worker ? threads : 1 };
